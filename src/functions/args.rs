@@ -1,0 +1,233 @@
+//! Argument checking and conversion for the SQL adapters, and the one path by which
+//! errors reach SQLite.
+//!
+//! Every adapter error becomes an SQLite error whose message starts with the SQL function
+//! name and says what to change, for example `quantile: p must be between 0 and 1, got 1.5`.
+
+use std::fmt;
+
+use rusqlite::types::ValueRef;
+
+use crate::stats::StatsError;
+
+/// What an adapter can reject. The SQL function name is added by [`fail`].
+#[derive(Debug, Clone, PartialEq)]
+pub enum ArgError {
+    /// A value that should be a number is TEXT that does not parse, or a BLOB.
+    NotNumeric { what: &'static str, shown: String },
+    /// A value that should be a whole number is not one.
+    NotWhole { what: &'static str, shown: String },
+    /// An argument that must be the same on every row of a group changed.
+    Changed { what: &'static str, first: String, now: String },
+    /// A JSON argument that does not have the required shape.
+    BadJson { what: &'static str, detail: String },
+    /// An error from a kernel.
+    Stats(StatsError),
+}
+
+impl fmt::Display for ArgError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            ArgError::NotNumeric { what, shown } => write!(
+                f,
+                "{what} must be a number (INTEGER or REAL), got {shown}; CAST it or filter such rows out"
+            ),
+            ArgError::NotWhole { what, shown } => {
+                write!(f, "{what} must be a whole number, got {shown}")
+            }
+            ArgError::Changed { what, first, now } => write!(
+                f,
+                "{what} must be the same on every row of a group, got {first} and then {now}"
+            ),
+            ArgError::BadJson { what, detail } => write!(f, "{what} {detail}"),
+            ArgError::Stats(e) => e.fmt(f),
+        }
+    }
+}
+
+impl From<StatsError> for ArgError {
+    fn from(e: StatsError) -> Self {
+        ArgError::Stats(e)
+    }
+}
+
+/// An adapter error with the SQL function's name, as SQLite reports it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FunctionError {
+    /// The SQL function name.
+    pub function: &'static str,
+    /// What was wrong.
+    pub error: ArgError,
+}
+
+impl fmt::Display for FunctionError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}: {}", self.function, self.error)
+    }
+}
+
+impl std::error::Error for FunctionError {}
+
+/// The one helper that turns an adapter error into the error SQLite reports.
+pub fn fail(function: &'static str, error: impl Into<ArgError>) -> rusqlite::Error {
+    rusqlite::Error::UserFunctionError(Box::new(FunctionError {
+        function,
+        error: error.into(),
+    }))
+}
+
+/// Shows a value in an error message, shortened.
+fn show(v: ValueRef<'_>) -> String {
+    match v {
+        ValueRef::Null => "NULL".to_string(),
+        ValueRef::Integer(i) => i.to_string(),
+        ValueRef::Real(r) => r.to_string(),
+        ValueRef::Text(t) => {
+            let s = String::from_utf8_lossy(t);
+            let short: String = s.chars().take(40).collect();
+            let ellipsis = if s.chars().count() > 40 { "..." } else { "" };
+            format!("TEXT '{short}{ellipsis}'")
+        }
+        ValueRef::Blob(b) => format!("a BLOB of {} bytes", b.len()),
+    }
+}
+
+/// A numeric argument: NULL gives `None`; INTEGER and REAL convert to `f64`; TEXT that
+/// reads as a number in full (surrounding spaces allowed) is accepted, as SQLite's numeric
+/// affinity would; other TEXT and any BLOB are errors. SQLite has no NaN, so a NaN REAL
+/// (possible only through the C API) is treated as NULL.
+#[inline]
+pub fn number(v: ValueRef<'_>, what: &'static str) -> Result<Option<f64>, ArgError> {
+    match v {
+        ValueRef::Real(r) => Ok((!r.is_nan()).then_some(r)),
+        ValueRef::Integer(i) => Ok(Some(i as f64)),
+        ValueRef::Null => Ok(None),
+        ValueRef::Text(t) => std::str::from_utf8(t)
+            .ok()
+            .and_then(|s| s.trim().parse::<f64>().ok())
+            .filter(|x| !x.is_nan())
+            .map(Some)
+            .ok_or_else(|| ArgError::NotNumeric {
+                what,
+                shown: show(v),
+            }),
+        ValueRef::Blob(_) => Err(ArgError::NotNumeric {
+            what,
+            shown: show(v),
+        }),
+    }
+}
+
+/// A whole-number argument: INTEGER, or a REAL or numeric TEXT with no fractional part.
+/// NULL gives `None`.
+pub fn whole(v: ValueRef<'_>, what: &'static str) -> Result<Option<i64>, ArgError> {
+    if let ValueRef::Integer(i) = v {
+        return Ok(Some(i));
+    }
+    match number(v, what)? {
+        None => Ok(None),
+        Some(x) if x.fract() == 0.0 && x.abs() < 9.0e15 => Ok(Some(x as i64)),
+        Some(_) => Err(ArgError::NotWhole {
+            what,
+            shown: show(v),
+        }),
+    }
+}
+
+/// A text argument: NULL gives `None`; anything else must be TEXT.
+pub fn text<'a>(v: ValueRef<'a>, what: &'static str) -> Result<Option<&'a str>, ArgError> {
+    match v {
+        ValueRef::Null => Ok(None),
+        ValueRef::Text(t) => std::str::from_utf8(t)
+            .map(Some)
+            .map_err(|_| ArgError::BadJson {
+                what,
+                detail: "must be valid UTF-8 text".to_string(),
+            }),
+        other => Err(ArgError::BadJson {
+            what,
+            detail: format!("must be TEXT, got {}", show(other)),
+        }),
+    }
+}
+
+/// An argument that must be the same on every row of a group (a probability, a
+/// threshold, a type). Remembers the first value, NULL included, and rejects a change.
+#[derive(Debug, Clone, Default)]
+pub struct Constant<T> {
+    first: Option<Option<T>>,
+}
+
+impl<T: PartialEq + Clone + fmt::Debug> Constant<T> {
+    /// Records `v` for this row. Returns `true` the first time, so the caller can
+    /// validate the value once.
+    ///
+    /// # Errors
+    /// [`ArgError::Changed`] when `v` differs from the first row's value.
+    #[inline]
+    pub fn observe(&mut self, v: Option<T>, what: &'static str) -> Result<bool, ArgError> {
+        match &self.first {
+            None => {
+                self.first = Some(v);
+                Ok(true)
+            }
+            Some(first) if *first == v => Ok(false),
+            Some(first) => Err(ArgError::Changed {
+                what,
+                first: shown_option(first),
+                now: shown_option(&v),
+            }),
+        }
+    }
+
+    /// The value seen, `None` when no row came or the value was NULL.
+    pub fn get(&self) -> Option<&T> {
+        self.first.as_ref().and_then(Option::as_ref)
+    }
+}
+
+fn shown_option<T: fmt::Debug>(v: &Option<T>) -> String {
+    match v {
+        Some(x) => format!("{x:?}"),
+        None => "NULL".to_string(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn numbers_convert_and_reject() {
+        assert_eq!(number(ValueRef::Integer(3), "x"), Ok(Some(3.0)));
+        assert_eq!(number(ValueRef::Real(2.5), "x"), Ok(Some(2.5)));
+        assert_eq!(number(ValueRef::Null, "x"), Ok(None));
+        assert_eq!(number(ValueRef::Text(b" 4.5 "), "x"), Ok(Some(4.5)));
+        let e = number(ValueRef::Text(b"warm"), "x").unwrap_err();
+        assert_eq!(
+            fail("quantile", e).to_string(),
+            "quantile: x must be a number (INTEGER or REAL), got TEXT 'warm'; CAST it or filter such rows out"
+        );
+        assert!(number(ValueRef::Text(b"nan"), "x").is_err());
+        assert!(number(ValueRef::Blob(&[1, 2]), "x").is_err());
+    }
+
+    #[test]
+    fn whole_numbers() {
+        assert_eq!(whole(ValueRef::Real(7.0), "type"), Ok(Some(7)));
+        assert!(whole(ValueRef::Real(7.5), "type").is_err());
+    }
+
+    #[test]
+    fn constants_must_not_change() {
+        let mut c = Constant::default();
+        assert_eq!(c.observe(Some(0.5), "p"), Ok(true));
+        assert_eq!(c.observe(Some(0.5), "p"), Ok(false));
+        let e = c.observe(Some(0.9), "p").unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "p must be the same on every row of a group, got 0.5 and then 0.9"
+        );
+        assert_eq!(c.get(), Some(&0.5));
+    }
+}

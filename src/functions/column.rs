@@ -1,0 +1,334 @@
+//! Column aggregates: `ecdf`, `quantile`, `weighted_quantile`, `quantiles`, `profile`.
+//!
+//! Adapters only: they read and check arguments, keep the rows a kernel needs, and hand
+//! them to [`crate::stats`]. NULL x is skipped, as SQL aggregates do; a group with no
+//! non-NULL x gives NULL.
+
+use rusqlite::functions::{Aggregate, Context};
+use rusqlite::types::Value;
+use serde_json::json;
+
+use super::args::{ArgError, Constant, fail, number, text, whole};
+use crate::stats::ecdf::{EcdfCounter, WeightedEcdfCounter};
+use crate::stats::moments::Profile;
+use crate::stats::quantile::{QuantileType, WeightedSorted, quantile_select, quantile_sorted};
+use crate::stats::{StatsError, check_probability, check_weight};
+
+type Result<T> = rusqlite::Result<T>;
+
+/// Reads the optional `type` argument at `idx` (constant per group), default 7.
+fn read_type(
+    name: &'static str,
+    ctx: &Context<'_>,
+    idx: usize,
+    seen: &mut Constant<i64>,
+) -> Result<()> {
+    if ctx.len() > idx {
+        let t = whole(ctx.get_raw(idx), "type").map_err(|e| fail(name, e))?;
+        if seen.observe(t, "type").map_err(|e| fail(name, e))? {
+            if let Some(t) = t {
+                QuantileType::new(t).map_err(|e| fail(name, e))?;
+            }
+        }
+    }
+    Ok(())
+}
+
+/// The group's quantile type; `None` when the type argument was NULL.
+fn chosen_type(ctx_len_had_type: bool, seen: &Constant<i64>) -> Option<QuantileType> {
+    if !ctx_len_had_type {
+        return Some(QuantileType::DEFAULT);
+    }
+    seen.get().and_then(|&t| QuantileType::new(t).ok())
+}
+
+/// Reads a probability argument that must be constant per group.
+fn read_p(name: &'static str, ctx: &Context<'_>, idx: usize, seen: &mut Constant<f64>) -> Result<()> {
+    let p = number(ctx.get_raw(idx), "p").map_err(|e| fail(name, e))?;
+    if seen.observe(p, "p").map_err(|e| fail(name, e))? {
+        if let Some(p) = p {
+            check_probability(p).map_err(|e| fail(name, e))?;
+        }
+    }
+    Ok(())
+}
+
+fn real(x: Option<f64>) -> Value {
+    x.map_or(Value::Null, Value::Real)
+}
+
+// ---------------------------------------------------------------------------------------
+// ecdf(x, t [, w])
+
+/// State of `ecdf`: a running count, O(1) memory.
+#[derive(Debug, Default)]
+pub struct EcdfState {
+    t: Constant<f64>,
+    plain: Option<EcdfCounter>,
+    weighted: Option<WeightedEcdfCounter>,
+}
+
+/// `ecdf(x, t)` and `ecdf(x, t, w)`.
+pub struct Ecdf;
+
+impl Aggregate<EcdfState, Value> for Ecdf {
+    fn init(&self, _: &mut Context<'_>) -> Result<EcdfState> {
+        Ok(EcdfState::default())
+    }
+
+    fn step(&self, ctx: &mut Context<'_>, s: &mut EcdfState) -> Result<()> {
+        const NAME: &str = "ecdf";
+        let t = number(ctx.get_raw(1), "t").map_err(|e| fail(NAME, e))?;
+        s.t.observe(t, "t").map_err(|e| fail(NAME, e))?;
+        let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? else {
+            return Ok(());
+        };
+        let Some(t) = t else { return Ok(()) };
+        if ctx.len() > 2 {
+            let Some(w) = number(ctx.get_raw(2), "w").map_err(|e| fail(NAME, e))? else {
+                return Ok(());
+            };
+            s.weighted
+                .get_or_insert_with(|| WeightedEcdfCounter::new(t))
+                .add(x, w)
+                .map_err(|e| fail(NAME, e))
+        } else {
+            s.plain.get_or_insert_with(|| EcdfCounter::new(t)).add(x);
+            Ok(())
+        }
+    }
+
+    fn finalize(&self, _: &mut Context<'_>, s: Option<EcdfState>) -> Result<Value> {
+        let Some(s) = s else { return Ok(Value::Null) };
+        let v = match (s.plain, s.weighted) {
+            (Some(c), _) => c.value(),
+            (_, Some(c)) => c.value(),
+            _ => None,
+        };
+        Ok(real(v))
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// quantile(x, p [, type])
+
+/// State of `quantile`: the non-NULL values of the group.
+#[derive(Debug, Default)]
+pub struct QuantileState {
+    xs: Vec<f64>,
+    p: Constant<f64>,
+    ty: Constant<i64>,
+    has_type: bool,
+}
+
+/// `quantile(x, p [, type])`.
+pub struct Quantile;
+
+impl Aggregate<QuantileState, Value> for Quantile {
+    fn init(&self, _: &mut Context<'_>) -> Result<QuantileState> {
+        Ok(QuantileState::default())
+    }
+
+    fn step(&self, ctx: &mut Context<'_>, s: &mut QuantileState) -> Result<()> {
+        const NAME: &str = "quantile";
+        read_p(NAME, ctx, 1, &mut s.p)?;
+        read_type(NAME, ctx, 2, &mut s.ty)?;
+        s.has_type = ctx.len() > 2;
+        if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? {
+            s.xs.push(x);
+        }
+        Ok(())
+    }
+
+    fn finalize(&self, _: &mut Context<'_>, s: Option<QuantileState>) -> Result<Value> {
+        let Some(mut s) = s else { return Ok(Value::Null) };
+        let (Some(&p), Some(ty)) = (s.p.get(), chosen_type(s.has_type, &s.ty)) else {
+            return Ok(Value::Null);
+        };
+        let q = quantile_select(&mut s.xs, p, ty).map_err(|e| fail("quantile", e))?;
+        Ok(real(q))
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// weighted_quantile(x, w, p [, type])
+
+/// State of `weighted_quantile`: the (value, weight) pairs of the group.
+#[derive(Debug, Default)]
+pub struct WeightedQuantileState {
+    pairs: Vec<(f64, f64)>,
+    p: Constant<f64>,
+    ty: Constant<i64>,
+    has_type: bool,
+}
+
+/// `weighted_quantile(x, w, p [, type])`.
+pub struct WeightedQuantile;
+
+impl Aggregate<WeightedQuantileState, Value> for WeightedQuantile {
+    fn init(&self, _: &mut Context<'_>) -> Result<WeightedQuantileState> {
+        Ok(WeightedQuantileState::default())
+    }
+
+    fn step(&self, ctx: &mut Context<'_>, s: &mut WeightedQuantileState) -> Result<()> {
+        const NAME: &str = "weighted_quantile";
+        read_p(NAME, ctx, 2, &mut s.p)?;
+        read_type(NAME, ctx, 3, &mut s.ty)?;
+        s.has_type = ctx.len() > 3;
+        let x = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))?;
+        let w = number(ctx.get_raw(1), "w").map_err(|e| fail(NAME, e))?;
+        if let Some(w) = w {
+            check_weight(w).map_err(|e| fail(NAME, e))?;
+        }
+        if let (Some(x), Some(w)) = (x, w) {
+            s.pairs.push((x, w));
+        }
+        Ok(())
+    }
+
+    fn finalize(&self, _: &mut Context<'_>, s: Option<WeightedQuantileState>) -> Result<Value> {
+        const NAME: &str = "weighted_quantile";
+        let Some(s) = s else { return Ok(Value::Null) };
+        let (Some(&p), Some(ty)) = (s.p.get(), chosen_type(s.has_type, &s.ty)) else {
+            return Ok(Value::Null);
+        };
+        let sorted = WeightedSorted::new(s.pairs).map_err(|e| fail(NAME, e))?;
+        Ok(real(sorted.quantile(p, ty).map_err(|e| fail(NAME, e))?))
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// quantiles(x, ps [, type])
+
+/// Parses a JSON array of probabilities.
+///
+/// # Errors
+/// [`ArgError::BadJson`] unless `s` is a JSON array of numbers, each in `[0, 1]`.
+pub fn parse_probabilities(s: &str) -> std::result::Result<Vec<f64>, ArgError> {
+    let bad = |detail: String| ArgError::BadJson { what: "ps", detail };
+    let v: serde_json::Value = serde_json::from_str(s).map_err(|e| {
+        bad(format!(
+            "must be a JSON array of probabilities such as '[0.05, 0.5, 0.95]', got '{s}' ({e})"
+        ))
+    })?;
+    let arr = v.as_array().ok_or_else(|| {
+        bad(format!(
+            "must be a JSON array of probabilities such as '[0.05, 0.5, 0.95]', got '{s}'"
+        ))
+    })?;
+    arr.iter()
+        .enumerate()
+        .map(|(i, item)| {
+            let p = item
+                .as_f64()
+                .ok_or_else(|| bad(format!("item {i} must be a number, got {item}")))?;
+            check_probability(p).map_err(|_| bad(format!("item {i} must be between 0 and 1, got {p}")))
+        })
+        .collect()
+}
+
+/// State of `quantiles`: the values and the probabilities.
+#[derive(Debug, Default)]
+pub struct QuantilesState {
+    xs: Vec<f64>,
+    ps_text: Constant<String>,
+    ps: Option<Vec<f64>>,
+    ty: Constant<i64>,
+    has_type: bool,
+}
+
+/// `quantiles(x, ps [, type])`.
+pub struct Quantiles;
+
+impl Aggregate<QuantilesState, Value> for Quantiles {
+    fn init(&self, _: &mut Context<'_>) -> Result<QuantilesState> {
+        Ok(QuantilesState::default())
+    }
+
+    fn step(&self, ctx: &mut Context<'_>, s: &mut QuantilesState) -> Result<()> {
+        const NAME: &str = "quantiles";
+        let ps = text(ctx.get_raw(1), "ps").map_err(|e| fail(NAME, e))?;
+        let same = match (s.ps_text.get(), ps) {
+            (Some(first), Some(now)) => first == now,
+            _ => false,
+        };
+        if !same
+            && s.ps_text
+                .observe(ps.map(str::to_owned), "ps")
+                .map_err(|e| fail(NAME, e))?
+        {
+            if let Some(ps) = ps {
+                s.ps = Some(parse_probabilities(ps).map_err(|e| fail(NAME, e))?);
+            }
+        }
+        read_type(NAME, ctx, 2, &mut s.ty)?;
+        s.has_type = ctx.len() > 2;
+        if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? {
+            s.xs.push(x);
+        }
+        Ok(())
+    }
+
+    fn finalize(&self, _: &mut Context<'_>, s: Option<QuantilesState>) -> Result<Value> {
+        const NAME: &str = "quantiles";
+        let Some(mut s) = s else { return Ok(Value::Null) };
+        let (Some(ps), Some(ty)) = (s.ps.as_ref(), chosen_type(s.has_type, &s.ty)) else {
+            return Ok(Value::Null);
+        };
+        if s.xs.is_empty() {
+            return Ok(Value::Null);
+        }
+        if s.xs.iter().any(|x| x.is_nan()) {
+            return Err(fail(NAME, StatsError::NotANumber));
+        }
+        s.xs.sort_unstable_by(f64::total_cmp);
+        let out: Vec<serde_json::Value> = ps
+            .iter()
+            .map(|&p| quantile_sorted(&s.xs, p, ty).map(|q| json!(q)))
+            .collect::<std::result::Result<_, _>>()
+            .map_err(|e| fail(NAME, e))?;
+        Ok(Value::Text(serde_json::Value::Array(out).to_string()))
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// profile(x)
+
+/// The JSON text of a [`Profile`]; undefined fields and infinities are JSON null.
+pub fn profile_json(p: &Profile) -> String {
+    json!({
+        "n": p.n,
+        "mean": p.mean,
+        "sd": p.sd,
+        "min": p.min,
+        "q1": p.q1,
+        "median": p.median,
+        "q3": p.q3,
+        "max": p.max,
+        "skewness": p.skewness,
+        "excess_kurtosis": p.excess_kurtosis,
+    })
+    .to_string()
+}
+
+/// `profile(x)`.
+pub struct ProfileAgg;
+
+impl Aggregate<Vec<f64>, Value> for ProfileAgg {
+    fn init(&self, _: &mut Context<'_>) -> Result<Vec<f64>> {
+        Ok(Vec::new())
+    }
+
+    fn step(&self, ctx: &mut Context<'_>, xs: &mut Vec<f64>) -> Result<()> {
+        if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail("profile", e))? {
+            xs.push(x);
+        }
+        Ok(())
+    }
+
+    fn finalize(&self, _: &mut Context<'_>, xs: Option<Vec<f64>>) -> Result<Value> {
+        let Some(mut xs) = xs else { return Ok(Value::Null) };
+        xs.sort_unstable_by(f64::total_cmp);
+        Ok(Profile::from_sorted(&xs).map_or(Value::Null, |p| Value::Text(profile_json(&p))))
+    }
+}

@@ -1,0 +1,56 @@
+//! ogive: empirical distributions, quantiles, tests and fits inside SQLite.
+//!
+//! The crate has three layers:
+//!
+//! - [`stats`]: the mathematics, pure functions on slices with no SQLite in sight;
+//! - [`functions`]: the SQL adapters and the registry of every SQL function;
+//! - [`register`]: installs the functions on a [`rusqlite::Connection`].
+//!
+//! The loadable extension (`libogive.so`, built from `ext/`) and the `ogive` shell both
+//! call [`register`].
+//!
+//! # Example
+//! ```
+//! use rusqlite::Connection;
+//! let conn = Connection::open_in_memory()?;
+//! ogive::register(&conn)?;
+//! let median: f64 = conn.query_row(
+//!     "SELECT quantile(column1, 0.5) FROM (VALUES (4.0), (1.0), (3.0))",
+//!     [],
+//!     |row| row.get(0),
+//! )?;
+//! assert_eq!(median, 3.0);
+//! # Ok::<(), rusqlite::Error>(())
+//! ```
+
+pub mod functions;
+pub mod stats;
+
+#[cfg(feature = "loadable")]
+pub mod extension;
+
+pub use rusqlite;
+
+/// Installs every ogive SQL function on `conn`.
+///
+/// # Errors
+/// Whatever SQLite reports when creating a function (for example, out of memory).
+///
+/// # Example
+/// ```
+/// let conn = rusqlite::Connection::open_in_memory()?;
+/// ogive::register(&conn)?;
+/// let share: f64 = conn.query_row(
+///     "SELECT ecdf(column1, 5) FROM (VALUES (3.5), (4.9), (6.2), (7.0))",
+///     [],
+///     |row| row.get(0),
+/// )?;
+/// assert_eq!(share, 0.5);
+/// # Ok::<(), rusqlite::Error>(())
+/// ```
+pub fn register(conn: &rusqlite::Connection) -> rusqlite::Result<()> {
+    for def in functions::REGISTRY {
+        def.install(conn)?;
+    }
+    Ok(())
+}
