@@ -37,7 +37,10 @@ const TABLE_GROWTH: &[(c_int, usize)] = &[
     (3_032_000, offset_of!(sqlite3_api_routines, create_filename)),
     (3_034_000, offset_of!(sqlite3_api_routines, txn_state)),
     (3_036_001, offset_of!(sqlite3_api_routines, changes64)),
-    (3_037_000, offset_of!(sqlite3_api_routines, autovacuum_pages)),
+    (
+        3_037_000,
+        offset_of!(sqlite3_api_routines, autovacuum_pages),
+    ),
     (3_038_000, offset_of!(sqlite3_api_routines, error_offset)),
     (3_039_000, offset_of!(sqlite3_api_routines, deserialize)),
     (3_040_000, offset_of!(sqlite3_api_routines, value_encoding)),
@@ -100,7 +103,9 @@ unsafe fn report(pz_err_msg: *mut *mut c_char, p_api: *const sqlite3_api_routine
     }
     // SAFETY: p_api is the host's non-null table; `malloc` exists in every version.
     unsafe {
-        let Some(malloc) = (*p_api).malloc else { return };
+        let Some(malloc) = (*p_api).malloc else {
+            return;
+        };
         let Ok(c) = CString::new(msg) else { return };
         let bytes = c.as_bytes_with_nul();
         let buf = malloc(bytes.len() as c_int) as *mut u8;
@@ -168,9 +173,18 @@ mod tests {
     #[test]
     fn table_lengths_follow_releases() {
         // Debian 12's 3.40.1 has everything before is_interrupted (added in 3.41.0).
-        assert_eq!(table_len(3_040_001), offset_of!(sqlite3_api_routines, is_interrupted));
-        assert_eq!(table_len(3_031_000), offset_of!(sqlite3_api_routines, create_filename));
-        assert_eq!(table_len(ffi::SQLITE_VERSION_NUMBER), size_of::<sqlite3_api_routines>());
+        assert_eq!(
+            table_len(3_040_001),
+            offset_of!(sqlite3_api_routines, is_interrupted)
+        );
+        assert_eq!(
+            table_len(3_031_000),
+            offset_of!(sqlite3_api_routines, create_filename)
+        );
+        assert_eq!(
+            table_len(ffi::SQLITE_VERSION_NUMBER),
+            size_of::<sqlite3_api_routines>()
+        );
         assert_eq!(version_text(3_040_001), "3.40.1");
     }
 }

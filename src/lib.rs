@@ -49,7 +49,7 @@ pub use rusqlite;
 /// # Ok::<(), rusqlite::Error>(())
 /// ```
 pub fn register(conn: &rusqlite::Connection) -> rusqlite::Result<()> {
-    for def in functions::REGISTRY {
+    for def in functions::all() {
         def.install(conn)?;
     }
     Ok(())

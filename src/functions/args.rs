@@ -18,7 +18,11 @@ pub enum ArgError {
     /// A value that should be a whole number is not one.
     NotWhole { what: &'static str, shown: String },
     /// An argument that must be the same on every row of a group changed.
-    Changed { what: &'static str, first: String, now: String },
+    Changed {
+        what: &'static str,
+        first: String,
+        now: String,
+    },
     /// A JSON argument that does not have the required shape.
     BadJson { what: &'static str, detail: String },
     /// An error from a kernel.

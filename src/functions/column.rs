@@ -9,12 +9,89 @@ use rusqlite::types::Value;
 use serde_json::json;
 
 use super::args::{ArgError, Constant, fail, number, text, whole};
+use super::{FunctionDef, Kind, aggregate};
 use crate::stats::ecdf::{EcdfCounter, WeightedEcdfCounter};
 use crate::stats::moments::Profile;
 use crate::stats::quantile::{QuantileType, WeightedSorted, quantile_select, quantile_sorted};
 use crate::stats::{StatsError, check_probability, check_weight};
 
 type Result<T> = rusqlite::Result<T>;
+
+/// The registry rows of this module.
+pub static FUNCTIONS: &[FunctionDef] = &[
+    FunctionDef {
+        name: "ecdf",
+        kind: Kind::Aggregate,
+        arities: &[2, 3],
+        signature: "ecdf(x, t [, w])",
+        summary: "share of x at or below t (weighted by w), in [0, 1]; one pass, O(1) memory",
+        help: "The empirical cdf of the group at t: count(x <= t) / count(x), or with frequency \
+               weights sum(w where x <= t) / sum(w). t must be the same on every row of a group. \
+               NULL x (or w) rows are skipped; NULL t gives NULL; no rows gives NULL. Errors: \
+               non-numeric x, t or w; a negative or infinite weight.",
+        example: "SELECT ecdf(column1, 2.5) FROM (VALUES (1), (2), (3), (4))",
+        example_result: "0.5",
+        register: |c, d| aggregate(c, d, || Ecdf),
+    },
+    FunctionDef {
+        name: "quantile",
+        kind: Kind::Aggregate,
+        arities: &[2, 3],
+        signature: "quantile(x, p [, type])",
+        summary: "empirical p-quantile of x; type 1..9 (Hyndman and Fan 1996), default 7",
+        help: "The p-quantile of the group by one of the nine Hyndman-Fan definitions (type 7 is \
+               numpy's and R's default 'linear'; type 1 is the inverse of the ECDF). Uses \
+               selection, O(n). p and type must be the same on every row of a group. NULL x is \
+               skipped; NULL p or type gives NULL. Errors: p outside [0, 1], type outside 1..9, \
+               non-numeric x.",
+        example: "SELECT quantile(column1, 0.9) FROM (VALUES (1), (2), (3), (4), (5))",
+        example_result: "4.6",
+        register: |c, d| aggregate(c, d, || Quantile),
+    },
+    FunctionDef {
+        name: "weighted_quantile",
+        kind: Kind::Aggregate,
+        arities: &[3, 4],
+        signature: "weighted_quantile(x, w, p [, type])",
+        summary: "p-quantile of x with frequency weights w; equals quantile on replicated rows",
+        help: "As quantile, with frequency weights: the total weight plays the part of n and each \
+               value counts as often as its weight. With whole-number weights every type equals \
+               quantile over the rows repeated that often. Zero weights carry no mass. Rows with \
+               NULL x or NULL w are skipped. Errors: a negative or infinite weight, p outside \
+               [0, 1], type outside 1..9.",
+        example: "SELECT weighted_quantile(column1, column2, 0.5) FROM (VALUES (1, 3), (10, 1))",
+        example_result: "1.0",
+        register: |c, d| aggregate(c, d, || WeightedQuantile),
+    },
+    FunctionDef {
+        name: "quantiles",
+        kind: Kind::Aggregate,
+        arities: &[2, 3],
+        signature: "quantiles(x, ps [, type])",
+        summary: "JSON array of the quantiles of x at each probability of the JSON array ps",
+        help: "One sort, many quantiles: ps is a JSON array such as '[0.05, 0.5, 0.95]' and the \
+               result is a JSON array of the same length (an undefined or infinite quantile is \
+               null). Read it with SQLite's ->> or json_each. Errors: ps not a JSON array of \
+               numbers in [0, 1], type outside 1..9.",
+        example: "SELECT quantiles(column1, '[0, 0.5, 1]') FROM (VALUES (3), (1), (2))",
+        example_result: "[1.0,2.0,3.0]",
+        register: |c, d| aggregate(c, d, || Quantiles),
+    },
+    FunctionDef {
+        name: "profile",
+        kind: Kind::Aggregate,
+        arities: &[1],
+        signature: "profile(x)",
+        summary: "JSON summary: n, mean, sd, min, q1, median, q3, max, skewness, excess_kurtosis",
+        help: "A numeric summary of the group as a JSON object. sd uses the n - 1 divisor; \
+               skewness and excess_kurtosis are the adjusted estimators G1 and G2 (Joanes and \
+               Gill 1998); quartiles are type 7. A field that is undefined for the sample (sd of \
+               one value, skewness of a constant sample) is null.",
+        example: "SELECT profile(column1) ->> '$.median' FROM (VALUES (1), (2), (9))",
+        example_result: "2.0",
+        register: |c, d| aggregate(c, d, || ProfileAgg),
+    },
+];
 
 /// Reads the optional `type` argument at `idx` (constant per group), default 7.
 fn read_type(
@@ -25,10 +102,10 @@ fn read_type(
 ) -> Result<()> {
     if ctx.len() > idx {
         let t = whole(ctx.get_raw(idx), "type").map_err(|e| fail(name, e))?;
-        if seen.observe(t, "type").map_err(|e| fail(name, e))? {
-            if let Some(t) = t {
-                QuantileType::new(t).map_err(|e| fail(name, e))?;
-            }
+        if seen.observe(t, "type").map_err(|e| fail(name, e))?
+            && let Some(t) = t
+        {
+            QuantileType::new(t).map_err(|e| fail(name, e))?;
         }
     }
     Ok(())
@@ -43,12 +120,17 @@ fn chosen_type(ctx_len_had_type: bool, seen: &Constant<i64>) -> Option<QuantileT
 }
 
 /// Reads a probability argument that must be constant per group.
-fn read_p(name: &'static str, ctx: &Context<'_>, idx: usize, seen: &mut Constant<f64>) -> Result<()> {
+fn read_p(
+    name: &'static str,
+    ctx: &Context<'_>,
+    idx: usize,
+    seen: &mut Constant<f64>,
+) -> Result<()> {
     let p = number(ctx.get_raw(idx), "p").map_err(|e| fail(name, e))?;
-    if seen.observe(p, "p").map_err(|e| fail(name, e))? {
-        if let Some(p) = p {
-            check_probability(p).map_err(|e| fail(name, e))?;
-        }
+    if seen.observe(p, "p").map_err(|e| fail(name, e))?
+        && let Some(p) = p
+    {
+        check_probability(p).map_err(|e| fail(name, e))?;
     }
     Ok(())
 }
@@ -141,7 +223,9 @@ impl Aggregate<QuantileState, Value> for Quantile {
     }
 
     fn finalize(&self, _: &mut Context<'_>, s: Option<QuantileState>) -> Result<Value> {
-        let Some(mut s) = s else { return Ok(Value::Null) };
+        let Some(mut s) = s else {
+            return Ok(Value::Null);
+        };
         let (Some(&p), Some(ty)) = (s.p.get(), chosen_type(s.has_type, &s.ty)) else {
             return Ok(Value::Null);
         };
@@ -222,7 +306,8 @@ pub fn parse_probabilities(s: &str) -> std::result::Result<Vec<f64>, ArgError> {
             let p = item
                 .as_f64()
                 .ok_or_else(|| bad(format!("item {i} must be a number, got {item}")))?;
-            check_probability(p).map_err(|_| bad(format!("item {i} must be between 0 and 1, got {p}")))
+            check_probability(p)
+                .map_err(|_| bad(format!("item {i} must be between 0 and 1, got {p}")))
         })
         .collect()
 }
@@ -256,10 +341,9 @@ impl Aggregate<QuantilesState, Value> for Quantiles {
             && s.ps_text
                 .observe(ps.map(str::to_owned), "ps")
                 .map_err(|e| fail(NAME, e))?
+            && let Some(ps) = ps
         {
-            if let Some(ps) = ps {
-                s.ps = Some(parse_probabilities(ps).map_err(|e| fail(NAME, e))?);
-            }
+            s.ps = Some(parse_probabilities(ps).map_err(|e| fail(NAME, e))?);
         }
         read_type(NAME, ctx, 2, &mut s.ty)?;
         s.has_type = ctx.len() > 2;
@@ -271,7 +355,9 @@ impl Aggregate<QuantilesState, Value> for Quantiles {
 
     fn finalize(&self, _: &mut Context<'_>, s: Option<QuantilesState>) -> Result<Value> {
         const NAME: &str = "quantiles";
-        let Some(mut s) = s else { return Ok(Value::Null) };
+        let Some(mut s) = s else {
+            return Ok(Value::Null);
+        };
         let (Some(ps), Some(ty)) = (s.ps.as_ref(), chosen_type(s.has_type, &s.ty)) else {
             return Ok(Value::Null);
         };
@@ -327,7 +413,9 @@ impl Aggregate<Vec<f64>, Value> for ProfileAgg {
     }
 
     fn finalize(&self, _: &mut Context<'_>, xs: Option<Vec<f64>>) -> Result<Value> {
-        let Some(mut xs) = xs else { return Ok(Value::Null) };
+        let Some(mut xs) = xs else {
+            return Ok(Value::Null);
+        };
         xs.sort_unstable_by(f64::total_cmp);
         Ok(Profile::from_sorted(&xs).map_or(Value::Null, |p| Value::Text(profile_json(&p))))
     }

@@ -54,7 +54,11 @@ impl Profile {
         if n == 0 {
             return None;
         }
-        let q = |p| quantile_sorted(sorted, p, QuantileType::DEFAULT).ok().flatten();
+        let q = |p| {
+            quantile_sorted(sorted, p, QuantileType::DEFAULT)
+                .ok()
+                .flatten()
+        };
         let nf = n as f64;
         let finite = sorted.iter().all(|x| x.is_finite());
         let mean = if finite {
@@ -128,14 +132,23 @@ mod tests {
         let g1 = 36.0 / 10f64.powf(1.5);
         assert!(close(p.skewness.unwrap(), 20f64.sqrt() / 3.0 * g1));
         let g2 = 278.8 / 100.0 - 3.0;
-        assert!(close(p.excess_kurtosis.unwrap(), (6.0 * g2 + 6.0) * 4.0 / 6.0));
-        assert_eq!((p.min, p.q1, p.median, p.q3, p.max), (1.0, 2.0, 3.0, 4.0, 10.0));
+        assert!(close(
+            p.excess_kurtosis.unwrap(),
+            (6.0 * g2 + 6.0) * 4.0 / 6.0
+        ));
+        assert_eq!(
+            (p.min, p.q1, p.median, p.q3, p.max),
+            (1.0, 2.0, 3.0, 4.0, 10.0)
+        );
     }
 
     #[test]
     fn undefined_fields_are_none() {
         let one = Profile::from_sorted(&[5.0]).unwrap();
-        assert_eq!((one.sd, one.skewness, one.excess_kurtosis), (None, None, None));
+        assert_eq!(
+            (one.sd, one.skewness, one.excess_kurtosis),
+            (None, None, None)
+        );
         let flat = Profile::from_sorted(&[2.0; 6]).unwrap();
         assert_eq!(flat.sd, Some(0.0));
         assert_eq!(flat.skewness, None);

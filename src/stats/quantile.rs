@@ -179,11 +179,7 @@ fn evaluate(plan: Plan, mut at: impl FnMut(f64) -> f64) -> Option<f64> {
 #[inline]
 fn index_of(k: f64, n: usize) -> usize {
     let i = k.ceil() - 1.0;
-    if i <= 0.0 {
-        0
-    } else {
-        (i as usize).min(n - 1)
-    }
+    if i <= 0.0 { 0 } else { (i as usize).min(n - 1) }
 }
 
 /// The quantile of already sorted values (ascending by `f64::total_cmp`).
@@ -199,7 +195,11 @@ fn index_of(k: f64, n: usize) -> usize {
 /// let q = quantile_sorted(&[1.0, 2.0, 3.0, 4.0], 0.5, QuantileType::DEFAULT).unwrap();
 /// assert_eq!(q, Some(2.5));
 /// ```
-pub fn quantile_sorted(sorted: &[f64], p: f64, ty: QuantileType) -> Result<Option<f64>, StatsError> {
+pub fn quantile_sorted(
+    sorted: &[f64],
+    p: f64,
+    ty: QuantileType,
+) -> Result<Option<f64>, StatsError> {
     check_probability(p)?;
     if sorted.is_empty() {
         return Ok(None);
@@ -222,7 +222,11 @@ pub fn quantile_sorted(sorted: &[f64], p: f64, ty: QuantileType) -> Result<Optio
 /// let mut xs = vec![9.0, 1.0, 5.0, 3.0, 7.0];
 /// assert_eq!(quantile_select(&mut xs, 0.5, QuantileType::DEFAULT).unwrap(), Some(5.0));
 /// ```
-pub fn quantile_select(xs: &mut [f64], p: f64, ty: QuantileType) -> Result<Option<f64>, StatsError> {
+pub fn quantile_select(
+    xs: &mut [f64],
+    p: f64,
+    ty: QuantileType,
+) -> Result<Option<f64>, StatsError> {
     check_probability(p)?;
     if xs.iter().any(|x| x.is_nan()) {
         return Err(StatsError::NotANumber);
@@ -239,7 +243,9 @@ pub fn quantile_select(xs: &mut [f64], p: f64, ty: QuantileType) -> Result<Optio
     let a = *nth;
     // The next order statistic is the smallest value to the right of the selected one.
     let next = right.iter().copied().min_by(f64::total_cmp).unwrap_or(a);
-    Ok(evaluate(plan, |k| if index_of(k, n) == first { a } else { next }))
+    Ok(evaluate(plan, |k| {
+        if index_of(k, n) == first { a } else { next }
+    }))
 }
 
 /// Values sorted ascending with their cumulative frequency weights, ready for repeated
@@ -394,9 +400,15 @@ mod tests {
             Err(StatsError::ProbabilityOutOfRange(1.5))
         );
         assert_eq!(quantile_sorted(&[], 0.5, ty), Ok(None));
-        assert_eq!(quantile_select(&mut [f64::NAN], 0.5, ty), Err(StatsError::NotANumber));
+        assert_eq!(
+            quantile_select(&mut [f64::NAN], 0.5, ty),
+            Err(StatsError::NotANumber)
+        );
         // -inf and +inf: the midpoint is undefined, reported as None.
-        assert_eq!(quantile_sorted(&[f64::NEG_INFINITY, f64::INFINITY], 0.5, ty), Ok(None));
+        assert_eq!(
+            quantile_sorted(&[f64::NEG_INFINITY, f64::INFINITY], 0.5, ty),
+            Ok(None)
+        );
         // Equal infinite neighbours are that infinity, not NaN.
         assert_eq!(
             quantile_sorted(&[f64::INFINITY, f64::INFINITY], 0.3, ty),

@@ -1,0 +1,122 @@
+//! The registry drives registration, the README table and the shell's listing; these
+//! tests fail when they drift apart, and run every registry example.
+
+use std::collections::BTreeSet;
+
+use ogive::functions::{self, Kind, render_value};
+use rusqlite::Connection;
+use rusqlite::types::Value;
+
+fn function_list(conn: &Connection) -> BTreeSet<(String, i64, String)> {
+    let mut stmt = conn
+        .prepare("SELECT name, narg, type FROM pragma_function_list")
+        .unwrap();
+    stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))
+        .unwrap()
+        .map(Result::unwrap)
+        .collect()
+}
+
+fn module_list(conn: &Connection) -> BTreeSet<String> {
+    let mut stmt = conn.prepare("SELECT name FROM pragma_module_list").unwrap();
+    stmt.query_map([], |r| r.get(0))
+        .unwrap()
+        .map(Result::unwrap)
+        .collect()
+}
+
+#[test]
+fn registration_installs_exactly_the_registry() {
+    let plain = Connection::open_in_memory().unwrap();
+    let conn = Connection::open_in_memory().unwrap();
+    ogive::register(&conn).unwrap();
+    let added: BTreeSet<_> = function_list(&conn)
+        .difference(&function_list(&plain))
+        .cloned()
+        .collect();
+    let mut expected = BTreeSet::new();
+    for d in functions::all() {
+        let ty = match d.kind {
+            Kind::Scalar => "s",
+            Kind::Aggregate => "a",
+            Kind::Window => "w",
+            Kind::Table => continue,
+        };
+        for &n in d.arities {
+            expected.insert((d.name.to_string(), i64::from(n), ty.to_string()));
+        }
+    }
+    assert_eq!(added, expected);
+
+    let modules: BTreeSet<_> = module_list(&conn)
+        .difference(&module_list(&plain))
+        .cloned()
+        .collect();
+    let tables: BTreeSet<_> = functions::all()
+        .filter(|d| d.kind == Kind::Table)
+        .map(|d| d.name.to_string())
+        .collect();
+    assert_eq!(modules, tables);
+}
+
+#[test]
+fn names_are_unique_and_rows_complete() {
+    let mut seen = BTreeSet::new();
+    for d in functions::all() {
+        assert!(seen.insert(d.name), "{} is registered twice", d.name);
+        assert!(
+            d.signature.starts_with(&format!("{}(", d.name)),
+            "{}",
+            d.name
+        );
+        assert!(!d.summary.is_empty() && !d.help.is_empty(), "{}", d.name);
+        assert!(
+            !d.summary.contains('\n'),
+            "{}: summary must be one line",
+            d.name
+        );
+    }
+}
+
+#[test]
+fn every_example_runs_and_gives_its_documented_result() {
+    let conn = Connection::open_in_memory().unwrap();
+    ogive::register(&conn).unwrap();
+    for d in functions::all() {
+        let v: Value = conn
+            .query_row(d.example, [], |r| r.get(0))
+            .unwrap_or_else(|e| panic!("example of {} failed: {e}", d.name));
+        assert_eq!(render_value(&v), d.example_result, "example of {}", d.name);
+        assert!(
+            d.example.contains(d.name),
+            "example of {} must use it",
+            d.name
+        );
+    }
+}
+
+/// The README's function table is generated from the registry. After changing a row,
+/// run `OGIVE_BLESS=1 cargo test --test registry` to rewrite it.
+#[test]
+fn readme_table_matches_registry() {
+    const START: &str = "<!-- functions:start (generated from the registry) -->\n";
+    const END: &str = "<!-- functions:end -->";
+    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/README.md");
+    let readme = std::fs::read_to_string(path).unwrap();
+    let (Some(a), Some(b)) = (readme.find(START), readme.find(END)) else {
+        panic!("README.md lacks the function table markers");
+    };
+    let current = &readme[a + START.len()..b];
+    let wanted = functions::markdown_table();
+    if current != wanted {
+        if std::env::var_os("OGIVE_BLESS").is_some() {
+            let updated = format!("{}{}{}", &readme[..a + START.len()], wanted, &readme[b..]);
+            std::fs::write(path, updated).unwrap();
+        } else {
+            panic!(
+                "README.md's function table is out of date; run \
+                 `OGIVE_BLESS=1 cargo test --test registry`"
+            );
+        }
+    }
+}

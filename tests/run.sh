@@ -1,0 +1,33 @@
+#!/usr/bin/env bash
+# The whole test suite: Rust unit, doc and integration tests, the loadable extension's own
+# tests, and the Python cross-checks through the real extension (apsw and the sqlite3 CLI).
+# Creates .venv from tests/requirements.txt on first use.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+
+echo "== building the loadable extension (ext/)"
+cargo build --release --manifest-path ext/Cargo.toml
+export OGIVE_EXTENSION="$PWD/ext/target/release/libogive.so"
+
+echo "== cargo test (library, shell, integration)"
+cargo test
+echo "== cargo test (extension entry point)"
+cargo test --release --manifest-path ext/Cargo.toml
+
+if [ ! -x .venv/bin/python ] || ! cmp -s tests/requirements.txt .venv/requirements.txt; then
+    echo "== creating .venv for the Python cross-checks"
+    python3 -m venv .venv
+    .venv/bin/pip install --quiet --disable-pip-version-check -r tests/requirements.txt
+    cp tests/requirements.txt .venv/requirements.txt
+fi
+
+echo "== pytest (cross-checks against numpy, scipy, statsmodels, scikit-learn)"
+set +e
+.venv/bin/python -m pytest -q tests/python "$@"
+status=$?
+set -e
+if [ "$status" -eq 5 ]; then
+    echo "pytest collected no tests"
+    exit 1
+fi
+exit "$status"
