@@ -1,0 +1,306 @@
+"""Side-by-side benchmarks of ogive against what a user would do instead.
+
+One run generates seeded data into SQLite files (cached in bench/data/), loads the release
+extension into apsw, times every case several times in the same process, and writes medians
+and ratios to bench/RESULTS.md together with the machine's description. Nothing here is a
+test: timings never enter the test suite.
+
+    bash bench/run.sh                 # default sizes, about 5-10 minutes on 2 cores
+    bash bench/run.sh --rows 1000000  # smaller
+"""
+
+import argparse
+import datetime
+import os
+import pathlib
+import platform
+import resource
+import statistics
+import subprocess
+import sys
+import time
+
+import apsw
+import numpy as np
+
+ROOT = pathlib.Path(__file__).resolve().parents[1]
+DATA = ROOT / "bench" / "data"
+SEED = 20261202
+
+
+def connect(ext, path):
+    c = apsw.Connection(str(path))
+    c.enable_load_extension(True)
+    c.load_extension(ext)
+    return c
+
+
+def has_function(c, name):
+    return bool(list(c.execute("SELECT 1 FROM pragma_function_list WHERE name = ?", (name,))))
+
+
+def fill(c, table, columns, arrays, chunk=500_000):
+    c.execute(f"CREATE TABLE {table}({', '.join(columns)})")
+    marks = ", ".join("?" * len(columns))
+    n = len(arrays[0])
+    with c:
+        for lo in range(0, n, chunk):
+            rows = zip(*(a[lo : lo + chunk].tolist() for a in arrays))
+            c.executemany(f"INSERT INTO {table} VALUES ({marks})", rows)
+
+
+def dataset(ext, name, rows, make):
+    """A cached SQLite file holding one table made by `make(rng, rows)`."""
+    DATA.mkdir(parents=True, exist_ok=True)
+    path = DATA / f"{name}_{rows}.db"
+    if not path.exists():
+        tmp = path.with_suffix(".tmp")
+        tmp.unlink(missing_ok=True)
+        c = connect(ext, tmp)
+        columns, arrays = make(np.random.default_rng(SEED), rows)
+        fill(c, "t", columns, arrays)
+        c.close()
+        tmp.rename(path)
+    return path
+
+
+def timed(fn, reps):
+    times = []
+    result = None
+    for _ in range(reps):
+        start = time.perf_counter()
+        result = fn()
+        times.append(time.perf_counter() - start)
+    return statistics.median(times), result
+
+
+def sql_case(c, sql, params=()):
+    return lambda: list(c.execute(sql, params))
+
+
+class Report:
+    def __init__(self):
+        self.sections = []
+
+    def section(self, title, rows, note=""):
+        self.sections.append((title, rows, note))
+
+    def markdown(self, header):
+        out = [header]
+        for title, rows, note in self.sections:
+            out.append(f"\n## {title}\n")
+            if note:
+                out.append(note + "\n")
+            if not rows:
+                continue
+            out.append("| case | median s | ratio to first row |")
+            out.append("|---|---:|---:|")
+            base = rows[0][1] if rows and rows[0][1] else None
+            for label, seconds in rows:
+                if seconds is None:
+                    out.append(f"| {label} | n/a | n/a |")
+                else:
+                    ratio = f"{seconds / base:.2f}x" if base else "n/a"
+                    out.append(f"| {label} | {seconds:.4f} | {ratio} |")
+        return "\n".join(out) + "\n"
+
+
+def bench_column(ext, rows, reps, report):
+    path = dataset(ext, "column", rows, lambda rng, n: (["x REAL"], [rng.lognormal(1.0, 0.6, n)]))
+    c = connect(ext, path)
+    t = float(np.exp(1.0))
+    results = []
+    for label, fn in [
+        ("sum(x) (floor)", sql_case(c, "SELECT sum(x) FROM t")),
+        ("count(x) (floor)", sql_case(c, "SELECT count(x) FROM t")),
+        ("ecdf(x, t)", sql_case(c, "SELECT ecdf(x, ?) FROM t", (t,))),
+        ("plain SQL share: avg(x <= t)", sql_case(c, "SELECT avg(x <= ?) FROM t", (t,))),
+        ("quantile(x, 0.5)", sql_case(c, "SELECT quantile(x, 0.5) FROM t")),
+        (
+            "plain SQL median: ORDER BY x LIMIT 1 OFFSET n/2",
+            sql_case(c, "SELECT x FROM t ORDER BY x LIMIT 1 OFFSET (SELECT count(*) FROM t) / 2"),
+        ),
+    ]:
+        results.append((label, timed(fn, reps)[0]))
+
+    def numpy_end_to_end():
+        xs = np.fromiter((r[0] for r in c.execute("SELECT x FROM t")), dtype=float, count=rows)
+        return float(np.quantile(xs, 0.5))
+
+    results.append(("numpy end to end: read column + numpy.quantile", timed(numpy_end_to_end, reps)[0]))
+    xs = np.fromiter((r[0] for r in c.execute("SELECT x FROM t")), dtype=float, count=rows)
+    results.append(("numpy.quantile kernel alone (array in memory)", timed(lambda: np.quantile(xs, 0.5), reps)[0]))
+    report.section(f"One column, {rows:,} rows", results, "Targets: ecdf <= 1.1x sum(x); quantile <= 1.25x sum(x).")
+    c.close()
+    return path
+
+
+def bench_grouped(ext, rows, reps, report):
+    groups = 1000
+
+    def make(rng, n):
+        return ["g INTEGER", "x REAL"], [rng.integers(0, groups, n), rng.normal(3.0, 1.0, n)]
+
+    path = dataset(ext, "grouped", rows, make)
+    c = connect(ext, path)
+    median_sql = (
+        "SELECT g, avg(x) FROM (SELECT g, x, row_number() OVER (PARTITION BY g ORDER BY x) AS rn, "
+        "count(*) OVER (PARTITION BY g) AS c FROM t) WHERE rn IN ((c + 1) / 2, (c + 2) / 2) GROUP BY g"
+    )
+    results = [
+        ("sum(x) GROUP BY g (floor)", timed(sql_case(c, "SELECT g, sum(x) FROM t GROUP BY g"), reps)[0]),
+        ("quantile(x, 0.5) GROUP BY g", timed(sql_case(c, "SELECT g, quantile(x, 0.5) FROM t GROUP BY g"), reps)[0]),
+        ("window-function SQL median", timed(sql_case(c, median_sql), reps)[0]),
+    ]
+    report.section(f"{groups} groups, {rows:,} rows", results, "Target: grouped quantile <= 1.2x grouped sum.")
+    c.close()
+
+
+def bench_ks(ext, rows, reps, report):
+    import scipy.stats
+
+    def make(rng, n):
+        half = n // 2
+        x = np.concatenate([rng.normal(0, 1, half), rng.normal(0.01, 1, n - half)])
+        s = np.concatenate([np.zeros(half, dtype=np.int64), np.ones(n - half, dtype=np.int64)])
+        return ["x REAL", "s INTEGER"], [x, s]
+
+    path = dataset(ext, "ks", rows, make)
+    c = connect(ext, path)
+    if not has_function(c, "ks_test"):
+        report.section("Two-sample KS", [("ks_test: not in this build", None)])
+        return
+    a = np.array([r[0] for r in c.execute("SELECT x FROM t WHERE s = 0")])
+    b = np.array([r[0] for r in c.execute("SELECT x FROM t WHERE s = 1")])
+    results = [
+        ("scipy.stats.ks_2samp(a, b) on arrays in memory", timed(lambda: scipy.stats.ks_2samp(a, b), reps)[0]),
+        ("ks_test(x, s = 1)", timed(sql_case(c, "SELECT ks_test(x, s = 1) FROM t"), reps)[0]),
+    ]
+    report.section(f"Two-sample KS, 2 x {rows // 2:,} rows", results, "Target: ks_test no slower than scipy's kernel.")
+    c.close()
+
+
+def bench_mixture(ext, rows, reps, report):
+    def make(rng, n):
+        comp = rng.choice(3, size=n, p=[0.5, 0.3, 0.2])
+        means, sds = np.array([0.0, 4.0, 9.0]), np.array([1.0, 1.5, 0.8])
+        return ["x REAL"], [rng.normal(means[comp], sds[comp])]
+
+    path = dataset(ext, "mixture", rows, make)
+    c = connect(ext, path)
+    if not has_function(c, "dist_mixture"):
+        report.section("Gaussian mixture, k = 3", [("dist_mixture: not in this build", None)])
+        return
+    import json
+
+    from sklearn.mixture import GaussianMixture
+
+    xs = np.array([r[0] for r in c.execute("SELECT x FROM t")]).reshape(-1, 1)
+    sk_time, gm = timed(lambda: GaussianMixture(3, random_state=0).fit(xs), reps)
+    sk_ll = float(gm.score(xs) * len(xs))
+    og_time, out = timed(sql_case(c, "SELECT dist_mixture(x, 3) FROM t"), reps)
+    model = json.loads(out[0][0])
+    note = (
+        f"log-likelihood: ogive {model['loglik']:.3f} in {model.get('iterations')} iterations; "
+        f"scikit-learn {sk_ll:.3f} in {gm.n_iter_} iterations. Target: >= 50x faster at equal or better log-likelihood."
+    )
+    report.section(
+        f"Gaussian mixture, k = 3, {rows:,} rows",
+        [("sklearn GaussianMixture(3).fit", sk_time), ("dist_mixture(x, 3)", og_time)],
+        note,
+    )
+    c.close()
+
+
+def bench_weibull(ext, rows, reps, report):
+    path = dataset(ext, "weibull", rows, lambda rng, n: (["x REAL"], [rng.weibull(1.7, n) * 3.0]))
+    c = connect(ext, path)
+    if not has_function(c, "dist_fit"):
+        report.section("Weibull fit", [("dist_fit: not in this build", None)])
+        return
+    import scipy.stats
+
+    xs = np.array([r[0] for r in c.execute("SELECT x FROM t")])
+    results = [
+        ("scipy.stats.weibull_min.fit(x, floc=0)", timed(lambda: scipy.stats.weibull_min.fit(xs, floc=0), max(1, reps // 2))[0]),
+        ("dist_fit(x, 'weibull')", timed(sql_case(c, "SELECT dist_fit(x, 'weibull') FROM t"), reps)[0]),
+    ]
+    report.section(f"Weibull fit, {rows:,} rows", results)
+    c.close()
+
+
+MEMORY_PROBE = """
+import apsw, resource, sys
+c = apsw.Connection(sys.argv[2]); c.enable_load_extension(True); c.load_extension(sys.argv[1])
+list(c.execute(sys.argv[3]))
+print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+"""
+
+
+def peak_kib(ext, path, sql):
+    out = subprocess.run(
+        [sys.executable, "-c", MEMORY_PROBE, ext, str(path), sql], capture_output=True, text=True, check=True
+    )
+    return int(out.stdout.strip())
+
+
+def bench_memory(ext, sizes, report):
+    lines = ["| rows | peak RSS, sum(x) | peak RSS, quantile(x, 0.5) | extra bytes per row |", "|---:|---:|---:|---:|"]
+    for n in sizes:
+        path = dataset(ext, "column", n, lambda rng, m: (["x REAL"], [rng.lognormal(1.0, 0.6, m)]))
+        base = peak_kib(ext, path, "SELECT sum(x) FROM t")
+        q = peak_kib(ext, path, "SELECT quantile(x, 0.5) FROM t")
+        lines.append(f"| {n:,} | {base / 1024:.1f} MiB | {q / 1024:.1f} MiB | {(q - base) * 1024 / n:.2f} |")
+    report.sections.append(("Peak memory of exact quantile", [], "\n".join(lines) + "\n\nTarget: <= 8 bytes per row plus a constant."))
+
+
+def machine():
+    cpu = "unknown"
+    try:
+        for line in open("/proc/cpuinfo"):
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    import scipy
+    import sklearn
+
+    return (
+        f"- date: {datetime.date.today().isoformat()}\n"
+        f"- machine: {os.cpu_count()} cores, {cpu}, {platform.system()} {platform.release()}\n"
+        f"- SQLite (apsw) {apsw.sqlite_lib_version()}, apsw {apsw.apsw_version()}, Python {platform.python_version()}\n"
+        f"- numpy {np.__version__}, scipy {scipy.__version__}, scikit-learn {sklearn.__version__}\n"
+    )
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    ap.add_argument("--rows", type=int, default=10_000_000, help="rows of the one-column cases")
+    ap.add_argument("--model-rows", type=int, default=1_000_000, help="rows of the fit and mixture cases")
+    ap.add_argument("--ks-rows", type=int, default=2_000_000, help="rows of the KS case (two halves)")
+    ap.add_argument("--memory-rows", type=int, nargs="*", default=[10_000_000], help="sizes for the memory probe")
+    ap.add_argument("--reps", type=int, default=5)
+    ap.add_argument("--extension", default=str(ROOT / "ext" / "target" / "release" / "libogive.so"))
+    ap.add_argument("--out", default=str(ROOT / "bench" / "RESULTS.md"))
+    args = ap.parse_args()
+
+    report = Report()
+    bench_column(args.extension, args.rows, args.reps, report)
+    bench_grouped(args.extension, args.rows, args.reps, report)
+    bench_ks(args.extension, args.ks_rows, args.reps, report)
+    bench_mixture(args.extension, args.model_rows, max(1, args.reps // 2), report)
+    bench_weibull(args.extension, args.model_rows, args.reps, report)
+    bench_memory(args.extension, args.memory_rows, report)
+    header = (
+        "# Benchmark results\n\nProduced by `bash bench/run.sh "
+        + " ".join(sys.argv[1:])
+        + "`; do not edit by hand. Medians of repeated runs in one process.\n\n"
+        + machine()
+    )
+    pathlib.Path(args.out).write_text(report.markdown(header))
+    print(pathlib.Path(args.out).read_text())
+
+
+if __name__ == "__main__":
+    main()
