@@ -23,6 +23,12 @@ fn arities(d: &FunctionDef) -> String {
         .join(",")
 }
 
+/// "1 argument", "2 or 3 arguments".
+fn arg_count(d: &FunctionDef) -> String {
+    let n = arities(d).replace(',', " or ");
+    format!("{n} argument{}", if d.arities == [1] { "" } else { "s" })
+}
+
 /// The catalogue as printed: the table and markdown formats show the signature (which
 /// holds the name); CSV and JSON give the name, kind, signature, arities and summary.
 pub fn listing(format: Format) -> String {
@@ -87,21 +93,20 @@ fn wrap(text: &str, width: usize, indent: usize) -> String {
 pub fn entry(d: &FunctionDef, format: Format) -> String {
     match format {
         Format::Table => format!(
-            "{}  ({}, {} argument{})\n\n{}\n{}\nexample\n  {}\n  ⇒ {}\n",
+            "{}  ({}, {})\n\n{}\n{}\nexample\n  {}\n  ⇒ {}\n",
             d.signature,
             d.kind.word(),
-            arities(d).replace(',', " or "),
-            if d.arities == [1] { "" } else { "s" },
+            arg_count(d),
             wrap(d.summary, 88, 2),
             wrap(d.help, 88, 2),
             d.example,
             d.example_result
         ),
         Format::Markdown => format!(
-            "### `{}`\n\n{} ({}). {}\n\n{}\n\n```sql\n{}\n```\n\nresult: `{}`\n",
+            "### `{}`\n\n{}, {}: {}\n\n{}\n\n```sql\n{}\n```\n\nresult: `{}`\n",
             d.signature,
             d.kind.word(),
-            arities(d).replace(',', " or ") + " arguments",
+            arg_count(d),
             d.summary,
             d.help.split_whitespace().collect::<Vec<_>>().join(" "),
             d.example,

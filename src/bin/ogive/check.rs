@@ -50,6 +50,18 @@ pub struct CheckResult {
     pub error: Option<String>,
 }
 
+impl CheckResult {
+    /// The check's name, with its file and line unless the name is just those.
+    fn located(&self) -> String {
+        let at = format!("{}:{}", self.file, self.line);
+        if self.name == at {
+            at
+        } else {
+            format!("{} ({at})", self.name)
+        }
+    }
+}
+
 /// The most failing rows printed per check (the count is always complete).
 const SHOWN_ROWS: usize = 50;
 
@@ -156,10 +168,7 @@ pub fn report(
                 } else {
                     String::new()
                 };
-                let title = format!(
-                    "{} ({}:{}) failed on {n} of {} rows{more}",
-                    r.name, r.file, r.line, r.rows
-                );
+                let title = format!("{} failed on {n} of {} rows{more}", r.located(), r.rows);
                 printer.print(&Block::Rows {
                     title: Some(title),
                     meta,
@@ -168,14 +177,11 @@ pub fn report(
                 })?;
             }
             Status::Error => {
-                let text = format!(
-                    "{} ({}:{}) could not run:\n{}",
-                    r.name,
-                    r.file,
-                    r.line,
-                    r.error.as_deref().unwrap_or("")
-                );
-                printer.print(&Block::Note { text, meta })?;
+                printer.print(&Block::Error {
+                    title: format!("{} could not run", r.located()),
+                    detail: r.error.clone().unwrap_or_default(),
+                    meta,
+                })?;
             }
         }
     }

@@ -461,7 +461,7 @@ pub fn import(
     let mut meta = Map::new();
     meta.insert("file".into(), json!(file));
     meta.insert("table".into(), json!(table));
-    meta.insert("rows".into(), json!(shape.rows));
+    meta.insert("records".into(), json!(shape.rows));
     meta.insert("created".into(), json!(created));
     meta.insert("written".into(), json!(db_path.is_some()));
     let verb = if created { "created" } else { "appended to" };

@@ -64,6 +64,12 @@ pub enum Block {
         text: String,
         meta: Map<String, Json>,
     },
+    /// Something that failed: a title line and the error's text (several lines).
+    Error {
+        title: String,
+        detail: String,
+        meta: Map<String, Json>,
+    },
     /// A statement that returned no rows: its title and how many rows it changed. CSV
     /// prints nothing for it.
     Done {
@@ -116,10 +122,19 @@ impl<W: Write> Printer<W> {
         if text.is_empty() {
             return Ok(());
         }
-        let one_line = !matches!(block, Block::Rows { .. });
+        let one_line = match block {
+            Block::Rows { .. } => false,
+            Block::Note { text, .. } => !text.contains('\n'),
+            Block::Done { .. } => true,
+            Block::Error { .. } => false,
+        };
         let gap = match self.last {
             None => false,
-            Some(prev) => self.format != Format::Json && !(prev && one_line),
+            Some(prev) => match self.format {
+                Format::Json => false,
+                Format::Table | Format::Csv => !(prev && one_line),
+                Format::Markdown => true,
+            },
         };
         if gap {
             writeln!(self.out)?;
@@ -199,6 +214,22 @@ pub fn render(format: Format, block: &Block) -> String {
             format!("{}\n", Json::Object(obj))
         }
         (Format::Csv, Block::Done { .. }) => String::new(),
+        (Format::Json, Block::Error { detail, meta, .. }) => {
+            let mut obj = meta.clone();
+            obj.insert("error".into(), json!(detail));
+            format!("{}\n", Json::Object(obj))
+        }
+        (Format::Table, Block::Error { title, detail, .. }) => format!("▸ {title}\n{detail}\n"),
+        (Format::Csv, Block::Error { title, detail, .. }) => {
+            let mut s = format!("# {title}\n");
+            for l in detail.lines() {
+                s.push_str(&format!("# {l}\n"));
+            }
+            s
+        }
+        (Format::Markdown, Block::Error { title, detail, .. }) => {
+            format!("**{}**\n\n```\n{detail}\n```\n", md_escape(title))
+        }
         (Format::Table, Block::Done { title, changed, .. }) => {
             format!("▸ {title} · {}\n", done(*changed))
         }

@@ -218,14 +218,19 @@ fn execute(session: &Session, text: String, interactive: bool) -> Result<(), Fai
                     })
                     .map_err(Failure::output)?;
                 if session.format == Format::Table {
-                    println!("{n} row{} · {elapsed:.3} s", if n == 1 { "" } else { "s" });
+                    println!(
+                        "{n} row{}{}",
+                        if n == 1 { "" } else { "s" },
+                        took(interactive, elapsed)
+                    );
                 }
             }
             Ok(Outcome::Changed(n)) => {
                 if session.format == Format::Table {
                     println!(
-                        "done, {n} row{} changed · {elapsed:.3} s",
-                        if n == 1 { "" } else { "s" }
+                        "done, {n} row{} changed{}",
+                        if n == 1 { "" } else { "s" },
+                        took(interactive, elapsed)
                     );
                 }
             }
@@ -252,6 +257,15 @@ fn execute(session: &Session, text: String, interactive: bool) -> Result<(), Fai
         }
     }
     Ok(())
+}
+
+/// The time a statement took, shown at a terminal only (piped output stays reproducible).
+fn took(interactive: bool, seconds: f64) -> String {
+    if interactive {
+        format!(" · {seconds:.3} s")
+    } else {
+        String::new()
+    }
 }
 
 /// Handles a line that is one of the shell's words. Some(Ok(true)): handled, go on;
