@@ -23,7 +23,7 @@ use serde_json::{Map, json};
 
 use crate::Failure;
 use crate::db::{self, ResultSet, quote_ident};
-use crate::infer::{Class, classify};
+use crate::infer::{Class, classify, trim_spaces};
 use crate::interrupt;
 use crate::output::{Block, Format, Printer};
 
@@ -383,12 +383,10 @@ pub fn load(
                 ValueRef::Null
             } else {
                 match shape.classes[c] {
-                    Class::Integer => f
-                        .trim_matches(' ')
+                    Class::Integer => trim_spaces(f)
                         .parse::<i64>()
                         .map_or(ValueRef::Text(f.as_bytes()), ValueRef::Integer),
-                    Class::Real => f
-                        .trim_matches(' ')
+                    Class::Real => trim_spaces(f)
                         .parse::<f64>()
                         .map_or(ValueRef::Text(f.as_bytes()), ValueRef::Real),
                     Class::Empty | Class::Text => ValueRef::Text(f.as_bytes()),

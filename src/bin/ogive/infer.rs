@@ -22,7 +22,7 @@ pub fn classify(cell: &str) -> Class {
     if cell.is_empty() {
         return Class::Empty;
     }
-    let s = cell.trim_matches(' ');
+    let s = trim_spaces(cell);
     let b = s.as_bytes();
     let digits_from = usize::from(matches!(b.first(), Some(b'+' | b'-')));
     let body = &b[digits_from..];
@@ -34,18 +34,37 @@ pub fn classify(cell: &str) -> Class {
         return Class::Text;
     }
     if int_len == body.len() {
-        return if s.parse::<i64>().is_ok() {
+        // Up to 18 digits always fit in an i64; longer ones are checked.
+        return if int_len <= 18 || s.parse::<i64>().is_ok() {
             Class::Integer
-        } else {
+        } else if s.parse::<f64>().is_ok_and(f64::is_finite) {
             Class::Real
+        } else {
+            Class::Text
         };
     }
-    if !decimal_syntax(&body[int_len..], int_len > 0) {
+    let rest = &body[int_len..];
+    if !decimal_syntax(rest, int_len > 0) {
         return Class::Text;
+    }
+    // Without an exponent a decimal number is finite; with one it may overflow.
+    if !rest.iter().any(|c| matches!(c, b'e' | b'E')) {
+        return Class::Real;
     }
     match s.parse::<f64>() {
         Ok(v) if v.is_finite() => Class::Real,
         _ => Class::Text,
+    }
+}
+
+/// The cell without surrounding spaces (a quick look at both ends first: most cells have
+/// none).
+pub fn trim_spaces(cell: &str) -> &str {
+    let b = cell.as_bytes();
+    if b.first() == Some(&b' ') || b.last() == Some(&b' ') {
+        cell.trim_matches(' ')
+    } else {
+        cell
     }
 }
 
@@ -116,6 +135,9 @@ mod tests {
             ("1e-3", Class::Real),
             ("2.5E+10", Class::Real),
             ("1e999", Class::Text),
+            ("123456789012345678", Class::Integer),
+            ("1234567890123456789012", Class::Real),
+            (&"9".repeat(400), Class::Text),
             ("007", Class::Text),
             ("01.5", Class::Text),
             ("inf", Class::Text),
