@@ -301,6 +301,60 @@ fn golden_prompt_from_a_pipe() {
     );
 }
 
+#[test]
+fn plot_writes_an_svg_with_title_axes_and_legend() {
+    let tmp = TempDir::new("plot");
+    let svg = tmp.path("fig.svg");
+    let out = ogive(&["plot", "plot.sql", "--out", svg.to_str().unwrap()], None);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = std::fs::read_to_string(&svg).unwrap();
+    let doc = roxmltree::Document::parse(&text).expect("well-formed SVG");
+    let texts: Vec<&str> = doc.descendants().filter_map(|n| n.text()).collect();
+    for want in [
+        "Invented curve points for the plot verb's test",
+        "x",
+        "y",
+        "up",
+        "down",
+        "0.5",
+    ] {
+        assert!(texts.contains(&want), "{want:?} missing from {texts:?}");
+    }
+    let paths = doc.descendants().filter(|n| n.has_tag_name("path")).count();
+    assert_eq!(paths, 2, "one line per series");
+
+    // Text x draws as bars only.
+    let bars = tmp.path("bars.svg");
+    let out = ogive(
+        &[
+            "plot",
+            "plot_text_x.sql",
+            "--out",
+            bars.to_str().unwrap(),
+            "--kind",
+            "bars",
+            "--title",
+            "Counts",
+        ],
+        None,
+    );
+    assert!(out.status.success());
+    let text = std::fs::read_to_string(&bars).unwrap();
+    assert!(text.contains(">Counts</text>"));
+    let lines = tmp.path("lines.svg");
+    let out = ogive(
+        &["plot", "plot_text_x.sql", "--out", lines.to_str().unwrap()],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("only --kind bars draws categories"));
+    assert!(!lines.exists());
+}
+
 /// `ogive functions` lists every registry row with its name, signature and summary, so the
 /// registry, the README table (tests/registry.rs) and the shell cannot drift apart.
 #[test]

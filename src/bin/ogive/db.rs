@@ -173,7 +173,7 @@ pub fn execute(
                 conn.total_changes().saturating_sub(before),
             ));
         }
-        let columns: Vec<String> = stmt.column_names().into_iter().map(String::from).collect();
+        let columns: Vec<String> = stmt.column_names().map(String::from).collect();
         let mut out = Vec::new();
         let mut rows = stmt.raw_query();
         while let Some(row) = rows.next().map_err(sql_error)? {

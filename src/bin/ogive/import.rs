@@ -229,6 +229,18 @@ impl Progress {
         let _ = err.flush();
     }
 
+    /// Every 65,536 rows: stops on Ctrl-C, else redraws.
+    fn every(&mut self, done: usize, rows: u64) -> Result<(), Failure> {
+        if rows.is_multiple_of(65_536) {
+            if interrupt::requested() {
+                self.finish();
+                return Err(Failure::interrupted());
+            }
+            self.tick(done, rows);
+        }
+        Ok(())
+    }
+
     fn finish(&mut self) {
         if self.last.is_some() {
             let mut err = std::io::stderr().lock();
@@ -296,13 +308,7 @@ pub fn survey(file: &str, text: &str) -> Result<Shape, Failure> {
             }
         }
         rows += 1;
-        if rows % 65_536 == 0 {
-            if interrupt::requested() {
-                progress.finish();
-                return Err(Failure::interrupted());
-            }
-            progress.tick(reader.position(), rows);
-        }
+        progress.every(reader.position(), rows)?;
     }
     progress.finish();
     Ok(Shape {
@@ -400,13 +406,7 @@ pub fn load(
             .raw_execute()
             .map_err(|e| Failure::failed(format!("{file}:{line}: {e}; nothing was imported")))?;
         rows += 1;
-        if rows % 65_536 == 0 {
-            if interrupt::requested() {
-                progress.finish();
-                return Err(Failure::interrupted());
-            }
-            progress.tick(reader.position(), rows);
-        }
+        progress.every(reader.position(), rows)?;
     }
     progress.finish();
     drop(insert);

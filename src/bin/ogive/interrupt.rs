@@ -61,11 +61,8 @@ pub fn watch<T>(conn: &Connection, work: impl FnOnce() -> T) -> T {
         scope.spawn(move || {
             let start = Instant::now();
             let mut drawn = false;
-            loop {
-                match wait.recv_timeout(Duration::from_millis(40)) {
-                    Err(RecvTimeoutError::Timeout) => {}
-                    _ => break,
-                }
+            while let Err(RecvTimeoutError::Timeout) = wait.recv_timeout(Duration::from_millis(40))
+            {
                 if requested() {
                     handle.interrupt();
                 }

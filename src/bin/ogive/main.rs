@@ -22,7 +22,7 @@ mod script;
 
 use std::path::PathBuf;
 
-use clap::{Parser, Subcommand};
+use clap::{Args, Parser, Subcommand};
 
 use output::Format;
 
@@ -92,6 +92,17 @@ struct Cli {
     format: Format,
 }
 
+/// The database a file runs on, and the values of its named parameters.
+#[derive(Args)]
+struct On {
+    /// Database file (must exist; default: a new in-memory database)
+    #[arg(long, value_name = "PATH")]
+    db: Option<PathBuf>,
+    /// Binds :NAME (or @NAME, $NAME) in the statements; repeat for more
+    #[arg(long = "param", value_name = "NAME=VALUE")]
+    params: Vec<String>,
+}
+
 #[derive(Subcommand)]
 enum Verb {
     /// Run .sql files: every statement, each result set under a line naming its file and statement
@@ -99,12 +110,8 @@ enum Verb {
         /// The .sql files, run in order
         #[arg(required = true, value_name = "FILE.sql")]
         files: Vec<String>,
-        /// Database file (must exist; default: a new in-memory database)
-        #[arg(long, value_name = "PATH")]
-        db: Option<PathBuf>,
-        /// Binds :NAME (or @NAME, $NAME) in the statements; repeat for more
-        #[arg(long = "param", value_name = "NAME=VALUE")]
-        params: Vec<String>,
+        #[command(flatten)]
+        on: On,
         #[arg(long, value_enum, default_value_t = Format::Table)]
         format: Format,
     },
@@ -113,12 +120,8 @@ enum Verb {
         /// The check files; a comment line directly above a query names that check
         #[arg(required = true, value_name = "FILE.sql")]
         files: Vec<String>,
-        /// Database file (must exist; default: a new in-memory database)
-        #[arg(long, value_name = "PATH")]
-        db: Option<PathBuf>,
-        /// Binds :NAME in the statements; repeat for more
-        #[arg(long = "param", value_name = "NAME=VALUE")]
-        params: Vec<String>,
+        #[command(flatten)]
+        on: On,
         #[arg(long, value_enum, default_value_t = Format::Table)]
         format: Format,
         /// Also write a JUnit XML report for CI servers
@@ -153,12 +156,8 @@ enum Verb {
         /// Title (default: the comment line above the query)
         #[arg(long)]
         title: Option<String>,
-        /// Database file (must exist; default: a new in-memory database)
-        #[arg(long, value_name = "PATH")]
-        db: Option<PathBuf>,
-        /// Binds :NAME in the statements; repeat for more
-        #[arg(long = "param", value_name = "NAME=VALUE")]
-        params: Vec<String>,
+        #[command(flatten)]
+        on: On,
     },
     /// List ogive's SQL functions, or show one function's full help and example
     Functions {
@@ -185,19 +184,21 @@ fn main() {
     let cli = Cli::parse();
     let result = match cli.verb {
         None => repl::prompt(cli.db.as_deref(), cli.format),
-        Some(Verb::Run {
-            files,
-            db,
-            params,
-            format,
-        }) => run::run(&files, db.as_deref(), &params, format),
+        Some(Verb::Run { files, on, format }) => {
+            run::run(&files, on.db.as_deref(), &on.params, format)
+        }
         Some(Verb::Check {
             files,
-            db,
-            params,
+            on,
             format,
             report,
-        }) => check::check(&files, db.as_deref(), &params, format, report.as_deref()),
+        }) => check::check(
+            &files,
+            on.db.as_deref(),
+            &on.params,
+            format,
+            report.as_deref(),
+        ),
         Some(Verb::Import {
             file,
             table,
@@ -209,9 +210,15 @@ fn main() {
             out,
             kind,
             title,
-            db,
-            params,
-        }) => plot::plot_file(&file, &out, kind, title.as_deref(), db.as_deref(), &params),
+            on,
+        }) => plot::plot_file(
+            &file,
+            &out,
+            kind,
+            title.as_deref(),
+            on.db.as_deref(),
+            &on.params,
+        ),
         Some(Verb::Functions { name, format }) => catalogue::functions(name.as_deref(), format),
         Some(Verb::Demo {
             out_dir,

@@ -180,9 +180,7 @@ pub fn prompt(db_path: Option<&Path>, format: Format) -> Result<i32, Failure> {
         if script::is_complete(&pending) {
             input.remember(&pending);
             let text = std::mem::take(&mut pending);
-            if let Err(f) = execute(&session, text, interactive) {
-                return Err(f);
-            }
+            execute(&session, text, interactive)?;
         }
     }
     if !pending.trim().is_empty() {

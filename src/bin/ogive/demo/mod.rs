@@ -94,7 +94,7 @@ pub fn build(conn: &Connection) -> Result<u64, Failure> {
                     Err(e) => failure = Some(e),
                 }
             },
-            || interrupt::requested(),
+            interrupt::requested,
         );
         if let Some(e) = failure {
             return Err(sql_err(e));
