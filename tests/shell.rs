@@ -675,9 +675,11 @@ fn ctrl_c_cancels_a_batch_run_with_status_130() {
     assert!(String::from_utf8_lossy(&out.stderr).contains("cancelled (Ctrl-C)"));
 }
 
+#[cfg(unix)]
 /// A tmux server of our own (its own socket), killed on drop.
 struct Tmux(String);
 
+#[cfg(unix)]
 impl Tmux {
     fn cmd(&self, args: &[&str]) -> Output {
         Command::new("tmux")
@@ -715,12 +717,14 @@ impl Tmux {
     }
 }
 
+#[cfg(unix)]
 impl Drop for Tmux {
     fn drop(&mut self) {
         let _ = self.cmd(&["kill-server"]);
     }
 }
 
+#[cfg(unix)]
 #[test]
 fn a_session_at_the_prompt_runs_a_query_cancels_one_and_leaves() {
     let tmp = TempDir::new("tmux");

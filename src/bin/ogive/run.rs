@@ -67,13 +67,15 @@ impl Source {
         let first = stmt.line;
         let lines: Vec<&str> = stmt.text.lines().collect();
         let last = first + lines.len().saturating_sub(1);
-        // Long statements: the first two lines, then three lines up to the error line.
+        // Long statements: the first two lines, then the lines around the error (or, with
+        // no position, the next four), and `…` for what is left out.
         let shown: Vec<usize> = if lines.len() <= 8 {
             (first..=last).collect()
         } else {
+            let focus = if offset.is_some() { line } else { first + 4 };
             let mut v: Vec<usize> = (first..first + 2).collect();
-            let from = line.saturating_sub(2).max(first + 2);
-            v.extend(from..=(line + 1).min(last));
+            let from = focus.saturating_sub(2).max(first + 2);
+            v.extend(from..=(focus + 1).min(last));
             v
         };
         let width = last.to_string().len();
@@ -96,6 +98,9 @@ impl Source {
             if offset.is_some() && n == line {
                 s.push_str(&format!("{:>width$} ┆ {}^\n", "", " ".repeat(col - 1)));
             }
+        }
+        if prev.is_some_and(|p| p < last) {
+            s.push_str(&format!("{:>width$} ┆ …\n", ""));
         }
         s.trim_end().to_string()
     }
