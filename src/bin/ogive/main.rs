@@ -1,1 +1,239 @@
-fn main() {}
+//! `ogive`: the companion shell. It opens a database (in memory unless told otherwise),
+//! registers every ogive function, and runs saved query and check files, imports CSV,
+//! draws plots, lists the functions, builds the demo, or reads SQL at a prompt.
+//!
+//! Exit status: 0 success; 1 a statement, check or import failed; 2 a usage or file
+//! problem (nothing ran); 130 cancelled with Ctrl-C.
+//!
+//! The shell holds no statistics: every number it shows comes from SQL.
+
+mod catalogue;
+mod check;
+mod db;
+mod demo;
+mod import;
+mod infer;
+mod interrupt;
+mod output;
+mod plot;
+mod repl;
+mod run;
+mod script;
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand};
+
+use output::Format;
+
+/// Why a verb stopped, and the exit status that says so.
+#[derive(Debug)]
+pub struct Failure {
+    pub code: i32,
+    pub message: String,
+}
+
+impl Failure {
+    /// A usage or file problem: status 2.
+    pub fn usage(message: impl Into<String>) -> Failure {
+        Failure {
+            code: 2,
+            message: message.into(),
+        }
+    }
+
+    /// The work ran and failed: status 1.
+    pub fn failed(message: impl Into<String>) -> Failure {
+        Failure {
+            code: 1,
+            message: message.into(),
+        }
+    }
+
+    /// Ctrl-C: status 130.
+    pub fn interrupted() -> Failure {
+        Failure {
+            code: 130,
+            message: "cancelled (Ctrl-C)".to_string(),
+        }
+    }
+
+    /// Standard output went away or failed. A closed pipe (`ogive run q.sql | head`) is
+    /// not an error worth a message.
+    pub fn output(e: std::io::Error) -> Failure {
+        if e.kind() == std::io::ErrorKind::BrokenPipe {
+            Failure {
+                code: 0,
+                message: String::new(),
+            }
+        } else {
+            Failure::failed(format!("cannot write the output: {e}"))
+        }
+    }
+}
+
+#[derive(Parser)]
+#[command(
+    name = "ogive",
+    version,
+    about = "Distribution questions in SQL: run saved queries and checks, import CSV, draw plots",
+    long_about = "Distribution questions in SQL. Without a verb, ogive reads SQL at a prompt \
+                  (type help there). Exit status: 0 success, 1 a statement, check or import \
+                  failed, 2 a usage or file problem, 130 cancelled with Ctrl-C."
+)]
+struct Cli {
+    #[command(subcommand)]
+    verb: Option<Verb>,
+    /// Database file for the prompt (default: a new in-memory database)
+    #[arg(long, value_name = "PATH")]
+    db: Option<PathBuf>,
+    /// Output format at the prompt
+    #[arg(long, value_enum, default_value_t = Format::Table)]
+    format: Format,
+}
+
+/// The database a file runs on, and the values of its named parameters.
+#[derive(Args)]
+struct On {
+    /// Database file (must exist; default: a new in-memory database)
+    #[arg(long, value_name = "PATH")]
+    db: Option<PathBuf>,
+    /// Binds :NAME (or @NAME, $NAME) in the statements; repeat for more
+    #[arg(long = "param", value_name = "NAME=VALUE")]
+    params: Vec<String>,
+}
+
+#[derive(Subcommand)]
+enum Verb {
+    /// Run .sql files: every statement, each result set under a line naming its file and statement
+    Run {
+        /// The .sql files, run in order
+        #[arg(required = true, value_name = "FILE.sql")]
+        files: Vec<String>,
+        #[command(flatten)]
+        on: On,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+    },
+    /// Run check files: each query is a check that fails when a row's ok column is false or NULL
+    Check {
+        /// The check files; a comment line directly above a query names that check
+        #[arg(required = true, value_name = "FILE.sql")]
+        files: Vec<String>,
+        #[command(flatten)]
+        on: On,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+        /// Also write a JUnit XML report for CI servers
+        #[arg(long, value_name = "FILE.xml")]
+        report: Option<PathBuf>,
+    },
+    /// Import a CSV file (header row; INTEGER, REAL or TEXT columns; empty cells NULL) in one transaction
+    Import {
+        #[arg(value_name = "FILE.csv")]
+        file: String,
+        /// Table to create, or to append to when it exists
+        #[arg(long, value_name = "NAME")]
+        table: String,
+        /// Database file, created if missing (without it, the file is only checked)
+        #[arg(long, value_name = "PATH")]
+        db: Option<PathBuf>,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+    },
+    /// Draw a query's rows (x, y [, series]) as an SVG plot
+    Plot {
+        /// The .sql file; its last query gives the rows
+        #[arg(value_name = "FILE.sql")]
+        file: String,
+        /// The SVG file to write
+        #[arg(long, value_name = "FIG.svg")]
+        out: PathBuf,
+        /// steps (cdfs), lines (curves) or bars (histograms, categories); default: the
+        /// query's `-- kind:` comment, else lines
+        #[arg(long, value_enum)]
+        kind: Option<plot::Kind>,
+        /// Title (default: the comment line above the query)
+        #[arg(long)]
+        title: Option<String>,
+        #[command(flatten)]
+        on: On,
+    },
+    /// List ogive's SQL functions, or show one function's full help and example
+    Functions {
+        /// A function name
+        name: Option<String>,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+    },
+    /// Build the invented refrigerated-trailer demo, run its queries and checks, draw its plots
+    Demo {
+        /// Directory for the demo plots
+        #[arg(long, value_name = "DIR", default_value = "ogive-demo")]
+        out_dir: PathBuf,
+        /// Also keep the demo database in this new file
+        #[arg(long, value_name = "PATH")]
+        db: Option<PathBuf>,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+    },
+}
+
+fn main() {
+    interrupt::install();
+    let cli = Cli::parse();
+    let result = match cli.verb {
+        None => repl::prompt(cli.db.as_deref(), cli.format),
+        Some(Verb::Run { files, on, format }) => {
+            run::run(&files, on.db.as_deref(), &on.params, format)
+        }
+        Some(Verb::Check {
+            files,
+            on,
+            format,
+            report,
+        }) => check::check(
+            &files,
+            on.db.as_deref(),
+            &on.params,
+            format,
+            report.as_deref(),
+        ),
+        Some(Verb::Import {
+            file,
+            table,
+            db,
+            format,
+        }) => import::import(&file, &table, db.as_deref(), format),
+        Some(Verb::Plot {
+            file,
+            out,
+            kind,
+            title,
+            on,
+        }) => plot::plot_file(
+            &file,
+            &out,
+            kind,
+            title.as_deref(),
+            on.db.as_deref(),
+            &on.params,
+        ),
+        Some(Verb::Functions { name, format }) => catalogue::functions(name.as_deref(), format),
+        Some(Verb::Demo {
+            out_dir,
+            db,
+            format,
+        }) => demo::demo(&out_dir, db.as_deref(), format),
+    };
+    let code = match result {
+        Ok(code) => code,
+        Err(f) => {
+            if !f.message.is_empty() {
+                eprintln!("ogive: {}", f.message);
+            }
+            f.code
+        }
+    };
+    std::process::exit(code);
+}

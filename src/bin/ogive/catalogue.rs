@@ -1,0 +1,191 @@
+//! `ogive functions [NAME]`: the catalogue, read from the library's registry (the same rows
+//! that register the functions and write the README's table).
+
+use std::io::Write;
+
+use ogive::functions::{self, FunctionDef};
+use rusqlite::types::Value;
+use serde_json::{Map, json};
+
+use crate::Failure;
+use crate::db::ResultSet;
+use crate::output::{Block, Format};
+
+fn text(s: &str) -> Value {
+    Value::Text(s.to_string())
+}
+
+fn arities(d: &FunctionDef) -> String {
+    d.arities
+        .iter()
+        .map(i32::to_string)
+        .collect::<Vec<_>>()
+        .join(",")
+}
+
+/// "1 argument", "2 or 3 arguments".
+fn arg_count(d: &FunctionDef) -> String {
+    let n = arities(d).replace(',', " or ");
+    format!("{n} argument{}", if d.arities == [1] { "" } else { "s" })
+}
+
+/// The catalogue as printed: the table and markdown formats show the signature (which
+/// holds the name); CSV and JSON give the name, kind, signature, arities and summary.
+pub fn listing(format: Format) -> String {
+    match format {
+        Format::Markdown => functions::markdown_table(),
+        Format::Table => {
+            let rows = ResultSet {
+                columns: ["function", "kind", "summary"].map(String::from).to_vec(),
+                rows: functions::all()
+                    .map(|d| vec![text(d.signature), text(d.kind.word()), text(d.summary)])
+                    .collect(),
+            };
+            let n = rows.rows.len();
+            format!(
+                "{}\n{n} functions; `ogive functions NAME` shows one in full\n",
+                crate::output::table(&rows)
+            )
+        }
+        Format::Csv | Format::Json => {
+            let rows = ResultSet {
+                columns: ["name", "kind", "signature", "arities", "summary"]
+                    .map(String::from)
+                    .to_vec(),
+                rows: functions::all()
+                    .map(|d| {
+                        vec![
+                            text(d.name),
+                            text(d.kind.word()),
+                            text(d.signature),
+                            text(&arities(d)),
+                            text(d.summary),
+                        ]
+                    })
+                    .collect(),
+            };
+            crate::output::render(format, &Block::rows(None, Map::new(), rows))
+        }
+    }
+}
+
+/// Wraps text at `width` columns, indenting every line by `indent` spaces.
+fn wrap(text: &str, width: usize, indent: usize) -> String {
+    let mut out = String::new();
+    let mut line = String::new();
+    for word in text.split_whitespace() {
+        if !line.is_empty() && indent + line.chars().count() + 1 + word.chars().count() > width {
+            out.push_str(&format!("{}{line}\n", " ".repeat(indent)));
+            line.clear();
+        }
+        if !line.is_empty() {
+            line.push(' ');
+        }
+        line.push_str(word);
+    }
+    if !line.is_empty() {
+        out.push_str(&format!("{}{line}\n", " ".repeat(indent)));
+    }
+    out
+}
+
+/// One function's full entry.
+pub fn entry(d: &FunctionDef, format: Format) -> String {
+    match format {
+        Format::Table => format!(
+            "{}  ({}, {})\n\n{}\n{}\nexample\n  {}\n  ⇒ {}\n",
+            d.signature,
+            d.kind.word(),
+            arg_count(d),
+            wrap(d.summary, 88, 2),
+            wrap(d.help, 88, 2),
+            d.example,
+            d.example_result
+        ),
+        Format::Markdown => format!(
+            "### `{}`\n\n{}, {}: {}\n\n{}\n\n```sql\n{}\n```\n\nresult: `{}`\n",
+            d.signature,
+            d.kind.word(),
+            arg_count(d),
+            d.summary,
+            d.help.split_whitespace().collect::<Vec<_>>().join(" "),
+            d.example,
+            d.example_result
+        ),
+        Format::Json => format!(
+            "{}\n",
+            json!({
+                "name": d.name,
+                "kind": d.kind.word(),
+                "signature": d.signature,
+                "arities": d.arities,
+                "summary": d.summary,
+                "help": d.help.split_whitespace().collect::<Vec<_>>().join(" "),
+                "example": d.example,
+                "example_result": d.example_result,
+            })
+        ),
+        Format::Csv => {
+            let rows = ResultSet {
+                columns: [
+                    "name",
+                    "kind",
+                    "signature",
+                    "arities",
+                    "summary",
+                    "help",
+                    "example",
+                    "example_result",
+                ]
+                .map(String::from)
+                .to_vec(),
+                rows: vec![vec![
+                    text(d.name),
+                    text(d.kind.word()),
+                    text(d.signature),
+                    text(&arities(d)),
+                    text(d.summary),
+                    text(&d.help.split_whitespace().collect::<Vec<_>>().join(" ")),
+                    text(d.example),
+                    text(d.example_result),
+                ]],
+            };
+            crate::output::render(format, &Block::rows(None, Map::new(), rows))
+        }
+    }
+}
+
+/// The page for `functions NAME`, or a usage error naming close matches.
+pub fn lookup(name: &str, format: Format) -> Result<String, Failure> {
+    match functions::find(name) {
+        Some(d) => Ok(entry(d, format)),
+        None => {
+            let lower = name.to_ascii_lowercase();
+            let near: Vec<&str> = functions::all()
+                .map(|d| d.name)
+                .filter(|n| n.contains(&lower) || lower.contains(n))
+                .collect();
+            let hint = if near.is_empty() {
+                "; `ogive functions` lists them all".to_string()
+            } else {
+                format!("; did you mean {}?", near.join(", "))
+            };
+            Err(Failure::usage(format!(
+                "ogive has no function named '{name}'{hint}"
+            )))
+        }
+    }
+}
+
+/// The `functions` verb.
+pub fn functions(name: Option<&str>, format: Format) -> Result<i32, Failure> {
+    let page = match name {
+        None => listing(format),
+        Some(n) => lookup(n, format)?,
+    };
+    std::io::stdout()
+        .lock()
+        .write_all(page.as_bytes())
+        .map_err(Failure::output)?;
+    Ok(0)
+}

@@ -1,0 +1,234 @@
+//! Opening databases and running one statement: binding named parameters, collecting its
+//! rows, and turning SQLite's errors into positions in the file.
+
+use std::collections::{BTreeMap, BTreeSet};
+use std::path::Path;
+
+use rusqlite::types::Value;
+use rusqlite::{Connection, OpenFlags};
+
+use crate::Failure;
+use crate::infer;
+use crate::interrupt;
+
+/// A statement's rows, with its column names.
+#[derive(Debug, Clone, Default)]
+pub struct ResultSet {
+    pub columns: Vec<String>,
+    pub rows: Vec<Vec<Value>>,
+}
+
+/// What a statement gave back.
+#[derive(Debug)]
+pub enum Outcome {
+    /// A statement with result columns (possibly no rows).
+    Rows(ResultSet),
+    /// A statement without result columns, and how many rows it changed.
+    Changed(u64),
+}
+
+/// Why a statement failed.
+#[derive(Debug)]
+pub enum StatementError {
+    /// SQLite's message, and the byte offset in the statement's text where known.
+    Sql {
+        message: String,
+        offset: Option<usize>,
+    },
+    /// Ctrl-C.
+    Interrupted,
+}
+
+/// Named parameters from the command line (`--param NAME=VALUE`), and which were used.
+#[derive(Debug, Default)]
+pub struct Params {
+    values: BTreeMap<String, Value>,
+    used: BTreeSet<String>,
+}
+
+impl Params {
+    /// Parses `NAME=VALUE` pairs; a value is INTEGER or REAL when it reads as one (by the
+    /// same rule as CSV import), else TEXT. A name may carry its SQL prefix (`:`, `@`, `$`).
+    pub fn parse(pairs: &[String]) -> Result<Params, Failure> {
+        let mut values = BTreeMap::new();
+        for pair in pairs {
+            let Some((name, value)) = pair.split_once('=') else {
+                return Err(Failure::usage(format!(
+                    "--param wants NAME=VALUE, got '{pair}'"
+                )));
+            };
+            let name = name.trim().trim_start_matches([':', '@', '$']);
+            if name.is_empty() {
+                return Err(Failure::usage(format!(
+                    "--param wants NAME=VALUE with a name, got '{pair}'"
+                )));
+            }
+            values.insert(name.to_string(), infer::value(value));
+        }
+        Ok(Params {
+            values,
+            used: BTreeSet::new(),
+        })
+    }
+
+    /// The names given but never asked for by any statement.
+    pub fn unused(&self) -> Vec<&str> {
+        self.values
+            .keys()
+            .filter(|k| !self.used.contains(*k))
+            .map(String::as_str)
+            .collect()
+    }
+}
+
+/// Opens the database a verb works on: in memory when `path` is None. An existing file is
+/// opened read-write; a missing one is created only when `create` is set (the `import` and
+/// `demo` verbs and the prompt's `open`), so `run` and `check` never leave a file behind
+/// that their statements did not ask for. Every ogive function is registered.
+pub fn open(path: Option<&Path>, create: bool) -> Result<Connection, Failure> {
+    let conn = match path {
+        None => Connection::open_in_memory(),
+        Some(p) => {
+            if !create && !p.exists() {
+                return Err(Failure::usage(format!(
+                    "no database at {}: run and check open existing databases only (leave out \
+                     --db for an empty in-memory one, or create it with ogive import)",
+                    p.display()
+                )));
+            }
+            let mut flags = OpenFlags::SQLITE_OPEN_READ_WRITE
+                | OpenFlags::SQLITE_OPEN_URI
+                | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+            if create {
+                flags |= OpenFlags::SQLITE_OPEN_CREATE;
+            }
+            Connection::open_with_flags(p, flags)
+        }
+    };
+    let where_ = path.map_or("the in-memory database".to_string(), |p| {
+        p.display().to_string()
+    });
+    let conn = conn.map_err(|e| Failure::usage(format!("cannot open {where_}: {e}")))?;
+    // Reading the schema is the first real access: a file that is not a database fails here.
+    conn.query_row("SELECT count(*) FROM sqlite_schema", [], |_| Ok(()))
+        .map_err(|e| Failure::usage(format!("cannot read {where_} as an SQLite database: {e}")))?;
+    ogive::register(&conn)
+        .map_err(|e| Failure::usage(format!("cannot register ogive's functions: {e}")))?;
+    Ok(conn)
+}
+
+/// Runs one statement's text with named parameters bound (never pasted into the text),
+/// cancelling on Ctrl-C.
+pub fn execute(
+    conn: &Connection,
+    sql: &str,
+    params: &mut Params,
+) -> Result<Outcome, StatementError> {
+    let sql_error = |e: rusqlite::Error| match e {
+        rusqlite::Error::SqliteFailure(f, _)
+            if f.code == rusqlite::ErrorCode::OperationInterrupted =>
+        {
+            StatementError::Interrupted
+        }
+        rusqlite::Error::SqlInputError { msg, offset, .. } => StatementError::Sql {
+            message: msg,
+            offset: usize::try_from(offset).ok(),
+        },
+        rusqlite::Error::SqliteFailure(_, Some(msg)) => StatementError::Sql {
+            message: msg,
+            offset: None,
+        },
+        other => StatementError::Sql {
+            message: other.to_string(),
+            offset: None,
+        },
+    };
+    interrupt::watch(conn, || {
+        let mut stmt = conn.prepare(sql).map_err(sql_error)?;
+        for i in 1..=stmt.parameter_count() {
+            let Some(name) = stmt.parameter_name(i).map(str::to_string) else {
+                return Err(StatementError::Sql {
+                    message: "positional parameters (?) cannot be bound; name the parameter, \
+                              for example :limit, and give --param limit=VALUE"
+                        .to_string(),
+                    offset: sql.find('?'),
+                });
+            };
+            let key = name.trim_start_matches([':', '@', '$']).to_string();
+            let Some(value) = params.values.get(&key) else {
+                return Err(StatementError::Sql {
+                    message: format!("the statement uses {name}; give it with --param {key}=VALUE"),
+                    offset: sql.find(&name),
+                });
+            };
+            stmt.raw_bind_parameter(i, value).map_err(sql_error)?;
+            params.used.insert(key);
+        }
+        let ncol = stmt.column_count();
+        if ncol == 0 {
+            let before = conn.total_changes();
+            let mut rows = stmt.raw_query();
+            while rows.next().map_err(sql_error)?.is_some() {}
+            return Ok(Outcome::Changed(
+                conn.total_changes().saturating_sub(before),
+            ));
+        }
+        let columns: Vec<String> = stmt.column_names().map(String::from).collect();
+        let mut out = Vec::new();
+        let mut rows = stmt.raw_query();
+        while let Some(row) = rows.next().map_err(sql_error)? {
+            let mut values = Vec::with_capacity(ncol);
+            for c in 0..ncol {
+                values.push(row.get::<_, Value>(c).map_err(sql_error)?);
+            }
+            out.push(values);
+        }
+        Ok(Outcome::Rows(ResultSet { columns, rows: out }))
+    })
+}
+
+/// The user's tables and views, with their row counts, for the prompt's `tables`.
+pub fn tables(conn: &Connection) -> rusqlite::Result<ResultSet> {
+    let mut stmt = conn.prepare(
+        "SELECT name, type FROM sqlite_schema WHERE type IN ('table', 'view') \
+         AND name NOT LIKE 'sqlite\\_%' ESCAPE '\\' ORDER BY name",
+    )?;
+    let names: Vec<(String, String)> = stmt
+        .query_map([], |r| Ok((r.get(0)?, r.get(1)?)))?
+        .collect::<rusqlite::Result<_>>()?;
+    let mut rows = Vec::new();
+    for (name, kind) in names {
+        let quoted = quote_ident(&name);
+        let columns: Vec<String> = conn
+            .prepare(&format!(
+                "SELECT name FROM pragma_table_info({})",
+                quote_text(&name)
+            ))?
+            .query_map([], |r| r.get(0))?
+            .collect::<rusqlite::Result<_>>()?;
+        let count: i64 =
+            conn.query_row(&format!("SELECT count(*) FROM {quoted}"), [], |r| r.get(0))?;
+        rows.push(vec![
+            Value::Text(name),
+            Value::Text(kind),
+            Value::Integer(count),
+            Value::Text(columns.join(", ")),
+        ]);
+    }
+    Ok(ResultSet {
+        columns: ["name", "kind", "rows", "columns"]
+            .map(String::from)
+            .to_vec(),
+        rows,
+    })
+}
+
+/// An SQL identifier in double quotes.
+pub fn quote_ident(name: &str) -> String {
+    format!("\"{}\"", name.replace('"', "\"\""))
+}
+
+/// An SQL string literal.
+pub fn quote_text(text: &str) -> String {
+    format!("'{}'", text.replace('\'', "''"))
+}

@@ -1,0 +1,250 @@
+//! `ogive demo`: builds the invented refrigerated-trailer database, runs the demo questions
+//! (`sql/demo/*.sql`) and checks (`sql/checks/*.sql`), and draws the demo plots
+//! (`sql/plots/*.sql`, each query's `-- kind:` comment picks steps, lines or bars) into
+//! the output directory. A new file in one of those directories joins the demo; files
+//! run in name order.
+
+pub mod generate;
+
+use std::path::{Path, PathBuf};
+
+use rusqlite::Connection;
+use rusqlite::types::Value;
+use serde_json::{Map, json};
+
+use crate::Failure;
+use crate::check::{self, Status};
+use crate::db::{self, Params, ResultSet};
+use crate::interrupt;
+use crate::output::{Block, Format, Printer};
+use crate::plot;
+use crate::run::{self, Source, Step};
+use generate::{DAYS, DEPOTS, PER_DAY, ROUTE_KINDS, date, route_name, trailer_name};
+
+const SCHEMA: &str = "
+CREATE TABLE depots (depot TEXT PRIMARY KEY, name TEXT NOT NULL);
+CREATE TABLE trailers (trailer TEXT PRIMARY KEY, depot TEXT NOT NULL REFERENCES depots);
+CREATE TABLE routes (route TEXT PRIMARY KEY, depot TEXT NOT NULL REFERENCES depots,
+                     kind TEXT NOT NULL, stops INTEGER NOT NULL, hours REAL NOT NULL);
+CREATE TABLE readings (
+    trailer   TEXT NOT NULL REFERENCES trailers,
+    ts        TEXT NOT NULL,     -- local time, 'YYYY-MM-DD HH:MM'
+    week      INTEGER NOT NULL,  -- 1 .. 6
+    route     TEXT REFERENCES routes,  -- NULL while parked at the depot
+    door_open INTEGER NOT NULL,  -- 1 while a cargo door is open
+    pallets   INTEGER NOT NULL,  -- pallets aboard
+    temp_c    REAL               -- cargo air temperature, degC; NULL when the logger dropped it
+);
+";
+
+/// Fills the demo tables on `conn` (in one transaction). Ctrl-C stops it.
+pub fn build(conn: &Connection) -> Result<u64, Failure> {
+    let sql_err =
+        |e: rusqlite::Error| Failure::failed(format!("cannot build the demo database: {e}"));
+    let tx = conn.unchecked_transaction().map_err(sql_err)?;
+    tx.execute_batch(SCHEMA).map_err(sql_err)?;
+    for d in &DEPOTS {
+        tx.execute("INSERT INTO depots VALUES (?1, ?2)", [d.code, d.name])
+            .map_err(sql_err)?;
+    }
+    for t in 0..12 {
+        tx.execute(
+            "INSERT INTO trailers VALUES (?1, ?2)",
+            [trailer_name(t), DEPOTS[t / 4].code.to_string()],
+        )
+        .map_err(sql_err)?;
+    }
+    for r in 0..9 {
+        let k = &ROUTE_KINDS[r % 3];
+        tx.execute(
+            "INSERT INTO routes VALUES (?1, ?2, ?3, ?4, ?5)",
+            rusqlite::params![route_name(r), DEPOTS[r / 3].code, k.kind, k.stops, k.hours],
+        )
+        .map_err(sql_err)?;
+    }
+    let dates: Vec<String> = (0..DAYS).map(date).collect();
+    let times: Vec<String> = (0..PER_DAY)
+        .map(|s| format!("{:02}:{:02}", s / 12, (s % 12) * 5))
+        .collect();
+    let trailers: Vec<String> = (0..12).map(trailer_name).collect();
+    let routes: Vec<String> = (0..9).map(route_name).collect();
+    let mut n = 0u64;
+    {
+        let mut insert = tx
+            .prepare("INSERT INTO readings VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)")
+            .map_err(sql_err)?;
+        let mut failure = None;
+        let finished = generate::generate(
+            |r| {
+                if failure.is_some() {
+                    return;
+                }
+                let ts = format!("{} {}", dates[r.day], times[r.step]);
+                let res = insert.execute(rusqlite::params![
+                    trailers[r.trailer],
+                    ts,
+                    (r.day / 7 + 1) as i64,
+                    r.route.map(|i| routes[i].as_str()),
+                    i64::from(r.door_open),
+                    r.pallets,
+                    r.temp_c
+                ]);
+                match res {
+                    Ok(_) => n += 1,
+                    Err(e) => failure = Some(e),
+                }
+            },
+            interrupt::requested,
+        );
+        if let Some(e) = failure {
+            return Err(sql_err(e));
+        }
+        if !finished {
+            return Err(Failure::interrupted());
+        }
+    }
+    tx.commit().map_err(sql_err)?;
+    Ok(n)
+}
+
+/// The demo's SQL files: `./sql` when it exists, else the sql/ directory of the source
+/// tree this binary was built from.
+fn sql_dir() -> PathBuf {
+    let here = PathBuf::from("sql");
+    if here.join("demo").is_dir() {
+        here
+    } else {
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("sql")
+    }
+}
+
+/// The `.sql` files of a directory, in name order, as paths relative to the working
+/// directory when possible (they name the files in the output).
+fn sql_files(dir: &Path) -> Result<Vec<String>, Failure> {
+    let entries = std::fs::read_dir(dir).map_err(|e| {
+        Failure::usage(format!(
+            "cannot read the demo files in {}: {e}",
+            dir.display()
+        ))
+    })?;
+    let mut files: Vec<String> = entries
+        .filter_map(Result::ok)
+        .map(|e| e.path())
+        .filter(|p| p.extension().is_some_and(|x| x == "sql"))
+        .map(|p| p.display().to_string())
+        .collect();
+    files.sort();
+    Ok(files)
+}
+
+/// The `demo` verb.
+pub fn demo(out_dir: &Path, db_path: Option<&Path>, format: Format) -> Result<i32, Failure> {
+    if let Some(p) = db_path
+        && p.exists()
+    {
+        return Err(Failure::usage(format!(
+            "{} exists; the demo writes its database only to a new file",
+            p.display()
+        )));
+    }
+    let dir = sql_dir();
+    let questions = Source::load_all(&sql_files(&dir.join("demo"))?)?;
+    let checks = Source::load_all(&sql_files(&dir.join("checks"))?)?;
+    let plots = Source::load_all(&sql_files(&dir.join("plots"))?)?;
+
+    let conn = db::open(db_path, true)?;
+    let n = build(&conn)?;
+    let mut printer = Printer::new(format, std::io::stdout().lock());
+    let mut meta = Map::new();
+    meta.insert("readings".into(), json!(n));
+    meta.insert("seed".into(), json!(generate::SEED));
+    printer
+        .print(&Block::Note {
+            text: format!(
+                "ogive demo: an invented fleet of 12 refrigerated trailers at 3 depots, {n} cargo \
+                 temperature readings (every 5 minutes for 6 weeks from {}), made by a seeded \
+                 generator (seed {}); see demo-data/README.md",
+                date(0),
+                generate::SEED
+            ),
+            meta,
+        })
+        .map_err(Failure::output)?;
+    let tables = db::tables(&conn).map_err(|e| Failure::failed(e.to_string()))?;
+    printer
+        .print(&Block::Rows {
+            title: Some("demo tables".into()),
+            meta: Map::new(),
+            rows: tables,
+            count: false,
+        })
+        .map_err(Failure::output)?;
+
+    // The questions.
+    let mut params = Params::default();
+    let mut failed = false;
+    for src in &questions {
+        for stmt in &src.statements {
+            match run::step(&conn, src, stmt, &mut params)? {
+                Step::Ran(out) => printer
+                    .print(&run::outcome_block(src, stmt, out))
+                    .map_err(Failure::output)?,
+                Step::Failed(description) => {
+                    eprintln!("ogive: {description}");
+                    failed = true;
+                }
+            }
+        }
+    }
+
+    // The checks.
+    if !checks.is_empty() {
+        let results = check::run_checks(&conn, &checks, &mut params)?;
+        check::report(&results, &mut printer).map_err(Failure::output)?;
+        failed |= results.iter().any(|r| r.status == Status::Error);
+    }
+
+    // The plots.
+    if !plots.is_empty() {
+        std::fs::create_dir_all(out_dir)
+            .map_err(|e| Failure::usage(format!("cannot create {}: {e}", out_dir.display())))?;
+        let mut drawn = ResultSet {
+            columns: ["plot", "file", "rows"].map(String::from).to_vec(),
+            rows: Vec::new(),
+        };
+        for src in &plots {
+            let stem = Path::new(&src.name)
+                .file_stem()
+                .map_or_else(|| "plot".to_string(), |s| s.to_string_lossy().into_owned());
+            let out = out_dir.join(format!("{stem}.svg"));
+            match plot::plot_source(&conn, src, &out, None, None, &mut params) {
+                Ok(rows) => drawn.rows.push(vec![
+                    Value::Text(src.name.clone()),
+                    Value::Text(out.display().to_string()),
+                    Value::Integer(rows as i64),
+                ]),
+                Err(f) if f.code == 130 => return Err(f),
+                Err(f) => {
+                    eprintln!("ogive: {}", f.message);
+                    failed = true;
+                }
+            }
+        }
+        printer
+            .print(&Block::Rows {
+                title: Some(format!("plots written to {}", out_dir.display())),
+                meta: Map::new(),
+                rows: drawn,
+                count: false,
+            })
+            .map_err(Failure::output)?;
+    }
+    let explore = match db_path {
+        Some(p) => format!("the demo database is in {}: explore it with `ogive --db {}`", p.display(), p.display()),
+        None => "keep the demo database with `ogive demo --db fleet.db`, then explore it with `ogive --db fleet.db`".into(),
+    };
+    printer
+        .print(&Block::note(explore))
+        .map_err(Failure::output)?;
+    Ok(i32::from(failed))
+}
