@@ -30,7 +30,7 @@
 //! as often as its weight says; with fractional weights it is the natural extension, and
 //! type 1 equals `numpy.quantile(x, p, weights=w, method="inverted_cdf")`.
 
-use super::{StatsError, check_probability, check_weight, sum::NeumaierSum};
+use super::{StatsError, check_probability, check_weight, sum};
 
 /// One of the nine Hyndman-Fan quantile definitions.
 ///
@@ -283,14 +283,8 @@ impl WeightedSorted {
         }
         pairs.retain(|&(_, w)| w > 0.0);
         pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
-        let mut acc = NeumaierSum::default();
-        let mut values = Vec::with_capacity(pairs.len());
-        let mut cumulative = Vec::with_capacity(pairs.len());
-        for (x, w) in pairs {
-            acc.add(w);
-            values.push(x);
-            cumulative.push(acc.value());
-        }
+        let (values, weights): (Vec<f64>, Vec<f64>) = pairs.into_iter().unzip();
+        let cumulative = sum::cumulative(&weights);
         Ok(WeightedSorted { values, cumulative })
     }
 
@@ -304,25 +298,57 @@ impl WeightedSorted {
         self.values.is_empty()
     }
 
-    /// The order statistic at 1-based real position `k`: the smallest value whose
-    /// cumulative weight reaches `k`, clamped to the first and last values.
-    fn at(&self, k: f64) -> f64 {
-        let i = self.cumulative.partition_point(|&c| c < k);
-        self.values[i.min(self.values.len() - 1)]
-    }
-
     /// The weighted quantile. `Ok(None)` when there is no weight or the result is
     /// undefined.
     ///
     /// # Errors
     /// [`StatsError::ProbabilityOutOfRange`] when `p` is not in `[0, 1]`.
     pub fn quantile(&self, p: f64, ty: QuantileType) -> Result<Option<f64>, StatsError> {
-        check_probability(p)?;
-        if self.is_empty() {
-            return Ok(None);
-        }
-        Ok(evaluate(plan(self.total_weight(), p, ty), |k| self.at(k)))
+        quantile_cumulative(&self.values, &self.cumulative, p, ty)
     }
+}
+
+/// The weighted quantile of values sorted ascending, given their cumulative frequency
+/// weights (`cumulative[i]` is the total weight of `values[..=i]`, non-decreasing, its
+/// last entry the total weight `W`). This is the kernel behind [`WeightedSorted`] and the
+/// weighted empirical distributions of [`crate::stats::sample`].
+///
+/// Returns `Ok(None)` when there are no values or the result is undefined.
+///
+/// # Errors
+/// [`StatsError::ProbabilityOutOfRange`] when `p` is not in `[0, 1]`;
+/// [`StatsError::LengthMismatch`] when the two slices differ in length.
+///
+/// # Example
+/// ```
+/// use ogive::stats::quantile::{quantile_cumulative, QuantileType};
+/// // 1.0 with weight 2 and 5.0 with weight 1 is the sample [1, 1, 5].
+/// let q = quantile_cumulative(&[1.0, 5.0], &[2.0, 3.0], 1.0, QuantileType::DEFAULT);
+/// assert_eq!(q.unwrap(), Some(5.0));
+/// ```
+pub fn quantile_cumulative(
+    values: &[f64],
+    cumulative: &[f64],
+    p: f64,
+    ty: QuantileType,
+) -> Result<Option<f64>, StatsError> {
+    check_probability(p)?;
+    if values.len() != cumulative.len() {
+        return Err(StatsError::LengthMismatch {
+            values: values.len(),
+            weights: cumulative.len(),
+        });
+    }
+    let Some(&total) = cumulative.last() else {
+        return Ok(None);
+    };
+    // The order statistic at 1-based real position `k`: the smallest value whose
+    // cumulative weight reaches `k`, clamped to the first and last values.
+    let at = |k: f64| {
+        let i = cumulative.partition_point(|&c| c < k);
+        values[i.min(values.len() - 1)]
+    };
+    Ok(evaluate(plan(total, p, ty), at))
 }
 
 #[cfg(test)]
