@@ -10,12 +10,14 @@
 //! | 6 | 2 | flags (u16); bit 0 set = weighted; other bits 0 |
 //! | 8 | 8 | n (u64), the number of stored values, at least 1 |
 //! | 16 | 8 | total weight (f64): n when unweighted, else the compensated sum of the weights |
-//! | 24 | 8 n | the values (f64), ascending by IEEE total order, no NaN |
-//! | 24 + 8 n | 8 n | weighted only: the weights (f64), finite and > 0; equal values ordered by weight |
+//! | 24 | 8 | checksum (u64) of every other 8-byte word, see [`checksum`] |
+//! | 32 | 8 n | the values (f64), ascending by IEEE total order, no NaN |
+//! | 32 + 8 n | 8 n | weighted only: the weights (f64), finite and > 0; equal values ordered by weight |
 //!
 //! [`decode`] checks every field, so a truncated, corrupted, foreign or newer value is a
 //! [`BlobError`], never a wrong answer: the length must be exactly what n and the flags
-//! say, the values must be in order, and the stored total weight must equal the one
+//! say, the checksum must match (a change to any single 8-byte word is always caught),
+//! the values must be in order, and the stored total weight must equal the one
 //! recomputed from the values and weights, bit for bit.
 
 use std::fmt;
@@ -33,7 +35,12 @@ pub const KIND_EMPIRICAL: u8 = 1;
 /// Flag bit: the BLOB carries weights.
 pub const FLAG_WEIGHTED: u16 = 1;
 /// The size of the header in bytes.
-pub const HEADER_LEN: usize = 24;
+pub const HEADER_LEN: usize = 32;
+/// Where the checksum sits.
+const CHECKSUM_AT: usize = 24;
+/// The FNV-1a 64-bit offset basis and prime (Fowler, Noll and Vo), used on whole words.
+const FNV_OFFSET: u64 = 0xcbf2_9ce4_8422_2325;
+const FNV_PRIME: u64 = 0x0000_0100_0000_01b3;
 
 /// Why a BLOB is not a valid empirical distribution.
 #[derive(Debug, Clone, PartialEq)]
@@ -48,6 +55,8 @@ pub enum BlobError {
     Empty,
     /// The BLOB's length is not what n and the flags require.
     LengthMismatch { n: u64, expected: u128, got: usize },
+    /// The stored checksum differs from the one computed over the BLOB.
+    Checksum,
     /// The stored parts break an invariant (order, NaN, weights).
     Parts(StatsError),
     /// The stored total weight differs from the recomputed one.
@@ -66,6 +75,10 @@ impl fmt::Display for BlobError {
             BlobError::LengthMismatch { n, expected, got } => write!(
                 f,
                 "truncated or corrupted: n = {n} needs {expected} bytes, the BLOB has {got}"
+            ),
+            BlobError::Checksum => write!(
+                f,
+                "checksum mismatch: the BLOB was changed after dist_empirical wrote it"
             ),
             BlobError::Parts(StatsError::NotSorted { index }) => {
                 write!(f, "values are not sorted (at value {index})")
@@ -98,6 +111,32 @@ pub fn looks_like_ogive(bytes: &[u8]) -> bool {
     bytes.starts_with(&MAGIC)
 }
 
+/// The checksum of a BLOB: FNV-1a applied to 64-bit words instead of bytes. Starting
+/// from `h = 0xcbf29ce484222325`, for each 8-byte little-endian word `w` of the BLOB
+/// except the checksum's own (bytes 24..32), `h = (h xor w) * 0x100000001b3` modulo 2^64.
+/// Each step is a bijection of `h`, so changing any one word always changes the result.
+/// A trailing part shorter than 8 bytes is padded with zeros.
+///
+/// # Example
+/// ```
+/// use ogive::value::empirical::{checksum, encode};
+/// use ogive::stats::sample::Sample;
+/// let blob = encode(&Sample::from_values(vec![1.0]).unwrap());
+/// assert_eq!(checksum(&blob).to_le_bytes(), blob[24..32]);
+/// ```
+pub fn checksum(bytes: &[u8]) -> u64 {
+    let mut h = FNV_OFFSET;
+    for (i, chunk) in bytes.chunks(8).enumerate() {
+        if i * 8 == CHECKSUM_AT {
+            continue;
+        }
+        let mut w = [0u8; 8];
+        w[..chunk.len()].copy_from_slice(chunk);
+        h = (h ^ u64::from_le_bytes(w)).wrapping_mul(FNV_PRIME);
+    }
+    h
+}
+
 /// Writes a sample as a BLOB. An empty sample gives a header with n = 0, which [`decode`]
 /// refuses; the adapters return NULL instead of encoding one.
 ///
@@ -121,12 +160,15 @@ pub fn encode(s: &Sample) -> Vec<u8> {
     out.extend_from_slice(&flags.to_le_bytes());
     out.extend_from_slice(&(n as u64).to_le_bytes());
     out.extend_from_slice(&s.total_weight().to_le_bytes());
+    out.extend_from_slice(&[0; 8]);
     for &x in s.values() {
         out.extend_from_slice(&x.to_le_bytes());
     }
     for &w in weights.unwrap_or(&[]) {
         out.extend_from_slice(&w.to_le_bytes());
     }
+    let sum = checksum(&out);
+    out[CHECKSUM_AT..HEADER_LEN].copy_from_slice(&sum.to_le_bytes());
     out
 }
 
@@ -185,6 +227,9 @@ pub fn decode(bytes: &[u8]) -> Result<Sample, BlobError> {
             got: bytes.len(),
         });
     }
+    if checksum(bytes) != u64::from_le_bytes(word(bytes, CHECKSUM_AT)) {
+        return Err(BlobError::Checksum);
+    }
     // The length matched a real slice, so n fits in usize.
     let n = n as usize;
     let values = floats(bytes, HEADER_LEN, n);
@@ -204,6 +249,13 @@ pub fn decode(bytes: &[u8]) -> Result<Sample, BlobError> {
 mod tests {
     use super::*;
 
+    /// Rewrites the checksum after a deliberate change, to reach the later checks.
+    fn reseal(mut b: Vec<u8>) -> Vec<u8> {
+        let sum = checksum(&b);
+        b[24..32].copy_from_slice(&sum.to_le_bytes());
+        b
+    }
+
     fn weighted() -> Vec<u8> {
         encode(&Sample::from_pairs(vec![(1.0, 0.5), (3.0, 2.0), (2.0, 1.0)]).unwrap())
     }
@@ -216,23 +268,24 @@ mod tests {
         assert_eq!(&b[..8], &[0x89, b'O', b'G', b'V', 1, 1, 0, 0]);
         assert_eq!(&b[8..16], &3u64.to_le_bytes());
         assert_eq!(&b[16..24], &3.0f64.to_le_bytes());
-        assert_eq!(&b[24..32], &(-1.0f64).to_le_bytes());
+        assert_eq!(&b[32..40], &(-1.0f64).to_le_bytes());
         assert_eq!(decode(&b), Ok(s));
         let w = weighted();
-        assert_eq!(w.len(), 24 + 16 * 3);
+        assert_eq!(w.len(), 32 + 16 * 3);
         assert_eq!(&w[6..8], &[1, 0]);
         assert_eq!(&w[16..24], &3.5f64.to_le_bytes());
-        assert_eq!(&w[48..56], &0.5f64.to_le_bytes());
+        assert_eq!(&w[56..64], &0.5f64.to_le_bytes());
         assert!(decode(&w).unwrap().is_weighted());
     }
 
     #[test]
     fn every_corruption_is_named() {
         let good = weighted();
+        // Overwrites bytes and reseals, so that the check under test is the one that fires.
         let with = |at: usize, bytes: &[u8]| {
             let mut b = good.clone();
             b[at..at + bytes.len()].copy_from_slice(bytes);
-            decode(&b)
+            decode(&reseal(b))
         };
         assert_eq!(decode(&good[..10]), Err(BlobError::BadHeader));
         assert_eq!(with(0, b"XOGV"), Err(BlobError::BadHeader));
@@ -242,7 +295,7 @@ mod tests {
         assert_eq!(with(8, &0u64.to_le_bytes()), Err(BlobError::Empty));
         assert!(matches!(
             decode(&good[..good.len() - 1]),
-            Err(BlobError::LengthMismatch { n: 3, got: 71, .. })
+            Err(BlobError::LengthMismatch { n: 3, got: 79, .. })
         ));
         assert!(matches!(
             with(8, &u64::MAX.to_le_bytes()),
@@ -250,17 +303,18 @@ mod tests {
         ));
         // Swap the first two values: out of order at index 1.
         let mut swapped = good.clone();
-        swapped[24..40].rotate_left(8);
+        swapped[32..48].rotate_left(8);
+        assert_eq!(decode(&swapped), Err(BlobError::Checksum));
         assert_eq!(
-            decode(&swapped),
+            decode(&reseal(swapped)),
             Err(BlobError::Parts(StatsError::NotSorted { index: 1 }))
         );
         assert_eq!(
-            with(24, &f64::NAN.to_le_bytes()),
+            with(32, &f64::NAN.to_le_bytes()),
             Err(BlobError::Parts(StatsError::NotANumber))
         );
         assert_eq!(
-            with(48, &(-0.5f64).to_le_bytes()),
+            with(56, &(-0.5f64).to_le_bytes()),
             Err(BlobError::Parts(StatsError::BadWeight(-0.5)))
         );
         assert_eq!(
@@ -277,5 +331,16 @@ mod tests {
             decode(&plain),
             Err(BlobError::LengthMismatch { .. })
         ));
+    }
+
+    #[test]
+    fn any_single_bit_flip_is_caught() {
+        // Exhaustive over the bits of a small BLOB: every flip is an error.
+        let good = weighted();
+        for bit in 0..good.len() * 8 {
+            let mut b = good.clone();
+            b[bit / 8] ^= 1 << (bit % 8);
+            assert!(decode(&b).is_err(), "bit {bit}");
+        }
     }
 }
