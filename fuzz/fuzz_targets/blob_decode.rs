@@ -40,12 +40,22 @@ fn exercise(bytes: &[u8]) {
     let _ = s.profile();
     let steps = s.steps();
     assert_eq!(steps.last().map(|&(_, f)| f), Some(1.0));
-    for rule in [BinRule::Sturges, BinRule::Scott, BinRule::FreedmanDiaconis, BinRule::Sqrt, BinRule::Count(7)] {
+    for rule in [
+        BinRule::Sturges,
+        BinRule::Scott,
+        BinRule::FreedmanDiaconis,
+        BinRule::Sqrt,
+        BinRule::Count(7),
+    ] {
         if let Ok(bins) = histogram(&s, rule) {
             assert!(bins.iter().all(|b| b.lo < b.hi && b.count >= 0.0));
         }
     }
-    for bw in [Bandwidth::Scott, Bandwidth::Silverman, Bandwidth::Fixed(1.0)] {
+    for bw in [
+        Bandwidth::Scott,
+        Bandwidth::Silverman,
+        Bandwidth::Fixed(1.0),
+    ] {
         if let Some(k) = Kde::new(&s, bw) {
             assert!(k.density(0.0) >= 0.0);
         }
