@@ -405,6 +405,7 @@ fn band(ctx: &Context<'_>) -> Result<Value> {
     let (Some(d), Some(t), Some(alpha)) = (d, t, alpha) else {
         return Ok(Value::Null);
     };
+    // Irrefutable today; a new kind of distribution must decide what its band is.
     let Dist::Empirical(s) = &*d;
     let Some(f) = s.cdf(t) else {
         return Ok(Value::Null);
@@ -468,8 +469,10 @@ impl Aggregate<SampleBuilder, Value> for DistMerge {
 
     fn step(&self, ctx: &mut Context<'_>, b: &mut SampleBuilder) -> Result<()> {
         let d = Dist::from_sql(ctx.get_raw(0), 1).map_err(|e| fail("dist_merge", e))?;
-        if let Some(Dist::Empirical(s)) = d {
-            b.extend(&s);
+        // Exhaustive on purpose: a new kind of distribution must decide how it merges.
+        match d {
+            None => {}
+            Some(Dist::Empirical(s)) => b.extend(&s),
         }
         Ok(())
     }
@@ -501,10 +504,10 @@ impl TableFunction for Steps {
     const SIGNATURE: &'static str = "dist_steps(d)";
 
     fn rows(args: &[Option<ValueRef<'_>>]) -> Result<Vec<Value>> {
-        let Some(Dist::Empirical(s)) = table_dist(Self::NAME, args.first().copied().flatten())?
-        else {
+        let Some(d) = table_dist(Self::NAME, args.first().copied().flatten())? else {
             return Ok(Vec::new());
         };
+        let Dist::Empirical(s) = d;
         Ok(s.steps()
             .into_iter()
             .flat_map(|(x, f)| [Value::Real(x), Value::Real(f)])
@@ -572,9 +575,10 @@ impl TableFunction for Histogram {
             Some(v) => bin_rule(v).map_err(|e| fail(name, e))?,
         };
         let d = table_dist(name, args.first().copied().flatten())?;
-        let (Some(Dist::Empirical(s)), Some(rule)) = (d, rule) else {
+        let (Some(d), Some(rule)) = (d, rule) else {
             return Ok(Vec::new());
         };
+        let Dist::Empirical(s) = d;
         let bins = histogram(&s, rule).map_err(|e| fail(name, e))?;
         let weighted = s.is_weighted();
         Ok(bins
