@@ -56,6 +56,19 @@ def dists_by_group(conn, table="t", weighted=False):
     conn.execute(f"CREATE TABLE d AS SELECT g, dist_empirical(x{w}) AS d FROM {table} GROUP BY g")
 
 
+def whole_weighted(conn, seed, n, loc, scale, decimals, weights):
+    """Table t of rounded normal draws (ties) with whole-number weights drawn from
+    range(*weights), and its weighted distribution. Returns (rng, xs, ws, d, replicated),
+    where `replicated` repeats each value as often as its weight: the sample the weighted
+    distribution must equal."""
+    rng = np.random.default_rng(seed)
+    xs = np.round(rng.normal(loc, scale, n), decimals)
+    ws = rng.integers(*weights, n)
+    load_column(conn, "t", xs, weights=ws)
+    d = scalar(conn, "SELECT dist_empirical(x, w) FROM t")
+    return rng, xs, ws, d, np.repeat(xs, ws)
+
+
 # ---------------------------------------------------------------------------------------
 # The BLOB format, as docs/empirical-blob.md specifies it
 
@@ -142,12 +155,8 @@ def test_cdf_matches_statsmodels_ecdf(conn, seed):
 
 
 def test_weighted_cdf_and_steps(conn):
-    rng = np.random.default_rng(22)
-    xs = np.round(rng.normal(5, 2, 300), 1)
-    ws = rng.integers(0, 4, 300)
-    load_column(conn, "t", xs, weights=ws)
-    d = scalar(conn, "SELECT dist_empirical(x, w) FROM t")
-    replicated = ECDF(np.repeat(xs, ws))
+    rng, xs, ws, d, replicated = whole_weighted(conn, 22, 300, 5, 2, 1, (0, 4))
+    replicated = ECDF(replicated)
     for t in [0.0, 3.3, 5.0, 5.05, 7.9, 20.0]:
         # Whole weights: equal to statsmodels' ECDF of the replicated sample (1e-15).
         assert abs(scalar(conn, "SELECT dist_cdf(?, ?)", (d, t)) - float(replicated(t))) <= 1e-15
@@ -187,12 +196,7 @@ def test_quantile_nine_types_match_numpy(conn, seed):
 
 
 def test_weighted_quantile_matches_numpy(conn):
-    rng = np.random.default_rng(23)
-    xs = np.round(rng.normal(0, 1, 80), 1)
-    whole = rng.integers(0, 5, 80)
-    load_column(conn, "t", xs, weights=whole)
-    d = scalar(conn, "SELECT dist_empirical(x, w) FROM t")
-    replicated = np.repeat(xs, whole)
+    rng, xs, _, d, replicated = whole_weighted(conn, 23, 80, 0, 1, 1, (0, 5))
     for ty, method in enumerate(METHODS, start=1):
         for p in PS:
             got = scalar(conn, "SELECT dist_quantile(?, ?, ?)", (d, p, ty))
@@ -240,12 +244,7 @@ def test_pdf_matches_scipy_gaussian_kde(conn, case):
 
 
 def test_weighted_pdf_equals_replicated_kde(conn):
-    rng = np.random.default_rng(25)
-    xs = np.round(rng.normal(0, 1, 60), 2)
-    ws = rng.integers(1, 4, 60)
-    load_column(conn, "t", xs, weights=ws)
-    d = scalar(conn, "SELECT dist_empirical(x, w) FROM t")
-    replicated = np.repeat(xs, ws)
+    _, _, _, d, replicated = whole_weighted(conn, 25, 60, 0, 1, 2, (1, 4))
     for rule in ["scott", "silverman"]:
         kde = scipy.stats.gaussian_kde(replicated, bw_method=rule)
         for t in np.linspace(-3, 3, 13):
@@ -319,20 +318,18 @@ def test_histogram_matches_numpy(conn, case, rule):
 
 
 def test_histogram_default_rule_and_weights(conn):
-    rng = np.random.default_rng(27)
-    xs = np.round(rng.normal(0, 1, 200), 2)
-    ws = rng.integers(0, 4, 200)
-    load_column(conn, "t", xs, weights=ws)
+    _, xs, _, d, replicated = whole_weighted(conn, 27, 200, 0, 1, 2, (0, 4))
     plain = rows(conn, "SELECT lo, hi FROM dist_histogram((SELECT dist_empirical(x) FROM t))")
     assert len(plain) == len(np.histogram_bin_edges(xs, bins="sturges")) - 1
     # Whole weights: the histogram of the replicated sample (counts as REAL weights).
-    replicated = np.repeat(xs, ws)
-    got = rows(conn, "SELECT lo, hi, count, density FROM dist_histogram((SELECT dist_empirical(x, w) FROM t), 'fd')")
+    got = rows(conn, "SELECT lo, hi, count, density FROM dist_histogram(?, 'fd')", (d,))
     edges = np.histogram_bin_edges(replicated, bins="fd")
     counts, _ = np.histogram(replicated, bins=edges)
+    density, _ = np.histogram(replicated, bins=edges, density=True)
     assert len(got) == len(counts)
-    for (lo, hi, c, dens), a, nc in zip(got, edges, counts):
+    for (lo, hi, c, dens), a, nc, nd in zip(got, edges, counts, density):
         assert close(lo, float(a)) and c == float(nc) and isinstance(c, float)
+        assert close(dens, float(nd))
 
 
 # ---------------------------------------------------------------------------------------
@@ -352,12 +349,7 @@ def test_summaries_match_numpy_and_profile(conn):
 
 
 def test_weighted_summaries_equal_replication(conn):
-    rng = np.random.default_rng(29)
-    xs = np.round(rng.normal(3, 1, 100), 2)
-    ws = rng.integers(1, 5, 100)
-    load_column(conn, "t", xs, weights=ws)
-    d = scalar(conn, "SELECT dist_empirical(x, w) FROM t")
-    replicated = np.repeat(xs, ws)
+    _, xs, ws, d, replicated = whole_weighted(conn, 29, 100, 3, 1, 2, (1, 5))
     assert scalar(conn, "SELECT dist_n(?)", (d,)) == float(ws.sum())
     assert close(scalar(conn, "SELECT dist_mean(?)", (d,)), float(np.mean(replicated)))
     assert close(scalar(conn, "SELECT dist_sd(?)", (d,)), float(np.std(replicated, ddof=1)))
