@@ -447,16 +447,19 @@ impl Aggregate<Option<SampleBuilder>, Value> for DistEmpirical {
     }
 
     fn finalize(&self, _: &mut Context<'_>, b: Option<Option<SampleBuilder>>) -> Result<Value> {
-        Ok(blob(b.flatten()))
+        blob("dist_empirical", b.flatten())
     }
 }
 
 /// The BLOB of a finished builder, NULL when it holds nothing.
-fn blob(b: Option<SampleBuilder>) -> Value {
-    match b.map(SampleBuilder::finish) {
-        Some(s) if !s.is_empty() => Value::Blob(empirical::encode(&s)),
-        _ => Value::Null,
-    }
+fn blob(name: &'static str, b: Option<SampleBuilder>) -> Result<Value> {
+    let Some(b) = b else { return Ok(Value::Null) };
+    let s = b.finish().map_err(|e| fail(name, e))?;
+    Ok(if s.is_empty() {
+        Value::Null
+    } else {
+        Value::Blob(empirical::encode(&s))
+    })
 }
 
 /// `dist_merge(d)`.
@@ -478,7 +481,7 @@ impl Aggregate<SampleBuilder, Value> for DistMerge {
     }
 
     fn finalize(&self, _: &mut Context<'_>, b: Option<SampleBuilder>) -> Result<Value> {
-        Ok(blob(b))
+        blob("dist_merge", b)
     }
 }
 

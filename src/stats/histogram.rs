@@ -145,7 +145,8 @@ fn rule_width(sample: &Sample, rule: BinRule, n: f64, range: f64) -> Result<f64,
 ///
 /// # Errors
 /// [`StatsError::InfiniteValues`] when a value is infinite or the range overflows;
-/// [`StatsError::TooManyBins`] when a rule asks for more than [`MAX_BINS`] bins.
+/// [`StatsError::TooManyBins`] when a rule asks for more than [`MAX_BINS`] bins;
+/// [`StatsError::BinsTooNarrow`] when the bins would be narrower than the doubles allow.
 ///
 /// # Example
 /// ```
@@ -190,11 +191,7 @@ pub fn bin_edges(sample: &Sample, rule: BinRule) -> Result<Vec<f64>, StatsError>
     };
     let edges = linspace(first, last, bins + 1);
     if edges.windows(2).any(|e| e[0] >= e[1]) {
-        // More bins than there are doubles between the ends.
-        return Err(StatsError::TooManyBins {
-            rule: rule.name(),
-            bins: bins as f64,
-        });
+        return Err(StatsError::BinsTooNarrow { bins });
     }
     Ok(edges)
 }
@@ -313,10 +310,11 @@ mod tests {
             bin_edges(&spike, BinRule::FreedmanDiaconis).unwrap().len(),
             2
         );
+        // One ulp between the ends cannot hold 10 bins.
         let tiny = Sample::from_values(vec![1.0, 1.0 + f64::EPSILON]).unwrap();
-        assert!(matches!(
+        assert_eq!(
             bin_edges(&tiny, BinRule::Count(10)),
-            Err(StatsError::TooManyBins { .. })
-        ));
+            Err(StatsError::BinsTooNarrow { bins: 10 })
+        );
     }
 }

@@ -49,6 +49,8 @@ pub enum StatsError {
     NotANumber,
     /// Weights and values of different lengths.
     LengthMismatch { values: usize, weights: usize },
+    /// Frequency weights whose sum overflows a double.
+    WeightOverflow,
     /// Values that should be sorted ascending are not; `index` is the first one out of
     /// order.
     NotSorted { index: usize },
@@ -64,8 +66,10 @@ pub enum StatsError {
     BadBinCount(i64),
     /// A bin rule that asks for more than `histogram::MAX_BINS` bins.
     TooManyBins { rule: &'static str, bins: f64 },
-    /// A histogram of values that include an infinity.
+    /// A histogram of values that include an infinity (or span more than the doubles).
     InfiniteValues,
+    /// More bins than there are doubles between the ends of the range.
+    BinsTooNarrow { bins: usize },
     /// A grid whose ends are not finite with `lo < hi`.
     BadGridRange { lo: f64, hi: f64 },
     /// A grid size outside `2..=grid::MAX_POINTS`.
@@ -89,6 +93,10 @@ impl fmt::Display for StatsError {
             StatsError::LengthMismatch { values, weights } => write!(
                 f,
                 "got {values} values but {weights} weights; give one weight per value"
+            ),
+            StatsError::WeightOverflow => write!(
+                f,
+                "the weights sum to more than the largest double; scale them down"
             ),
             StatsError::NotSorted { index } => write!(
                 f,
@@ -121,7 +129,11 @@ impl fmt::Display for StatsError {
             ),
             StatsError::InfiniteValues => write!(
                 f,
-                "the distribution holds an infinite value; a histogram needs finite values"
+                "the distribution holds an infinite value (or its range overflows a double); a histogram needs a finite range"
+            ),
+            StatsError::BinsTooNarrow { bins } => write!(
+                f,
+                "{bins} bins would be narrower than the spacing of doubles over this range; give fewer bins"
             ),
             StatsError::BadGridRange { lo, hi } => write!(
                 f,

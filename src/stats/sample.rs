@@ -67,7 +67,7 @@ impl Sample {
         for x in values {
             b.push(x)?;
         }
-        Ok(b.finish())
+        b.finish()
     }
 
     /// A weighted sample from `(value, weight)` pairs in any order; zero weights are
@@ -75,7 +75,8 @@ impl Sample {
     ///
     /// # Errors
     /// [`StatsError::NotANumber`] for a NaN value; [`StatsError::BadWeight`] for a
-    /// negative or non-finite weight.
+    /// negative or non-finite weight; [`StatsError::WeightOverflow`] when the weights sum
+    /// to more than the largest double.
     ///
     /// # Example
     /// ```
@@ -88,7 +89,7 @@ impl Sample {
         for (x, w) in pairs {
             b.push_weighted(x, w)?;
         }
-        Ok(b.finish())
+        b.finish()
     }
 
     /// A sample from parts already in canonical order (as a stored value holds them),
@@ -97,8 +98,8 @@ impl Sample {
     ///
     /// # Errors
     /// [`StatsError::NotANumber`], [`StatsError::NotSorted`] (with the index of the
-    /// first value out of order), [`StatsError::BadWeight`] or
-    /// [`StatsError::LengthMismatch`].
+    /// first value out of order), [`StatsError::BadWeight`],
+    /// [`StatsError::LengthMismatch`] or [`StatsError::WeightOverflow`].
     ///
     /// # Example
     /// ```
@@ -131,7 +132,16 @@ impl Sample {
         if let Some(index) = out_of_order {
             return Err(StatsError::NotSorted { index });
         }
-        Ok(Sample::assemble(values, weights))
+        Sample::assemble(values, weights).check_total()
+    }
+
+    /// Refuses a total weight that overflowed: every share would be undefined.
+    fn check_total(self) -> Result<Sample, StatsError> {
+        if self.total_weight().is_finite() {
+            Ok(self)
+        } else {
+            Err(StatsError::WeightOverflow)
+        }
     }
 
     /// Builds the running sums of sorted parts.
@@ -255,7 +265,7 @@ impl Sample {
 /// let mut merged = SampleBuilder::new(false);
 /// merged.extend(&b);
 /// merged.extend(&a);
-/// assert_eq!(merged.finish(), Sample::from_values(vec![1.0, 2.0, 3.0]).unwrap());
+/// assert_eq!(merged.finish().unwrap(), Sample::from_values(vec![1.0, 2.0, 3.0]).unwrap());
 /// ```
 #[derive(Debug, Clone, Default)]
 pub struct SampleBuilder {
@@ -338,12 +348,15 @@ impl SampleBuilder {
 
     /// Sorts into canonical order. A stable sort that merges presorted runs, so merging
     /// k sorted samples costs about n log k.
-    pub fn finish(self) -> Sample {
+    ///
+    /// # Errors
+    /// [`StatsError::WeightOverflow`] when the weights sum to more than the largest double.
+    pub fn finish(self) -> Result<Sample, StatsError> {
         let SampleBuilder {
             mut values,
             weights,
         } = self;
-        match weights {
+        let sample = match weights {
             None => {
                 values.sort_by(f64::total_cmp);
                 Sample::assemble(values, None)
@@ -354,7 +367,8 @@ impl SampleBuilder {
                 let (values, weights) = pairs.into_iter().unzip();
                 Sample::assemble(values, Some(weights))
             }
-        }
+        };
+        sample.check_total()
     }
 }
 
@@ -371,7 +385,7 @@ mod tests {
         for chunk in all.chunks(3).rev() {
             b.extend(&Sample::from_values(chunk.to_vec()).unwrap());
         }
-        assert_eq!(b.finish(), whole);
+        assert_eq!(b.finish().unwrap(), whole);
         // -0.0 sorts before 0.0 under total_cmp, and the two are one cdf step.
         assert_eq!(whole.values()[1].to_bits(), (-0.0f64).to_bits());
         assert_eq!(whole.steps()[1], (0.0, 0.375));
@@ -393,7 +407,7 @@ mod tests {
         b.push(4.0).unwrap();
         b.extend(&Sample::from_pairs(vec![(1.0, 2.5)]).unwrap());
         b.push(2.0).unwrap();
-        let s = b.finish();
+        let s = b.finish().unwrap();
         assert_eq!(s.values(), &[1.0, 2.0, 4.0]);
         assert_eq!(s.weights(), Some(&[2.5, 1.0, 1.0][..]));
         assert_eq!(s.total_weight(), 4.5);
@@ -419,12 +433,21 @@ mod tests {
             })
         );
         assert!(SampleBuilder::new(true).push_weighted(1.0, -1.0).is_err());
+        // Two finite weights whose sum overflows.
+        assert_eq!(
+            Sample::from_pairs(vec![(1.0, f64::MAX), (2.0, f64::MAX)]),
+            Err(StatsError::WeightOverflow)
+        );
+        assert_eq!(
+            Sample::from_sorted(vec![1.0, 2.0], Some(vec![f64::MAX, f64::MAX])),
+            Err(StatsError::WeightOverflow)
+        );
         assert!(SampleBuilder::new(false).push(f64::NAN).is_err());
     }
 
     #[test]
     fn empty_sample_answers_none() {
-        let s = SampleBuilder::new(true).finish();
+        let s = SampleBuilder::new(true).finish().unwrap();
         assert!(s.is_empty());
         assert_eq!(s.cdf(0.0), None);
         assert_eq!(s.quantile(0.5, QuantileType::DEFAULT), Ok(None));

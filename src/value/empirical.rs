@@ -87,6 +87,9 @@ impl fmt::Display for BlobError {
             BlobError::Parts(StatsError::BadWeight(w)) => {
                 write!(f, "a weight is not finite and > 0 ({w})")
             }
+            BlobError::Parts(StatsError::WeightOverflow) => {
+                write!(f, "the weights sum to more than the largest double")
+            }
             BlobError::Parts(e) => e.fmt(f),
             BlobError::BadTotal { stored, computed } => write!(
                 f,
