@@ -31,7 +31,7 @@ use super::moments::Moments;
 use super::sample::Sample;
 use super::sum::NeumaierSum;
 
-/// How the bandwidth is chosen.
+/// How the bandwidth is chosen: see [`Bandwidth::parse`] and [`Bandwidth::fixed`].
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum Bandwidth {
     /// Scott's rule, `s W^(-1/5)`.
@@ -110,6 +110,17 @@ pub struct Kde<'a> {
 impl<'a> Kde<'a> {
     /// The estimate for a sample. `None` when the bandwidth is undefined: an empty sample,
     /// or for the rules a total weight of at most 1, an infinite value, or no spread.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::kde::{Bandwidth, Kde};
+    /// use ogive::stats::sample::Sample;
+    /// let s = Sample::from_values(vec![0.0, 1.0, 2.0, 3.0]).unwrap();
+    /// // Scott: sd * n^(-1/5) = sqrt(5/3) * 4^(-1/5).
+    /// let h = Kde::new(&s, Bandwidth::Scott).unwrap().bandwidth();
+    /// assert!((h - (5.0f64 / 3.0).sqrt() * 4f64.powf(-0.2)).abs() < 1e-15);
+    /// assert!(Kde::new(&Sample::from_values(vec![1.0]).unwrap(), Bandwidth::Scott).is_none());
+    /// ```
     pub fn new(sample: &'a Sample, bandwidth: Bandwidth) -> Option<Kde<'a>> {
         let h = match bandwidth {
             Bandwidth::Fixed(h) => h,

@@ -170,6 +170,15 @@ impl Moments {
 
     /// The sample standard deviation with divisor `W - 1`; `None` unless `W > 1` and the
     /// result is finite.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::moments::Moments;
+    /// // [2, 4, 4, 4, 5, 5, 7, 9]: population sd 2, sample sd sqrt(32 / 7).
+    /// let m = Moments::of(&[2.0, 4.0, 5.0, 7.0, 9.0], Some(&[1.0, 3.0, 2.0, 1.0, 1.0])).unwrap();
+    /// assert_eq!(m.population_sd(), 2.0);
+    /// assert!((m.sample_sd().unwrap() - (32.0f64 / 7.0).sqrt()).abs() < 1e-15);
+    /// ```
     pub fn sample_sd(&self) -> Option<f64> {
         let w = self.weight;
         (w > 1.0)

@@ -62,6 +62,15 @@ impl Sample {
     ///
     /// # Errors
     /// [`StatsError::NotANumber`] when a value is NaN.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::sample::Sample;
+    /// let s = Sample::from_values(vec![2.0, -1.0]).unwrap();
+    /// assert_eq!((s.values(), s.len(), s.total_weight()), (&[-1.0, 2.0][..], 2, 2.0));
+    /// assert!(!s.is_weighted() && s.weights().is_none());
+    /// assert!(Sample::from_values(vec![f64::NAN]).is_err());
+    /// ```
     pub fn from_values(values: Vec<f64>) -> Result<Sample, StatsError> {
         let mut b = SampleBuilder::new(false);
         for x in values {
@@ -206,6 +215,14 @@ impl Sample {
     ///
     /// # Errors
     /// [`StatsError::ProbabilityOutOfRange`] when `p` is not in `[0, 1]`.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::{quantile::QuantileType, sample::Sample};
+    /// // Weights 3 and 1 are the sample [1, 1, 1, 5]; type 1 at p = 0.8 is 5.
+    /// let s = Sample::from_pairs(vec![(1.0, 3.0), (5.0, 1.0)]).unwrap();
+    /// assert_eq!(s.quantile(0.8, QuantileType::new(1).unwrap()), Ok(Some(5.0)));
+    /// ```
     pub fn quantile(&self, p: f64, ty: QuantileType) -> Result<Option<f64>, StatsError> {
         match &self.weights {
             None => quantile_sorted(&self.values, p, ty),
@@ -309,6 +326,18 @@ impl SampleBuilder {
     /// # Errors
     /// [`StatsError::NotANumber`] when `x` is NaN; [`StatsError::BadWeight`] when `w`
     /// is negative or not finite.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::sample::SampleBuilder;
+    /// let mut b = SampleBuilder::new(false);
+    /// b.push(3.0).unwrap();
+    /// b.push_weighted(1.0, 2.0).unwrap(); // the 3.0 before it now has weight 1
+    /// b.push_weighted(7.0, 0.0).unwrap(); // no weight, no mass: dropped
+    /// assert_eq!(b.len(), 2);
+    /// let s = b.finish().unwrap();
+    /// assert_eq!((s.values(), s.weights()), (&[1.0, 3.0][..], Some(&[2.0, 1.0][..])));
+    /// ```
     pub fn push_weighted(&mut self, x: f64, w: f64) -> Result<(), StatsError> {
         if x.is_nan() {
             return Err(StatsError::NotANumber);

@@ -39,6 +39,14 @@ pub enum Dist {
 }
 
 /// Why a SQL value is not a usable distribution. The adapters add the function name.
+///
+/// # Example
+/// ```
+/// use ogive::value::Dist;
+/// use rusqlite::types::ValueRef;
+/// let e = Dist::from_sql(ValueRef::Blob(b"short"), 1).unwrap_err();
+/// assert!(e.to_string().starts_with("argument 1 is not an empirical distribution (bad header)"));
+/// ```
 #[derive(Debug, Clone, PartialEq)]
 pub enum ValueError {
     /// A BLOB that is not a valid empirical distribution.
@@ -94,6 +102,14 @@ impl Dist {
     /// # Errors
     /// [`ValueError::NotEmpirical`] for a BLOB that fails [`empirical::decode`];
     /// [`ValueError::NotADistribution`] for TEXT, INTEGER or REAL.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::Dist;
+    /// use rusqlite::types::ValueRef;
+    /// assert_eq!(Dist::from_sql(ValueRef::Null, 1), Ok(None));
+    /// assert!(Dist::from_sql(ValueRef::Integer(3), 1).is_err());
+    /// ```
     pub fn from_sql(v: ValueRef<'_>, arg: usize) -> Result<Option<Dist>, ValueError> {
         match v {
             ValueRef::Null => Ok(None),
@@ -107,14 +123,14 @@ impl Dist {
         }
     }
 
-    /// The empirical sample, for functions that need one (merging, steps, histograms).
-    pub fn empirical(&self) -> Option<&Sample> {
-        match self {
-            Dist::Empirical(s) => Some(s),
-        }
-    }
-
     /// The cdf at `t`. `None` when undefined.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::sample::Sample, value::Dist};
+    /// let d = Dist::Empirical(Sample::from_values(vec![1.0, 2.0]).unwrap());
+    /// assert_eq!(d.cdf(1.5), Some(0.5));
+    /// ```
     pub fn cdf(&self, t: f64) -> Option<f64> {
         match self {
             Dist::Empirical(s) => s.cdf(t),
@@ -126,6 +142,13 @@ impl Dist {
     ///
     /// # Errors
     /// [`StatsError::ProbabilityOutOfRange`] when `p` is not in `[0, 1]`.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::quantile::QuantileType, stats::sample::Sample, value::Dist};
+    /// let d = Dist::Empirical(Sample::from_values(vec![1.0, 2.0, 3.0]).unwrap());
+    /// assert_eq!(d.quantile(0.5, QuantileType::DEFAULT), Ok(Some(2.0)));
+    /// ```
     pub fn quantile(&self, p: f64, ty: QuantileType) -> Result<Option<f64>, StatsError> {
         match self {
             Dist::Empirical(s) => s.quantile(p, ty),
@@ -135,6 +158,15 @@ impl Dist {
     /// A density evaluator. For an empirical distribution, the Gaussian kernel density
     /// estimate with the given bandwidth. `None` when the density is undefined (for
     /// example, a bandwidth rule on fewer than two distinct values).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::kde::Bandwidth, stats::sample::Sample, value::Dist};
+    /// let d = Dist::Empirical(Sample::from_values(vec![0.0]).unwrap());
+    /// assert!(d.density(Bandwidth::Scott).is_none()); // one value: no spread
+    /// let f = d.density(Bandwidth::Fixed(1.0)).unwrap();
+    /// assert!((f.at(0.0) - 0.3989422804014327).abs() < 1e-16);
+    /// ```
     pub fn density(&self, bandwidth: Bandwidth) -> Option<Density<'_>> {
         match self {
             Dist::Empirical(s) => Kde::new(s, bandwidth).map(Density::Kernel),
@@ -142,6 +174,13 @@ impl Dist {
     }
 
     /// The number of observations: n of an unweighted sample, or the total weight.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::sample::Sample, value::{Dist, Size}};
+    /// let d = Dist::Empirical(Sample::from_pairs(vec![(1.0, 2.5)]).unwrap());
+    /// assert_eq!(d.size(), Size::Weight(2.5));
+    /// ```
     pub fn size(&self) -> Size {
         match self {
             Dist::Empirical(s) if s.is_weighted() => Size::Weight(s.total_weight()),
@@ -150,6 +189,13 @@ impl Dist {
     }
 
     /// The mean. `None` when undefined (an infinite value, an overflow).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::sample::Sample, value::Dist};
+    /// let d = Dist::Empirical(Sample::from_values(vec![1.0, 2.0, 6.0]).unwrap());
+    /// assert_eq!((d.mean(), d.sd()), (Some(3.0), Some(7f64.sqrt())));
+    /// ```
     pub fn mean(&self) -> Option<f64> {
         match self {
             Dist::Empirical(s) => Moments::of(s.values(), s.weights()).map(|m| m.mean),
@@ -159,6 +205,13 @@ impl Dist {
     /// The standard deviation; for an empirical distribution the sample one (divisor
     /// n - 1, or W - 1 with weights). `None` when undefined (one observation, an infinite
     /// value).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::sample::Sample, value::Dist};
+    /// let one = Dist::Empirical(Sample::from_values(vec![4.0]).unwrap());
+    /// assert_eq!(one.sd(), None);
+    /// ```
     pub fn sd(&self) -> Option<f64> {
         match self {
             Dist::Empirical(s) => Moments::of(s.values(), s.weights())?.sample_sd(),
@@ -166,6 +219,13 @@ impl Dist {
     }
 
     /// The numeric summary (mean, sd, quartiles, ...). `None` when undefined.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::sample::Sample, value::Dist};
+    /// let d = Dist::Empirical(Sample::from_values(vec![1.0, 2.0, 9.0]).unwrap());
+    /// assert_eq!(d.profile().unwrap().median, 2.0);
+    /// ```
     pub fn profile(&self) -> Option<Profile> {
         match self {
             Dist::Empirical(s) => s.profile(),
@@ -173,7 +233,7 @@ impl Dist {
     }
 }
 
-/// How many observations a distribution stands for.
+/// How many observations a distribution stands for (see [`Dist::size`]).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum Size {
     /// The count of an unweighted sample.
@@ -182,7 +242,7 @@ pub enum Size {
     Weight(f64),
 }
 
-/// A density, ready to evaluate at many points.
+/// A density, ready to evaluate at many points (see [`Dist::density`]).
 #[derive(Debug, Clone, Copy)]
 pub enum Density<'a> {
     /// A kernel density estimate of an empirical distribution.
