@@ -51,6 +51,9 @@ mod tests {
         assert!(!msg.is_null());
         let text = unsafe { CStr::from_ptr(msg) }.to_str().unwrap().to_owned();
         unsafe { free(msg.cast()) };
-        assert_eq!(text, "ogive needs SQLite 3.31.0 or newer; this host is SQLite 3.30.0");
+        assert_eq!(
+            text,
+            "ogive needs SQLite 3.31.0 or newer; this host is SQLite 3.30.0"
+        );
     }
 }

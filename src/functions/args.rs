@@ -9,6 +9,7 @@ use std::fmt;
 use rusqlite::types::ValueRef;
 
 use crate::stats::StatsError;
+use crate::value::{ValueError, describe as show};
 
 /// What an adapter can reject. The SQL function name is added by [`fail`].
 #[derive(Debug, Clone, PartialEq)]
@@ -27,6 +28,12 @@ pub enum ArgError {
     BadJson { what: &'static str, detail: String },
     /// An error from a kernel.
     Stats(StatsError),
+    /// A distribution argument that is not a valid distribution value.
+    Value(ValueError),
+    /// A table-valued function called without its required arguments.
+    Missing { signature: &'static str },
+    /// A panic caught at the boundary: a bug, reported instead of crashing the host.
+    Internal(String),
 }
 
 impl fmt::Display for ArgError {
@@ -45,6 +52,14 @@ impl fmt::Display for ArgError {
             ),
             ArgError::BadJson { what, detail } => write!(f, "{what} {detail}"),
             ArgError::Stats(e) => e.fmt(f),
+            ArgError::Value(e) => e.fmt(f),
+            ArgError::Missing { signature } => {
+                write!(f, "give the arguments, as in {signature}")
+            }
+            ArgError::Internal(what) => write!(
+                f,
+                "internal error: {what}; this is a bug in ogive, please report it"
+            ),
         }
     }
 }
@@ -52,6 +67,12 @@ impl fmt::Display for ArgError {
 impl From<StatsError> for ArgError {
     fn from(e: StatsError) -> Self {
         ArgError::Stats(e)
+    }
+}
+
+impl From<ValueError> for ArgError {
+    fn from(e: ValueError) -> Self {
+        ArgError::Value(e)
     }
 }
 
@@ -78,22 +99,6 @@ pub fn fail(function: &'static str, error: impl Into<ArgError>) -> rusqlite::Err
         function,
         error: error.into(),
     }))
-}
-
-/// Shows a value in an error message, shortened.
-fn show(v: ValueRef<'_>) -> String {
-    match v {
-        ValueRef::Null => "NULL".to_string(),
-        ValueRef::Integer(i) => i.to_string(),
-        ValueRef::Real(r) => r.to_string(),
-        ValueRef::Text(t) => {
-            let s = String::from_utf8_lossy(t);
-            let short: String = s.chars().take(40).collect();
-            let ellipsis = if s.chars().count() > 40 { "..." } else { "" };
-            format!("TEXT '{short}{ellipsis}'")
-        }
-        ValueRef::Blob(b) => format!("a BLOB of {} bytes", b.len()),
-    }
 }
 
 /// A numeric argument: NULL gives `None`; INTEGER and REAL convert to `f64`; TEXT that

@@ -380,9 +380,11 @@ impl Aggregate<QuantilesState, Value> for Quantiles {
 // ---------------------------------------------------------------------------------------
 // profile(x)
 
-/// The JSON text of a [`Profile`]; undefined fields and infinities are JSON null.
+/// The JSON text of a [`Profile`]; undefined fields and infinities are JSON null. A
+/// weighted profile (from `dist_profile` of a weighted distribution) adds
+/// `total_weight` after `n`.
 pub fn profile_json(p: &Profile) -> String {
-    json!({
+    let mut v = json!({
         "n": p.n,
         "mean": p.mean,
         "sd": p.sd,
@@ -393,8 +395,11 @@ pub fn profile_json(p: &Profile) -> String {
         "max": p.max,
         "skewness": p.skewness,
         "excess_kurtosis": p.excess_kurtosis,
-    })
-    .to_string()
+    });
+    if let (Some(w), Some(map)) = (p.total_weight, v.as_object_mut()) {
+        map.shift_insert(1, "total_weight".to_string(), json!(w));
+    }
+    v.to_string()
 }
 
 /// `profile(x)`.

@@ -8,9 +8,11 @@
 
 pub mod args;
 pub mod column;
+pub mod dist;
+pub(crate) mod table;
 
 use rusqlite::Connection;
-use rusqlite::functions::{Aggregate, FunctionFlags};
+use rusqlite::functions::{Aggregate, Context, FunctionFlags};
 use rusqlite::types::Value;
 
 /// How a function is used in SQL.
@@ -94,9 +96,21 @@ where
     Ok(())
 }
 
+/// Registers a scalar function for each arity of its row.
+pub(crate) fn scalar(
+    conn: &Connection,
+    def: &'static FunctionDef,
+    f: fn(&Context<'_>) -> rusqlite::Result<Value>,
+) -> rusqlite::Result<()> {
+    for &n in def.arities {
+        conn.create_scalar_function(def.name, n, flags(), move |ctx| f(ctx))?;
+    }
+    Ok(())
+}
+
 /// The registry: one slice of rows per adapter module, in the order the README lists
 /// them. A new module adds its `FUNCTIONS` here.
-pub static REGISTRY: &[&[FunctionDef]] = &[column::FUNCTIONS];
+pub static REGISTRY: &[&[FunctionDef]] = &[column::FUNCTIONS, dist::FUNCTIONS];
 
 /// Every registry row, in listing order.
 pub fn all() -> impl Iterator<Item = &'static FunctionDef> {

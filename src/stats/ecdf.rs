@@ -138,6 +138,30 @@ pub fn ecdf_sorted(sorted: &[f64], t: f64) -> Option<f64> {
     Some(k as f64 / sorted.len() as f64)
 }
 
+/// The weighted `F(t)` of sorted values with cumulative frequency weights
+/// (`cumulative[i]` is the weight of `values[..=i]`): the weight at or below `t` over the
+/// total weight, by binary search. `None` when there is no weight or the slices differ
+/// in length.
+///
+/// # Example
+/// ```
+/// use ogive::stats::ecdf::ecdf_cumulative;
+/// // Weights 3 and 1: three quarters of the mass is at 1.0.
+/// assert_eq!(ecdf_cumulative(&[1.0, 5.0], &[3.0, 4.0], 2.0), Some(0.75));
+/// ```
+pub fn ecdf_cumulative(values: &[f64], cumulative: &[f64], t: f64) -> Option<f64> {
+    if values.len() != cumulative.len() {
+        return None;
+    }
+    let total = *cumulative.last()?;
+    if total <= 0.0 {
+        return None;
+    }
+    let k = values.partition_point(|&x| x <= t);
+    let below = if k == 0 { 0.0 } else { cumulative[k - 1] };
+    Some((below / total).clamp(0.0, 1.0))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -8,6 +8,13 @@
 //!   unweighted by selection and with frequency weights.
 //! - [`ecdf`]: the empirical distribution function as a running count.
 //! - [`moments`]: the numeric summary behind `profile(x)`.
+//! - [`sample`]: an empirical distribution, a sorted sample with optional frequency
+//!   weights, evaluated with the kernels above.
+//! - [`kde`]: the Gaussian kernel density estimate, bandwidth by Scott's or Silverman's
+//!   rule.
+//! - [`band`]: the Dvoretzky-Kiefer-Wolfowitz confidence band of an empirical cdf.
+//! - [`histogram`]: equal-width histograms with the usual bin-count rules.
+//! - [`grid`]: evenly spaced grids for curves and bin edges.
 //!
 //! # NaN policy
 //!
@@ -17,9 +24,14 @@
 //! like any other number, and a result that is undefined (for example interpolating between
 //! `-inf` and `+inf`) is reported as `None`, which SQL shows as NULL.
 
+pub mod band;
 pub mod ecdf;
+pub mod grid;
+pub mod histogram;
+pub mod kde;
 pub mod moments;
 pub mod quantile;
+pub mod sample;
 pub mod sum;
 
 use std::fmt;
@@ -37,6 +49,31 @@ pub enum StatsError {
     NotANumber,
     /// Weights and values of different lengths.
     LengthMismatch { values: usize, weights: usize },
+    /// Frequency weights whose sum overflows a double.
+    WeightOverflow,
+    /// Values that should be sorted ascending are not; `index` is the first one out of
+    /// order.
+    NotSorted { index: usize },
+    /// A significance level outside `(0, 1)`.
+    AlphaOutOfRange(f64),
+    /// A kernel bandwidth that is not a positive finite number.
+    BadBandwidth(f64),
+    /// A bandwidth rule name that ogive does not know.
+    UnknownBandwidthRule(String),
+    /// A histogram bin rule name that ogive does not know.
+    UnknownBinRule(String),
+    /// A bin count outside `1..=histogram::MAX_BINS`.
+    BadBinCount(i64),
+    /// A bin rule that asks for more than `histogram::MAX_BINS` bins.
+    TooManyBins { rule: &'static str, bins: f64 },
+    /// A histogram of values that include an infinity (or span more than the doubles).
+    InfiniteValues,
+    /// More bins than there are doubles between the ends of the range.
+    BinsTooNarrow { bins: usize },
+    /// A grid whose ends are not finite with `lo < hi`.
+    BadGridRange { lo: f64, hi: f64 },
+    /// A grid size outside `2..=grid::MAX_POINTS`.
+    BadGridSize(i64),
 }
 
 impl fmt::Display for StatsError {
@@ -56,6 +93,56 @@ impl fmt::Display for StatsError {
             StatsError::LengthMismatch { values, weights } => write!(
                 f,
                 "got {values} values but {weights} weights; give one weight per value"
+            ),
+            StatsError::WeightOverflow => write!(
+                f,
+                "the weights sum to more than the largest double; scale them down"
+            ),
+            StatsError::NotSorted { index } => write!(
+                f,
+                "values must be sorted ascending, but value {index} is smaller than the one before it"
+            ),
+            StatsError::AlphaOutOfRange(a) => {
+                write!(f, "alpha must be between 0 and 1 (exclusive), got {a}")
+            }
+            StatsError::BadBandwidth(h) => write!(
+                f,
+                "bandwidth must be 'scott', 'silverman' or a positive number, got {h}"
+            ),
+            StatsError::UnknownBandwidthRule(s) => write!(
+                f,
+                "bandwidth must be 'scott', 'silverman' or a positive number, got '{s}'"
+            ),
+            StatsError::UnknownBinRule(s) => write!(
+                f,
+                "rule must be 'sturges', 'scott', 'fd', 'sqrt' or a whole number of bins, got '{s}'"
+            ),
+            StatsError::BadBinCount(n) => write!(
+                f,
+                "the number of bins must be a whole number from 1 to {}, got {n}",
+                histogram::MAX_BINS
+            ),
+            StatsError::TooManyBins { rule, bins } => write!(
+                f,
+                "rule '{rule}' asks for {bins} bins, more than {}; give a whole number of bins instead",
+                histogram::MAX_BINS
+            ),
+            StatsError::InfiniteValues => write!(
+                f,
+                "the distribution holds an infinite value (or its range overflows a double); a histogram needs a finite range"
+            ),
+            StatsError::BinsTooNarrow { bins } => write!(
+                f,
+                "{bins} bins would be narrower than the spacing of doubles over this range; give fewer bins"
+            ),
+            StatsError::BadGridRange { lo, hi } => write!(
+                f,
+                "lo and hi must be finite with lo < hi, got lo = {lo} and hi = {hi}"
+            ),
+            StatsError::BadGridSize(n) => write!(
+                f,
+                "n must be a whole number from 2 to {}, got {n}",
+                grid::MAX_POINTS
             ),
         }
     }

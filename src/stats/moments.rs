@@ -8,9 +8,13 @@
 //! *The Statistician* 47(1), 183-189, 1998 (the ones SAS, SPSS and Excel report; in scipy,
 //! `skew(x, bias=False)` and `kurtosis(x, fisher=True, bias=False)`). The standard
 //! deviation uses the `n - 1` divisor. Quartiles are Hyndman-Fan type 7.
+//!
+//! With frequency weights the total weight `W` replaces n throughout (`W - 1` divisor,
+//! `W` in the G1 and G2 adjustments), so whole-number weights give exactly the summary of
+//! the replicated sample.
 
-use super::quantile::{QuantileType, quantile_sorted};
-use super::sum::NeumaierSum;
+use super::quantile::{QuantileType, quantile_cumulative, quantile_sorted};
+use super::sum::{self, NeumaierSum};
 
 /// The summary of a sample. Fields that are undefined for the sample (the sd of one
 /// value, the skewness of a constant sample, any moment of a sample with an infinity)
@@ -19,6 +23,9 @@ use super::sum::NeumaierSum;
 pub struct Profile {
     /// Number of values.
     pub n: u64,
+    /// The total frequency weight `W` of a weighted sample (which then plays the part of
+    /// n in the moments); `None` for an unweighted one.
+    pub total_weight: Option<f64>,
     /// Arithmetic mean.
     pub mean: Option<f64>,
     /// Sample standard deviation (divisor n - 1); needs n >= 2.
@@ -50,69 +57,175 @@ impl Profile {
     /// assert_eq!(p.median, 2.5);
     /// ```
     pub fn from_sorted(sorted: &[f64]) -> Option<Profile> {
-        let n = sorted.len();
-        if n == 0 {
-            return None;
-        }
         let q = |p| {
             quantile_sorted(sorted, p, QuantileType::DEFAULT)
                 .ok()
                 .flatten()
         };
-        let nf = n as f64;
-        let finite = sorted.iter().all(|x| x.is_finite());
-        let mean = if finite {
-            let mut s = NeumaierSum::default();
-            sorted.iter().for_each(|&x| s.add(x));
-            Some(s.value() / nf).filter(|m| m.is_finite())
-        } else {
-            None
+        summarise(sorted, None, q)
+    }
+
+    /// Summarises values sorted ascending with frequency weights (finite, > 0, one per
+    /// value). The total weight `W` plays the part of n in every formula, so with
+    /// whole-number weights the result equals [`Profile::from_sorted`] of the values
+    /// repeated as often as their weights say. `n` is the number of values given and
+    /// [`Profile::total_weight`] is `W`. `None` for an empty slice or mismatched lengths.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::moments::Profile;
+    /// // [1, 1, 1, 5] as two weighted values.
+    /// let p = Profile::from_weighted_sorted(&[1.0, 5.0], &[3.0, 1.0]).unwrap();
+    /// assert_eq!((p.mean, p.median, p.total_weight), (Some(2.0), 1.0, Some(4.0)));
+    /// ```
+    pub fn from_weighted_sorted(sorted: &[f64], weights: &[f64]) -> Option<Profile> {
+        if sorted.len() != weights.len() {
+            return None;
+        }
+        let cumulative = sum::cumulative(weights);
+        let q = |p| {
+            quantile_cumulative(sorted, &cumulative, p, QuantileType::DEFAULT)
+                .ok()
+                .flatten()
         };
+        summarise(sorted, Some(weights), q)
+    }
+}
+
+/// The weighted central moments of a sample: total weight `W`, mean and the central
+/// moments `m_k = sum(w (x - mean)^k) / W` for k = 2, 3, 4, each by a compensated sum in a
+/// second pass over the data.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Moments {
+    /// The total weight `W` (n when unweighted).
+    pub weight: f64,
+    /// The (weighted) mean.
+    pub mean: f64,
+    /// Second central moment, divisor `W`.
+    pub m2: f64,
+    /// Third central moment, divisor `W`.
+    pub m3: f64,
+    /// Fourth central moment, divisor `W`.
+    pub m4: f64,
+}
+
+impl Moments {
+    /// The moments of `values` (any order) with optional frequency weights (one per
+    /// value). `None` when there is no weight, the lengths differ, a value is infinite or
+    /// the mean overflows.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::moments::Moments;
+    /// let m = Moments::of(&[1.0, 3.0], None).unwrap();
+    /// assert_eq!((m.mean, m.m2, m.population_sd()), (2.0, 1.0, 1.0));
+    /// ```
+    pub fn of(values: &[f64], weights: Option<&[f64]>) -> Option<Moments> {
+        if weights.is_some_and(|w| w.len() != values.len()) {
+            return None;
+        }
+        let weight = match weights {
+            None => values.len() as f64,
+            Some(w) => sum::sum(w),
+        };
+        if !(weight > 0.0 && weight.is_finite()) || values.iter().any(|x| !x.is_finite()) {
+            return None;
+        }
+        let w = |i: usize| weights.map_or(1.0, |w| w[i]);
+        let mut s = NeumaierSum::default();
+        match weights {
+            None => values.iter().for_each(|&x| s.add(x)),
+            Some(ws) => values.iter().zip(ws).for_each(|(&x, &w)| s.add(w * x)),
+        }
+        let mean = s.value() / weight;
+        if !mean.is_finite() {
+            return None;
+        }
         let (mut m2, mut m3, mut m4) = (
             NeumaierSum::default(),
             NeumaierSum::default(),
             NeumaierSum::default(),
         );
-        if let Some(mean) = mean {
-            for &x in sorted {
-                let d = x - mean;
-                let d2 = d * d;
-                m2.add(d2);
-                m3.add(d2 * d);
-                m4.add(d2 * d2);
-            }
+        for (i, &x) in values.iter().enumerate() {
+            let wi = w(i);
+            let d = x - mean;
+            let d2 = d * d;
+            m2.add(wi * d2);
+            m3.add(wi * (d2 * d));
+            m4.add(wi * (d2 * d2));
         }
-        let (m2, m3, m4) = (m2.value() / nf, m3.value() / nf, m4.value() / nf);
-        let spread = mean.is_some() && m2 > 0.0 && m2.is_finite();
-        let sd = mean
-            .filter(|_| n >= 2)
-            .map(|_| (m2 * nf / (nf - 1.0)).sqrt())
-            .filter(|s| s.is_finite());
-        let skewness = (spread && n >= 3)
-            .then(|| {
-                let g1 = m3 / m2.powf(1.5);
-                (nf * (nf - 1.0)).sqrt() / (nf - 2.0) * g1
-            })
-            .filter(|v| v.is_finite());
-        let excess_kurtosis = (spread && n >= 4)
-            .then(|| {
-                let g2 = m4 / (m2 * m2) - 3.0;
-                ((nf + 1.0) * g2 + 6.0) * (nf - 1.0) / ((nf - 2.0) * (nf - 3.0))
-            })
-            .filter(|v| v.is_finite());
-        Some(Profile {
-            n: n as u64,
+        Some(Moments {
+            weight,
             mean,
-            sd,
-            min: sorted[0],
-            q1: q(0.25)?,
-            median: q(0.5)?,
-            q3: q(0.75)?,
-            max: sorted[n - 1],
-            skewness,
-            excess_kurtosis,
+            m2: m2.value() / weight,
+            m3: m3.value() / weight,
+            m4: m4.value() / weight,
         })
     }
+
+    /// The standard deviation with divisor `W` (numpy's `std(x)`, ddof 0).
+    pub fn population_sd(&self) -> f64 {
+        self.m2.sqrt()
+    }
+
+    /// The sample standard deviation with divisor `W - 1`; `None` unless `W > 1` and the
+    /// result is finite.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::moments::Moments;
+    /// // [2, 4, 4, 4, 5, 5, 7, 9]: population sd 2, sample sd sqrt(32 / 7).
+    /// let m = Moments::of(&[2.0, 4.0, 5.0, 7.0, 9.0], Some(&[1.0, 3.0, 2.0, 1.0, 1.0])).unwrap();
+    /// assert_eq!(m.population_sd(), 2.0);
+    /// assert!((m.sample_sd().unwrap() - (32.0f64 / 7.0).sqrt()).abs() < 1e-15);
+    /// ```
+    pub fn sample_sd(&self) -> Option<f64> {
+        let w = self.weight;
+        (w > 1.0)
+            .then(|| (self.m2 * w / (w - 1.0)).sqrt())
+            .filter(|s| s.is_finite())
+    }
+}
+
+/// The shared body of the two constructors: `weights` is `None` for unit weights.
+fn summarise(
+    sorted: &[f64],
+    weights: Option<&[f64]>,
+    q: impl Fn(f64) -> Option<f64>,
+) -> Option<Profile> {
+    let n = sorted.len();
+    if n == 0 {
+        return None;
+    }
+    let m = Moments::of(sorted, weights);
+    let nf = m.map_or(0.0, |m| m.weight);
+    let spread = m.is_some_and(|m| m.m2 > 0.0 && m.m2.is_finite());
+    let (m2, m3, m4) = m.map_or((0.0, 0.0, 0.0), |m| (m.m2, m.m3, m.m4));
+    let skewness = (spread && nf > 2.0)
+        .then(|| {
+            let g1 = m3 / m2.powf(1.5);
+            (nf * (nf - 1.0)).sqrt() / (nf - 2.0) * g1
+        })
+        .filter(|v| v.is_finite());
+    let excess_kurtosis = (spread && nf > 3.0)
+        .then(|| {
+            let g2 = m4 / (m2 * m2) - 3.0;
+            ((nf + 1.0) * g2 + 6.0) * (nf - 1.0) / ((nf - 2.0) * (nf - 3.0))
+        })
+        .filter(|v| v.is_finite());
+    Some(Profile {
+        n: n as u64,
+        total_weight: weights.map(sum::sum),
+        mean: m.map(|m| m.mean),
+        sd: m.and_then(|m| m.sample_sd()),
+        min: sorted[0],
+        q1: q(0.25)?,
+        median: q(0.5)?,
+        q3: q(0.75)?,
+        max: sorted[n - 1],
+        skewness,
+        excess_kurtosis,
+    })
 }
 
 #[cfg(test)]
@@ -140,6 +253,25 @@ mod tests {
             (p.min, p.q1, p.median, p.q3, p.max),
             (1.0, 2.0, 3.0, 4.0, 10.0)
         );
+    }
+
+    #[test]
+    fn whole_weights_equal_replication() {
+        // Definition of frequency weights: [1, 2, 2, 3, 10, 10, 10] written with weights.
+        // Tolerance 1e-14 relative (the two paths add in different orders).
+        let w =
+            Profile::from_weighted_sorted(&[1.0, 2.0, 3.0, 10.0], &[1.0, 2.0, 1.0, 3.0]).unwrap();
+        let r = Profile::from_sorted(&[1.0, 2.0, 2.0, 3.0, 10.0, 10.0, 10.0]).unwrap();
+        let close = |a: Option<f64>, b: Option<f64>| {
+            let (a, b) = (a.unwrap(), b.unwrap());
+            (a - b).abs() <= 1e-14 * b.abs()
+        };
+        assert!(close(w.mean, r.mean));
+        assert!(close(w.sd, r.sd));
+        assert!(close(w.skewness, r.skewness));
+        assert!(close(w.excess_kurtosis, r.excess_kurtosis));
+        assert_eq!((w.q1, w.median, w.q3), (r.q1, r.median, r.q3));
+        assert_eq!((w.n, w.total_weight, r.total_weight), (4, Some(7.0), None));
     }
 
     #[test]

@@ -8,7 +8,7 @@
 //!
 //! | type | position (1-based) | note |
 //! |---|---|---|
-//! | 1 | `x(ceil(np))` | inverse of the ECDF |
+//! | 1 | `x(ceil(np))` | inverse of the ECDF (see below) |
 //! | 2 | as 1, averaging at the jumps | |
 //! | 3 | nearest order statistic `np - 1/2`, ties to the even one | |
 //! | 4 | `np` | linear interpolation of the ECDF |
@@ -20,7 +20,13 @@
 //!
 //! The arithmetic follows the one in `numpy.quantile` step for step (the same virtual
 //! index and the same two-sided linear interpolation), so results agree with it to the
-//! last bit in the cases the tests cover, not only to a tolerance.
+//! last bit in the cases the tests cover, not only to a tolerance. The one deliberate
+//! difference: type 1 picks the smallest `k` with `k / n >= p` computed in floating point,
+//! as the ECDF computes `k / n`, instead of `ceil(n p)`. The two differ only when `n p`
+//! rounds across a whole number (for example n = 25, p = 0.28: `25 * 0.28` is
+//! `7.000000000000001` in floating point, so `ceil` gives 8, while `F(x(7)) = 7 / 25` is
+//! exactly the double `0.28`), and the search keeps type 1 the exact inverse of the ECDF: `Q(p) <= t` exactly when
+//! `p <= F(t)`.
 //!
 //! # Frequency weights
 //!
@@ -30,7 +36,7 @@
 //! as often as its weight says; with fractional weights it is the natural extension, and
 //! type 1 equals `numpy.quantile(x, p, weights=w, method="inverted_cdf")`.
 
-use super::{StatsError, check_probability, check_weight, sum::NeumaierSum};
+use super::{StatsError, check_probability, check_weight, sum};
 
 /// One of the nine Hyndman-Fan quantile definitions.
 ///
@@ -93,7 +99,7 @@ fn plan(n: f64, p: f64, ty: QuantileType) -> Plan {
     };
     let alpha_beta = |alpha: f64, beta: f64| n * p + (alpha + p * (1.0 - alpha - beta)) - 1.0;
     match ty.0 {
-        1 => Plan::At(n * p),
+        1 => Plan::At(inverse_cdf_position(n, p)),
         2 => {
             let v = n * p - 1.0;
             let below = v.floor();
@@ -122,6 +128,23 @@ fn plan(n: f64, p: f64, ty: QuantileType) -> Plan {
         8 => continuous(alpha_beta(1.0 / 3.0, 1.0 / 3.0), n),
         _ => continuous(alpha_beta(3.0 / 8.0, 3.0 / 8.0), n),
     }
+}
+
+/// Type 1's position: the smallest whole `k` in `1..=n` with `k / n >= p`, the division
+/// done in floating point exactly as the ECDF computes `F = k / n`. Taking `ceil(n p)`
+/// alone (numpy's arithmetic) can land one position off when `n p` rounds across a
+/// whole number, and then `quantile(ecdf(t))` would exceed `t`; with this search type 1
+/// is the exact inverse of the ECDF ogive computes: `Q(p) <= t` if and only if
+/// `p <= F(t)`.
+fn inverse_cdf_position(n: f64, p: f64) -> f64 {
+    let mut k = (n * p).ceil().clamp(1.0, n.max(1.0));
+    while k > 1.0 && (k - 1.0) / n >= p {
+        k -= 1.0;
+    }
+    while k < n && k / n < p {
+        k += 1.0;
+    }
+    k
 }
 
 /// Type 2's plan: a virtual index with a fixed interpolation weight.
@@ -283,14 +306,8 @@ impl WeightedSorted {
         }
         pairs.retain(|&(_, w)| w > 0.0);
         pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
-        let mut acc = NeumaierSum::default();
-        let mut values = Vec::with_capacity(pairs.len());
-        let mut cumulative = Vec::with_capacity(pairs.len());
-        for (x, w) in pairs {
-            acc.add(w);
-            values.push(x);
-            cumulative.push(acc.value());
-        }
+        let (values, weights): (Vec<f64>, Vec<f64>) = pairs.into_iter().unzip();
+        let cumulative = sum::cumulative(&weights);
         Ok(WeightedSorted { values, cumulative })
     }
 
@@ -304,25 +321,64 @@ impl WeightedSorted {
         self.values.is_empty()
     }
 
-    /// The order statistic at 1-based real position `k`: the smallest value whose
-    /// cumulative weight reaches `k`, clamped to the first and last values.
-    fn at(&self, k: f64) -> f64 {
-        let i = self.cumulative.partition_point(|&c| c < k);
-        self.values[i.min(self.values.len() - 1)]
-    }
-
     /// The weighted quantile. `Ok(None)` when there is no weight or the result is
     /// undefined.
     ///
     /// # Errors
     /// [`StatsError::ProbabilityOutOfRange`] when `p` is not in `[0, 1]`.
     pub fn quantile(&self, p: f64, ty: QuantileType) -> Result<Option<f64>, StatsError> {
-        check_probability(p)?;
-        if self.is_empty() {
-            return Ok(None);
-        }
-        Ok(evaluate(plan(self.total_weight(), p, ty), |k| self.at(k)))
+        quantile_cumulative(&self.values, &self.cumulative, p, ty)
     }
+}
+
+/// The weighted quantile of values sorted ascending, given their cumulative frequency
+/// weights (`cumulative[i]` is the total weight of `values[..=i]`, non-decreasing, its
+/// last entry the total weight `W`). This is the kernel behind [`WeightedSorted`] and the
+/// weighted empirical distributions of [`crate::stats::sample`].
+///
+/// Returns `Ok(None)` when there are no values or the result is undefined.
+///
+/// # Errors
+/// [`StatsError::ProbabilityOutOfRange`] when `p` is not in `[0, 1]`;
+/// [`StatsError::LengthMismatch`] when the two slices differ in length.
+///
+/// # Example
+/// ```
+/// use ogive::stats::quantile::{quantile_cumulative, QuantileType};
+/// // 1.0 with weight 2 and 5.0 with weight 1 is the sample [1, 1, 5].
+/// let q = quantile_cumulative(&[1.0, 5.0], &[2.0, 3.0], 1.0, QuantileType::DEFAULT);
+/// assert_eq!(q.unwrap(), Some(5.0));
+/// ```
+pub fn quantile_cumulative(
+    values: &[f64],
+    cumulative: &[f64],
+    p: f64,
+    ty: QuantileType,
+) -> Result<Option<f64>, StatsError> {
+    check_probability(p)?;
+    if values.len() != cumulative.len() {
+        return Err(StatsError::LengthMismatch {
+            values: values.len(),
+            weights: cumulative.len(),
+        });
+    }
+    let Some(&total) = cumulative.last() else {
+        return Ok(None);
+    };
+    if ty.0 == 1 {
+        // The inverse of the weighted ECDF as ecdf_cumulative computes it: the first value
+        // whose cumulative share reaches p (numpy's weighted inverted_cdf searches the
+        // same normalised cumulative weights).
+        let i = cumulative.partition_point(|&c| c / total < p);
+        return Ok(Some(values[i.min(values.len() - 1)]));
+    }
+    // The order statistic at 1-based real position `k`: the smallest value whose
+    // cumulative weight reaches `k`, clamped to the first and last values.
+    let at = |k: f64| {
+        let i = cumulative.partition_point(|&c| c < k);
+        values[i.min(values.len() - 1)]
+    };
+    Ok(evaluate(plan(total, p, ty), at))
 }
 
 #[cfg(test)]
@@ -390,6 +446,23 @@ mod tests {
                 );
             }
         }
+    }
+
+    #[test]
+    fn type_1_inverts_the_ecdf_exactly() {
+        // n = 25, p = 0.28 = fl(7 / 25): the ECDF reaches 0.28 at x(7), so type 1 is x(7)
+        // by its definition (Hyndman and Fan 1996: the inverse of the ECDF). Here
+        // numpy.quantile(numpy.arange(1, 26), 0.28, method="inverted_cdf") gives 8.0,
+        // because 25 * 0.28 rounds to 7.000000000000001 (checked with numpy 2.4.6).
+        let x: Vec<f64> = (1..=25).map(f64::from).collect();
+        let ty = QuantileType::new(1).unwrap();
+        assert_eq!(quantile_sorted(&x, 0.28, ty), Ok(Some(7.0)));
+        assert_eq!(crate::stats::ecdf::ecdf_sorted(&x, 7.0), Some(0.28));
+        let mut scratch = x.clone();
+        assert_eq!(quantile_select(&mut scratch, 0.28, ty), Ok(Some(7.0)));
+        // The weighted path with unit weights agrees.
+        let w = WeightedSorted::new(x.iter().map(|&v| (v, 1.0)).collect()).unwrap();
+        assert_eq!(w.quantile(0.28, ty), Ok(Some(7.0)));
     }
 
     #[test]

@@ -55,6 +55,23 @@ pub fn sum(xs: &[f64]) -> f64 {
     s.value()
 }
 
+/// Running compensated sums: entry `i` is the sum of `xs[..=i]`, each a
+/// [`NeumaierSum`] value, so the last entry equals [`sum`] of the whole slice.
+///
+/// # Example
+/// ```
+/// assert_eq!(ogive::stats::sum::cumulative(&[1.0, 2.0, 0.5]), vec![1.0, 3.0, 3.5]);
+/// ```
+pub fn cumulative(xs: &[f64]) -> Vec<f64> {
+    let mut s = NeumaierSum::default();
+    xs.iter()
+        .map(|&x| {
+            s.add(x);
+            s.value()
+        })
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

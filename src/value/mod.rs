@@ -1,0 +1,280 @@
+//! The SQL values of ogive: distributions stored in tables and passed between functions.
+//!
+//! A distribution value is read from SQL once, at the boundary, by [`Dist::from_sql`],
+//! which checks it completely; everything after works on the checked [`Dist`]. Today a
+//! distribution is an empirical one, stored as a BLOB ([`empirical`], layout in
+//! docs/empirical-blob.md). Each variant of [`Dist`] answers the same questions (cdf,
+//! quantile, density, summaries), so a function written against [`Dist`] works for every
+//! kind of distribution; adding a kind means adding a variant, an arm in
+//! [`Dist::from_sql`] and an arm in each method here.
+
+pub mod empirical;
+
+use std::fmt;
+
+use rusqlite::types::ValueRef;
+
+use crate::stats::StatsError;
+use crate::stats::kde::{Bandwidth, Kde};
+use crate::stats::moments::{Moments, Profile};
+use crate::stats::quantile::QuantileType;
+use crate::stats::sample::Sample;
+use empirical::BlobError;
+
+/// A distribution read from SQL.
+///
+/// # Example
+/// ```
+/// use ogive::stats::sample::Sample;
+/// use ogive::value::{empirical, Dist};
+/// use rusqlite::types::ValueRef;
+/// let blob = empirical::encode(&Sample::from_values(vec![1.0, 2.0, 3.0, 4.0]).unwrap());
+/// let d = Dist::from_sql(ValueRef::Blob(&blob), 1).unwrap().unwrap();
+/// assert_eq!(d.cdf(2.5), Some(0.5));
+/// ```
+#[derive(Debug, Clone, PartialEq)]
+pub enum Dist {
+    /// An empirical distribution: a sorted sample with optional frequency weights.
+    Empirical(Sample),
+}
+
+/// Why a SQL value is not a usable distribution. The adapters add the function name.
+///
+/// # Example
+/// ```
+/// use ogive::value::Dist;
+/// use rusqlite::types::ValueRef;
+/// let e = Dist::from_sql(ValueRef::Blob(b"short"), 1).unwrap_err();
+/// assert!(e.to_string().starts_with("argument 1 is not an empirical distribution (bad header)"));
+/// ```
+#[derive(Debug, Clone, PartialEq)]
+pub enum ValueError {
+    /// A BLOB that is not a valid empirical distribution.
+    NotEmpirical { arg: usize, problem: BlobError },
+    /// A value of the wrong SQL type.
+    NotADistribution { arg: usize, got: String },
+}
+
+impl fmt::Display for ValueError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            ValueError::NotEmpirical { arg, problem } => write!(
+                f,
+                "argument {arg} is not an empirical distribution ({problem}); build one with dist_empirical(x)"
+            ),
+            ValueError::NotADistribution { arg, got } => write!(
+                f,
+                "argument {arg} must be a distribution value (a BLOB from dist_empirical); got {got}"
+            ),
+        }
+    }
+}
+
+impl std::error::Error for ValueError {}
+
+/// Shows a SQL value in an error message: its type and, shortened, its content.
+///
+/// # Example
+/// ```
+/// use rusqlite::types::ValueRef;
+/// assert_eq!(ogive::value::describe(ValueRef::Text(b"warm")), "TEXT 'warm'");
+/// assert_eq!(ogive::value::describe(ValueRef::Blob(&[0, 1])), "a BLOB of 2 bytes");
+/// ```
+pub fn describe(v: ValueRef<'_>) -> String {
+    match v {
+        ValueRef::Null => "NULL".to_string(),
+        ValueRef::Integer(i) => i.to_string(),
+        ValueRef::Real(r) => r.to_string(),
+        ValueRef::Text(t) => {
+            let s = String::from_utf8_lossy(t);
+            let short: String = s.chars().take(40).collect();
+            let ellipsis = if s.chars().count() > 40 { "..." } else { "" };
+            format!("TEXT '{short}{ellipsis}'")
+        }
+        ValueRef::Blob(b) => format!("a BLOB of {} bytes", b.len()),
+    }
+}
+
+impl Dist {
+    /// Reads argument number `arg` (1-based, for messages) of a SQL function as a
+    /// distribution. NULL gives `Ok(None)`.
+    ///
+    /// # Errors
+    /// [`ValueError::NotEmpirical`] for a BLOB that fails [`empirical::decode`];
+    /// [`ValueError::NotADistribution`] for TEXT, INTEGER or REAL.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::Dist;
+    /// use rusqlite::types::ValueRef;
+    /// assert_eq!(Dist::from_sql(ValueRef::Null, 1), Ok(None));
+    /// assert!(Dist::from_sql(ValueRef::Integer(3), 1).is_err());
+    /// ```
+    pub fn from_sql(v: ValueRef<'_>, arg: usize) -> Result<Option<Dist>, ValueError> {
+        match v {
+            ValueRef::Null => Ok(None),
+            ValueRef::Blob(b) => empirical::decode(b)
+                .map(|s| Some(Dist::Empirical(s)))
+                .map_err(|problem| ValueError::NotEmpirical { arg, problem }),
+            other => Err(ValueError::NotADistribution {
+                arg,
+                got: describe(other),
+            }),
+        }
+    }
+
+    /// The cdf at `t`. `None` when undefined.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::sample::Sample, value::Dist};
+    /// let d = Dist::Empirical(Sample::from_values(vec![1.0, 2.0]).unwrap());
+    /// assert_eq!(d.cdf(1.5), Some(0.5));
+    /// ```
+    pub fn cdf(&self, t: f64) -> Option<f64> {
+        match self {
+            Dist::Empirical(s) => s.cdf(t),
+        }
+    }
+
+    /// The p-quantile. For an empirical distribution, `ty` picks the Hyndman-Fan
+    /// definition. `Ok(None)` when undefined.
+    ///
+    /// # Errors
+    /// [`StatsError::ProbabilityOutOfRange`] when `p` is not in `[0, 1]`.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::quantile::QuantileType, stats::sample::Sample, value::Dist};
+    /// let d = Dist::Empirical(Sample::from_values(vec![1.0, 2.0, 3.0]).unwrap());
+    /// assert_eq!(d.quantile(0.5, QuantileType::DEFAULT), Ok(Some(2.0)));
+    /// ```
+    pub fn quantile(&self, p: f64, ty: QuantileType) -> Result<Option<f64>, StatsError> {
+        match self {
+            Dist::Empirical(s) => s.quantile(p, ty),
+        }
+    }
+
+    /// A density evaluator. For an empirical distribution, the Gaussian kernel density
+    /// estimate with the given bandwidth. `None` when the density is undefined (for
+    /// example, a bandwidth rule on fewer than two distinct values).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::kde::Bandwidth, stats::sample::Sample, value::Dist};
+    /// let d = Dist::Empirical(Sample::from_values(vec![0.0]).unwrap());
+    /// assert!(d.density(Bandwidth::Scott).is_none()); // one value: no spread
+    /// let f = d.density(Bandwidth::Fixed(1.0)).unwrap();
+    /// assert!((f.at(0.0) - 0.3989422804014327).abs() < 1e-16);
+    /// ```
+    pub fn density(&self, bandwidth: Bandwidth) -> Option<Density<'_>> {
+        match self {
+            Dist::Empirical(s) => Kde::new(s, bandwidth).map(Density::Kernel),
+        }
+    }
+
+    /// The number of observations: n of an unweighted sample, or the total weight.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::sample::Sample, value::{Dist, Size}};
+    /// let d = Dist::Empirical(Sample::from_pairs(vec![(1.0, 2.5)]).unwrap());
+    /// assert_eq!(d.size(), Size::Weight(2.5));
+    /// ```
+    pub fn size(&self) -> Size {
+        match self {
+            Dist::Empirical(s) if s.is_weighted() => Size::Weight(s.total_weight()),
+            Dist::Empirical(s) => Size::Count(s.len() as u64),
+        }
+    }
+
+    /// The mean. `None` when undefined (an infinite value, an overflow).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::sample::Sample, value::Dist};
+    /// let d = Dist::Empirical(Sample::from_values(vec![1.0, 2.0, 6.0]).unwrap());
+    /// assert_eq!((d.mean(), d.sd()), (Some(3.0), Some(7f64.sqrt())));
+    /// ```
+    pub fn mean(&self) -> Option<f64> {
+        match self {
+            Dist::Empirical(s) => Moments::of(s.values(), s.weights()).map(|m| m.mean),
+        }
+    }
+
+    /// The standard deviation; for an empirical distribution the sample one (divisor
+    /// n - 1, or W - 1 with weights). `None` when undefined (one observation, an infinite
+    /// value).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::sample::Sample, value::Dist};
+    /// let one = Dist::Empirical(Sample::from_values(vec![4.0]).unwrap());
+    /// assert_eq!(one.sd(), None);
+    /// ```
+    pub fn sd(&self) -> Option<f64> {
+        match self {
+            Dist::Empirical(s) => Moments::of(s.values(), s.weights())?.sample_sd(),
+        }
+    }
+
+    /// The numeric summary (mean, sd, quartiles, ...). `None` when undefined.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::sample::Sample, value::Dist};
+    /// let d = Dist::Empirical(Sample::from_values(vec![1.0, 2.0, 9.0]).unwrap());
+    /// assert_eq!(d.profile().unwrap().median, 2.0);
+    /// ```
+    pub fn profile(&self) -> Option<Profile> {
+        match self {
+            Dist::Empirical(s) => s.profile(),
+        }
+    }
+}
+
+/// How many observations a distribution stands for (see [`Dist::size`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Size {
+    /// The count of an unweighted sample.
+    Count(u64),
+    /// The total frequency weight of a weighted sample.
+    Weight(f64),
+}
+
+/// A density, ready to evaluate at many points (see [`Dist::density`]).
+#[derive(Debug, Clone, Copy)]
+pub enum Density<'a> {
+    /// A kernel density estimate of an empirical distribution.
+    Kernel(Kde<'a>),
+}
+
+impl Density<'_> {
+    /// The density at `t`.
+    pub fn at(&self, t: f64) -> f64 {
+        match self {
+            Density::Kernel(k) => k.density(t),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn sql_types_are_checked() {
+        assert_eq!(Dist::from_sql(ValueRef::Null, 1), Ok(None));
+        let e = Dist::from_sql(ValueRef::Text(b"{\"family\": \"normal\"}"), 1).unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "argument 1 must be a distribution value (a BLOB from dist_empirical); got TEXT '{\"family\": \"normal\"}'"
+        );
+        let e = Dist::from_sql(ValueRef::Blob(b"\x00\xff"), 2).unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "argument 2 is not an empirical distribution (bad header); build one with dist_empirical(x)"
+        );
+        assert!(Dist::from_sql(ValueRef::Real(1.5), 1).is_err());
+    }
+}
