@@ -18,6 +18,8 @@
 //! `-inf` and `+inf`) is reported as `None`, which SQL shows as NULL.
 
 pub mod ecdf;
+pub mod gof;
+pub mod ks;
 pub mod moments;
 pub mod quantile;
 pub mod sum;
