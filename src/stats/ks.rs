@@ -100,6 +100,9 @@ pub enum TestError {
     /// A weight that is negative, infinite or NaN, or a weight list of the wrong length
     /// (shown as NaN).
     BadWeight(f64),
+    /// The data admit no model of the kind asked for (a constant sample, a negative value
+    /// for an exponential model); says why.
+    Degenerate(String),
     /// The cdf returned something outside `[0, 1]` (or NaN).
     BadCdf {
         /// The argument.
@@ -132,6 +135,7 @@ impl fmt::Display for TestError {
                 write!(f, "give one finite weight >= 0 per value")
             }
             TestError::BadWeight(w) => write!(f, "weights must be finite and >= 0, got {w}"),
+            TestError::Degenerate(why) => write!(f, "{why}"),
             TestError::BadCdf { x, value } => write!(
                 f,
                 "the cdf must return a probability in [0, 1], got {value} at {x}"

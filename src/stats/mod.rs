@@ -8,6 +8,11 @@
 //!   unweighted by selection and with frequency weights.
 //! - [`ecdf`]: the empirical distribution function as a running count.
 //! - [`moments`]: the numeric summary behind `profile(x)`.
+//! - [`ks`]: Kolmogorov-Smirnov tests, two-sample (exact p-values by lattice paths,
+//!   conditional on ties) and one-sample (the exact distribution of Marsaglia, Tsang and Wang).
+//! - [`gof`]: two-sample Cramer-von Mises, k-sample Anderson-Darling, Wasserstein-1.
+//! - [`lilliefors`]: Kolmogorov-Smirnov with estimated normal or exponential parameters.
+//! - [`rng`]: a seeded generator for repeatable simulations.
 //!
 //! # NaN policy
 //!
@@ -20,8 +25,10 @@
 pub mod ecdf;
 pub mod gof;
 pub mod ks;
+pub mod lilliefors;
 pub mod moments;
 pub mod quantile;
+pub mod rng;
 pub mod sum;
 
 use std::fmt;
