@@ -9,6 +9,7 @@ use std::fmt;
 use rusqlite::types::ValueRef;
 
 use crate::stats::StatsError;
+use crate::stats::ks::TestError;
 
 /// What an adapter can reject. The SQL function name is added by [`fail`].
 #[derive(Debug, Clone, PartialEq)]
@@ -27,6 +28,8 @@ pub enum ArgError {
     BadJson { what: &'static str, detail: String },
     /// An error from a kernel.
     Stats(StatsError),
+    /// An error from a test kernel (Kolmogorov-Smirnov and the other comparisons).
+    Test(TestError),
 }
 
 impl fmt::Display for ArgError {
@@ -45,7 +48,14 @@ impl fmt::Display for ArgError {
             ),
             ArgError::BadJson { what, detail } => write!(f, "{what} {detail}"),
             ArgError::Stats(e) => e.fmt(f),
+            ArgError::Test(e) => e.fmt(f),
         }
+    }
+}
+
+impl From<TestError> for ArgError {
+    fn from(e: TestError) -> Self {
+        ArgError::Test(e)
     }
 }
 
