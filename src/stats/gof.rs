@@ -501,11 +501,12 @@ fn quadratic_fit(x: &[f64], y: &[f64]) -> [f64; 3] {
             .max_by(|&i, &j| a[i][col].abs().total_cmp(&a[j][col].abs()))
             .unwrap_or(col);
         a.swap(col, piv);
-        for r in 0..3 {
+        let pivot_row = a[col];
+        for (r, row) in a.iter_mut().enumerate() {
             if r != col {
-                let f = a[r][col] / a[col][col];
-                for c in col..4 {
-                    a[r][c] -= f * a[col][c];
+                let f = row[col] / pivot_row[col];
+                for (v, p) in row.iter_mut().zip(pivot_row).skip(col) {
+                    *v -= f * p;
                 }
             }
         }
