@@ -10,7 +10,7 @@ use serde_json::json;
 
 use super::args::{Constant, fail, number, text};
 use super::{FunctionDef, Kind, aggregate};
-use crate::stats::ks::{Alternative, KsResult, PMethod, ks_2samp};
+use crate::stats::ks::{Alternative, KsResult, PMethod, TestError, ks_2samp};
 
 type Result<T> = rusqlite::Result<T>;
 
@@ -54,6 +54,33 @@ pub fn ks_json(r: &KsResult) -> String {
     .to_string()
 }
 
+/// Reads an optional TEXT option at `idx` that must be the same on every row of a group,
+/// parsing it once (with `parse`) on the first row; a NULL option sets `null_option`.
+fn read_option(
+    ctx: &Context<'_>,
+    idx: usize,
+    what: &'static str,
+    seen: &mut Constant<String>,
+    null_option: &mut bool,
+    parse: impl FnOnce(&str) -> std::result::Result<(), TestError>,
+) -> Result<()> {
+    const NAME: &str = "ks_test";
+    if ctx.len() <= idx {
+        return Ok(());
+    }
+    let v = text(ctx.get_raw(idx), what).map_err(|e| fail(NAME, e))?;
+    if seen
+        .observe(v.map(str::to_owned), what)
+        .map_err(|e| fail(NAME, e))?
+    {
+        match v {
+            Some(v) => parse(v).map_err(|e| fail(NAME, e))?,
+            None => *null_option = true,
+        }
+    }
+    Ok(())
+}
+
 /// State of `ks_test`: the two samples and the per-group options.
 #[derive(Debug, Default)]
 pub struct KsTestState {
@@ -76,35 +103,21 @@ impl Aggregate<KsTestState, Value> for KsTest {
 
     fn step(&self, ctx: &mut Context<'_>, s: &mut KsTestState) -> Result<()> {
         const NAME: &str = "ks_test";
-        if ctx.len() > 2 {
-            let a = text(ctx.get_raw(2), "alternative").map_err(|e| fail(NAME, e))?;
-            if s.alternative
-                .observe(a.map(str::to_owned), "alternative")
-                .map_err(|e| fail(NAME, e))?
-            {
-                match a {
-                    Some(a) => {
-                        s.parsed_alternative =
-                            Some(Alternative::parse(a).map_err(|e| fail(NAME, e))?)
-                    }
-                    None => s.null_option = true,
-                }
-            }
-        }
-        if ctx.len() > 3 {
-            let m = text(ctx.get_raw(3), "method").map_err(|e| fail(NAME, e))?;
-            if s.method
-                .observe(m.map(str::to_owned), "method")
-                .map_err(|e| fail(NAME, e))?
-            {
-                match m {
-                    Some(m) => {
-                        s.parsed_method = Some(PMethod::parse(m).map_err(|e| fail(NAME, e))?)
-                    }
-                    None => s.null_option = true,
-                }
-            }
-        }
+        read_option(
+            ctx,
+            2,
+            "alternative",
+            &mut s.alternative,
+            &mut s.null_option,
+            |a| {
+                s.parsed_alternative = Some(Alternative::parse(a)?);
+                Ok(())
+            },
+        )?;
+        read_option(ctx, 3, "method", &mut s.method, &mut s.null_option, |m| {
+            s.parsed_method = Some(PMethod::parse(m)?);
+            Ok(())
+        })?;
         let x = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))?;
         let second = number(ctx.get_raw(1), "in_second").map_err(|e| fail(NAME, e))?;
         if let (Some(x), Some(second)) = (x, second) {

@@ -37,18 +37,8 @@
 
 use std::collections::HashMap;
 
-use super::ks::TestError;
+use super::ks::{TestError, check_sorted, next_pooled};
 use super::sum::NeumaierSum;
-
-fn check_sorted(xs: &[f64]) -> Result<(), TestError> {
-    if xs.iter().any(|x| x.is_nan()) {
-        return Err(TestError::NotANumber);
-    }
-    if xs.windows(2).any(|w| w[0] > w[1]) {
-        return Err(TestError::NotSorted);
-    }
-    Ok(())
-}
 
 fn need(xs: &[f64], needed: usize) -> Result<(), TestError> {
     if xs.len() < needed {
@@ -110,11 +100,8 @@ fn cvm_u4(x: &[f64], y: &[f64]) -> (i128, bool) {
     let (mut sx, mut sy) = (0i128, 0i128);
     let mut ties = false;
     while i < m || j < n {
-        let v = match (x.get(i), y.get(j)) {
-            (Some(&a), Some(&b)) => a.min(b),
-            (Some(&a), None) => a,
-            (None, Some(&b)) => b,
-            (None, None) => break,
+        let Some(v) = next_pooled(x, i, y, j) else {
+            break;
         };
         let start = i + j; // values before this block
         let (i0, j0) = (i, j);
@@ -574,16 +561,14 @@ pub fn wasserstein_1(
     let mut dist = NeumaierSum::default();
     let mut prev: Option<f64> = None;
     while i < x.len() || j < y.len() {
-        let v = match (x.get(i), y.get(j)) {
-            (Some(&a), Some(&b)) => a.min(b),
-            (Some(&a), None) => a,
-            (None, Some(&b)) => b,
-            (None, None) => break,
+        let Some(v) = next_pooled(x, i, y, j) else {
+            break;
         };
         if let Some(p) = prev {
             let gap = v - p;
             let diff = (cx.value() / tx - cy.value() / ty).abs();
-            if diff > 0.0 {
+            // A gap between two equal infinities is NaN and carries no mass.
+            if diff > 0.0 && gap > 0.0 {
                 dist.add(diff * gap);
             }
         }
@@ -603,24 +588,8 @@ pub fn wasserstein_1(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::stats::fixtures::{compare as fixture, floats, rel_close};
     use crate::stats::ks::{MethodUsed, PMethod};
-
-    /// Reference values from scipy 1.17.1, made by tests/fixtures/gen_compare.py.
-    fn fixture() -> serde_json::Value {
-        serde_json::from_str(include_str!("../../tests/fixtures/compare.json")).unwrap()
-    }
-
-    fn floats(v: &serde_json::Value) -> Vec<f64> {
-        v.as_array()
-            .unwrap()
-            .iter()
-            .map(|x| x.as_f64().unwrap())
-            .collect()
-    }
-
-    fn rel_close(got: f64, want: f64, rel: f64) -> bool {
-        got == want || (got - want).abs() <= rel * want.abs().max(got.abs())
-    }
 
     #[test]
     fn cvm_matches_scipy() {

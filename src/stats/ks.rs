@@ -297,7 +297,8 @@ impl TwoSampleStatistic {
     }
 }
 
-fn check_sorted(xs: &[f64]) -> Result<(), TestError> {
+/// Checks that a slice is free of NaN and sorted ascending.
+pub(crate) fn check_sorted(xs: &[f64]) -> Result<(), TestError> {
     if xs.iter().any(|x| x.is_nan()) {
         return Err(TestError::NotANumber);
     }
@@ -305,6 +306,17 @@ fn check_sorted(xs: &[f64]) -> Result<(), TestError> {
         return Err(TestError::NotSorted);
     }
     Ok(())
+}
+
+/// The next pooled value of two sorted slices read up to `i` and `j`: the smaller of `x[i]`
+/// and `y[j]`, `None` when both are used up.
+pub(crate) fn next_pooled(x: &[f64], i: usize, y: &[f64], j: usize) -> Option<f64> {
+    match (x.get(i), y.get(j)) {
+        (Some(&a), Some(&b)) => Some(a.min(b)),
+        (Some(&a), None) => Some(a),
+        (None, Some(&b)) => Some(b),
+        (None, None) => None,
+    }
 }
 
 /// Computes the two-sample statistics of sorted samples `x` and `y`.
@@ -334,11 +346,8 @@ pub fn two_sample_statistic(x: &[f64], y: &[f64]) -> Result<TwoSampleStatistic, 
     let (mut plus, mut minus) = (0i128, 0i128);
     let mut blocks = Vec::new();
     while i < n1 || j < n2 {
-        let v = match (x.get(i), y.get(j)) {
-            (Some(&a), Some(&b)) => a.min(b),
-            (Some(&a), None) => a,
-            (None, Some(&b)) => b,
-            (None, None) => break,
+        let Some(v) = next_pooled(x, i, y, j) else {
+            break;
         };
         let start = i + j;
         while i < n1 && x[i] == v {
@@ -1168,6 +1177,7 @@ fn pelz_good_cdf(n: u64, x: f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::stats::fixtures::{compare as fixture, floats, rel_close};
 
     /// Exhaustive enumeration of every split of the pooled sample: the share of splits whose
     /// statistic is at least the observed one. The reference for the exact p-value with ties.
@@ -1319,24 +1329,6 @@ mod tests {
         let n = 150u64;
         let direct: f64 = (1..=n).map(|i| (i as f64 / n as f64).ln()).sum();
         assert!((ln_factorial_over_power(n) - direct).abs() < 1e-11 * direct.abs());
-    }
-
-    /// Reference values from scipy 1.17.1, made by tests/fixtures/gen_compare.py (each record
-    /// names its scipy call).
-    fn fixture() -> serde_json::Value {
-        serde_json::from_str(include_str!("../../tests/fixtures/compare.json")).unwrap()
-    }
-
-    fn floats(v: &serde_json::Value) -> Vec<f64> {
-        v.as_array()
-            .unwrap()
-            .iter()
-            .map(|x| x.as_f64().unwrap())
-            .collect()
-    }
-
-    fn rel_close(got: f64, want: f64, rel: f64) -> bool {
-        got == want || (got - want).abs() <= rel * want.abs().max(got.abs())
     }
 
     #[test]

@@ -23,6 +23,8 @@
 //! `-inf` and `+inf`) is reported as `None`, which SQL shows as NULL.
 
 pub mod ecdf;
+#[cfg(test)]
+mod fixtures;
 pub mod gof;
 pub mod ks;
 pub mod lilliefors;
