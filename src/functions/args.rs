@@ -10,6 +10,7 @@ use rusqlite::types::ValueRef;
 
 use crate::stats::StatsError;
 use crate::value::{ValueError, describe as show};
+use crate::stats::ks::TestError;
 
 /// What an adapter can reject. The SQL function name is added by [`fail`].
 #[derive(Debug, Clone, PartialEq)]
@@ -34,6 +35,8 @@ pub enum ArgError {
     Missing { signature: &'static str },
     /// A panic caught at the boundary: a bug, reported instead of crashing the host.
     Internal(String),
+    /// An error from a test kernel (Kolmogorov-Smirnov and the other comparisons).
+    Test(TestError),
 }
 
 impl fmt::Display for ArgError {
@@ -60,7 +63,14 @@ impl fmt::Display for ArgError {
                 f,
                 "internal error: {what}; this is a bug in ogive, please report it"
             ),
+            ArgError::Test(e) => e.fmt(f),
         }
+    }
+}
+
+impl From<TestError> for ArgError {
+    fn from(e: TestError) -> Self {
+        ArgError::Test(e)
     }
 }
 

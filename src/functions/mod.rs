@@ -10,6 +10,7 @@ pub mod args;
 pub mod column;
 pub mod dist;
 pub(crate) mod table;
+pub mod compare;
 
 use rusqlite::Connection;
 use rusqlite::functions::{Aggregate, Context, FunctionFlags};
@@ -110,7 +111,7 @@ pub(crate) fn scalar(
 
 /// The registry: one slice of rows per adapter module, in the order the README lists
 /// them. A new module adds its `FUNCTIONS` here.
-pub static REGISTRY: &[&[FunctionDef]] = &[column::FUNCTIONS, dist::FUNCTIONS];
+pub static REGISTRY: &[&[FunctionDef]] = &[column::FUNCTIONS, dist::FUNCTIONS, compare::FUNCTIONS];
 
 /// Every registry row, in listing order.
 pub fn all() -> impl Iterator<Item = &'static FunctionDef> {

@@ -15,6 +15,11 @@
 //! - [`band`]: the Dvoretzky-Kiefer-Wolfowitz confidence band of an empirical cdf.
 //! - [`histogram`]: equal-width histograms with the usual bin-count rules.
 //! - [`grid`]: evenly spaced grids for curves and bin edges.
+//! - [`ks`]: Kolmogorov-Smirnov tests, two-sample (exact p-values by lattice paths,
+//!   conditional on ties) and one-sample (the exact distribution of Marsaglia, Tsang and Wang).
+//! - [`gof`]: two-sample Cramer-von Mises, k-sample Anderson-Darling, Wasserstein-1.
+//! - [`lilliefors`]: Kolmogorov-Smirnov with estimated normal or exponential parameters.
+//! - [`rng`]: a seeded generator for repeatable simulations.
 //!
 //! # NaN policy
 //!
@@ -32,6 +37,12 @@ pub mod kde;
 pub mod moments;
 pub mod quantile;
 pub mod sample;
+#[cfg(test)]
+mod fixtures;
+pub mod gof;
+pub mod ks;
+pub mod lilliefors;
+pub mod rng;
 pub mod sum;
 
 use std::fmt;
