@@ -80,8 +80,8 @@ impl fmt::Display for ArgError {
             ArgError::FractionalWeight { arg, weight } => write!(
                 f,
                 "argument {arg} has the fractional weight {weight}; this test counts a weight as \
-                 that many rows, so weights must be whole numbers (metric 'wasserstein' takes any \
-                 weights)"
+                 that many rows, so weights must be whole numbers (dist_distance's metric 'wasserstein' \
+                 takes any weights)"
             ),
             ArgError::TooManyRows { arg, total, limit } => write!(
                 f,

@@ -233,6 +233,9 @@ impl Aggregate<KsTestState, Value> for KsTest {
 /// weight `w` becomes `w` rows in memory (80 MB at this limit).
 pub const MAX_REPLICATED_ROWS: u64 = 10_000_000;
 
+/// The sorted rows of one sample of a rank test, borrowed from the value when unweighted.
+type Rows<'a> = Cow<'a, [f64]>;
+
 /// The values of empirical distribution argument `arg` as the rows of a rank test, sorted:
 /// an unweighted sample's values as they are, and with whole-number weights each value
 /// repeated weight times (the test on the replicated rows, exactly).
@@ -240,7 +243,7 @@ pub const MAX_REPLICATED_ROWS: u64 = 10_000_000;
 /// # Errors
 /// [`ArgError::FractionalWeight`] for a weight that is not a whole number;
 /// [`ArgError::TooManyRows`] when the weights sum to more than [`MAX_REPLICATED_ROWS`].
-fn rows_of(s: &Sample, arg: usize) -> std::result::Result<Cow<'_, [f64]>, ArgError> {
+fn rows_of(s: &Sample, arg: usize) -> std::result::Result<Rows<'_>, ArgError> {
     let Some(weights) = s.weights() else {
         return Ok(Cow::Borrowed(s.values()));
     };
@@ -375,26 +378,63 @@ fn dist_distance(ctx: &Context<'_>) -> Result<Value> {
         #[allow(unreachable_patterns)]
         (d1, _) => return Err(fail(NAME, not_empirical(d1))),
     };
+    // The rank metrics read whole weights as replicated rows.
+    let rows = || -> Result<(Rows<'_>, Rows<'_>)> {
+        let xs = rows_of(x, 1).map_err(|e| fail(NAME, e))?;
+        let ys = rows_of(y, 2).map_err(|e| fail(NAME, e))?;
+        Ok((xs, ys))
+    };
     let out = match metric {
         Metric::Wasserstein => {
-            let w = wasserstein_1(x.values(), x.weights(), y.values(), y.weights());
-            w.map(|w| json!({"metric": metric.name(), "statistic": w, "n1": size_json(x), "n2": size_json(y)}))
+            wasserstein_1(x.values(), x.weights(), y.values(), y.weights()).map(|w| {
+                json!({
+                    "metric": metric.name(),
+                    "statistic": w,
+                    "n1": size_json(x),
+                    "n2": size_json(y),
+                })
+            })
         }
-        rank => {
-            let xs = rows_of(x, 1).map_err(|e| fail(NAME, e))?;
-            let ys = rows_of(y, 2).map_err(|e| fail(NAME, e))?;
-            let (n1, n2) = (xs.len(), ys.len());
-            match rank {
-                Metric::Ks => ks_2samp(&xs, &ys, Alternative::TwoSided, PMethod::Auto).map(|r| {
-                    json!({"metric": "ks", "statistic": r.d, "p": r.p, "method": r.method.name(), "n1": n1, "n2": n2})
-                }),
-                Metric::Cvm => cramer_von_mises_2samp(&xs, &ys, PMethod::Auto).map(|r| {
-                    json!({"metric": "cvm", "statistic": r.statistic, "p": r.p, "method": r.method.name(), "n1": n1, "n2": n2})
-                }),
-                _ => anderson_darling_ksamp(&[&xs, &ys]).map(|r| {
-                    json!({"metric": "ad", "statistic": r.statistic, "a2akn": r.a2akn, "p": r.p, "p_range": r.p_range.name(), "method": "interpolated", "n1": n1, "n2": n2})
-                }),
-            }
+        Metric::Ks => {
+            let (xs, ys) = rows()?;
+            ks_2samp(&xs, &ys, Alternative::TwoSided, PMethod::Auto).map(|r| {
+                json!({
+                    "metric": metric.name(),
+                    "statistic": r.d,
+                    "p": r.p,
+                    "method": r.method.name(),
+                    "n1": r.n1,
+                    "n2": r.n2,
+                })
+            })
+        }
+        Metric::Cvm => {
+            let (xs, ys) = rows()?;
+            cramer_von_mises_2samp(&xs, &ys, PMethod::Auto).map(|r| {
+                json!({
+                    "metric": metric.name(),
+                    "statistic": r.statistic,
+                    "p": r.p,
+                    "method": r.method.name(),
+                    "n1": xs.len(),
+                    "n2": ys.len(),
+                })
+            })
+        }
+        Metric::Ad => {
+            let (xs, ys) = rows()?;
+            anderson_darling_ksamp(&[&xs, &ys]).map(|r| {
+                json!({
+                    "metric": metric.name(),
+                    "statistic": r.statistic,
+                    "a2akn": r.a2akn,
+                    "p": r.p,
+                    "p_range": r.p_range.name(),
+                    "method": "interpolated",
+                    "n1": xs.len(),
+                    "n2": ys.len(),
+                })
+            })
         }
     };
     match out {
@@ -402,5 +442,43 @@ fn dist_distance(ctx: &Context<'_>) -> Result<Value> {
         // Too small for the metric: no statistic to report (documented).
         Err(TestError::TooFewValues { .. }) => Ok(Value::Null),
         Err(e) => Err(fail(NAME, e)),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn whole_weights_become_replicated_rows() {
+        // By the definition of frequency weights: a value with weight w stands for w rows.
+        let s = Sample::from_pairs(vec![(2.0, 3.0), (1.0, 1.0), (5.0, 2.0)]).unwrap();
+        assert_eq!(&*rows_of(&s, 1).unwrap(), &[1.0, 2.0, 2.0, 2.0, 5.0, 5.0]);
+        let plain = Sample::from_values(vec![3.0, 1.0]).unwrap();
+        assert!(matches!(rows_of(&plain, 1), Ok(Cow::Borrowed(&[1.0, 3.0]))));
+        let fractional = Sample::from_pairs(vec![(1.0, 2.0), (4.0, 0.5)]).unwrap();
+        assert_eq!(
+            rows_of(&fractional, 2).unwrap_err(),
+            ArgError::FractionalWeight {
+                arg: 2,
+                weight: 0.5
+            }
+        );
+        let heavy = Sample::from_pairs(vec![(1.0, 2e7)]).unwrap();
+        assert!(matches!(
+            rows_of(&heavy, 1),
+            Err(ArgError::TooManyRows { arg: 1, .. })
+        ));
+    }
+
+    #[test]
+    fn metrics_are_named() {
+        for name in ["ks", "wasserstein", "cvm", "ad"] {
+            assert_eq!(Metric::parse(&name.to_uppercase()).unwrap().name(), name);
+        }
+        assert_eq!(
+            fail("dist_distance", Metric::parse("energy").unwrap_err()).to_string(),
+            "dist_distance: metric must be 'ks', 'wasserstein', 'cvm' or 'ad', got 'energy'"
+        );
     }
 }
