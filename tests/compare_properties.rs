@@ -32,6 +32,15 @@ fn connection() -> Connection {
     conn
 }
 
+/// A connection holding samples `x` (s = 1) and `y` (s = 2), with weights cycled from `wx`
+/// and `wy` when given (1 otherwise).
+fn loaded(x: &[f64], y: &[f64], wx: Option<&[u8]>, wy: Option<&[u8]>) -> Connection {
+    let conn = connection();
+    insert(&conn, 1, x, wx);
+    insert(&conn, 2, y, wy);
+    conn
+}
+
 fn insert(conn: &Connection, s: i64, x: &[f64], w: Option<&[u8]>) {
     for (i, &v) in x.iter().enumerate() {
         let w = w.map_or(1.0, |w| f64::from(w[i % w.len()]));
@@ -53,9 +62,7 @@ proptest! {
         x in prop::collection::vec(value(), 1..30),
         y in prop::collection::vec(value(), 1..30),
     ) {
-        let conn = connection();
-        insert(&conn, 1, &x, None);
-        insert(&conn, 2, &y, None);
+        let conn = loaded(&x, &y, None, None);
         for alt in ["two-sided", "less", "greater"] {
             let via_values = text(&conn, &format!("SELECT dist_ks({DISTS}, ?1)"), [alt]);
             let via_rows = text(&conn, "SELECT ks_test(x, s = 2, ?1) FROM t", [alt]);
@@ -71,9 +78,7 @@ proptest! {
         wx in prop::collection::vec(0u8..4, 1..15),
         wy in prop::collection::vec(1u8..4, 1..15),
     ) {
-        let conn = connection();
-        insert(&conn, 1, &x, Some(&wx));
-        insert(&conn, 2, &y, Some(&wy));
+        let conn = loaded(&x, &y, Some(&wx), Some(&wy));
         // The replicated rows, as table r.
         conn.execute_batch(
             "CREATE TABLE r(s INTEGER, x REAL);
@@ -101,9 +106,7 @@ proptest! {
         x in prop::collection::vec(value(), 1..25),
         y in prop::collection::vec(value(), 1..25),
     ) {
-        let conn = connection();
-        insert(&conn, 1, &x, None);
-        insert(&conn, 2, &y, None);
+        let conn = loaded(&x, &y, None, None);
         let swapped = "(SELECT dist_empirical(x) FROM t WHERE s = 2), \
                        (SELECT dist_empirical(x) FROM t WHERE s = 1)";
         let parse = |t: Option<String>| t.map(|t| serde_json::from_str::<Json>(&t).unwrap());
