@@ -12,9 +12,10 @@
 //! The weights of an empirical value are frequency weights. The rank tests (Kolmogorov-Smirnov,
 //! Cramer-von Mises, Anderson-Darling) count a whole-number weight `w` as `w` rows holding the
 //! value, so `dist_ks(dist_empirical(x, w), ...)` is exactly the test on the replicated rows,
-//! up to [`MAX_REPLICATED_ROWS`] rows per distribution. A fractional weight has no such reading (the
-//! tests' null distributions count rows) and is a named error, never a p-value for some
-//! made-up sample size. The Wasserstein distance needs no counts and takes any weights.
+//! up to [`MAX_REPLICATED_ROWS`] rows per distribution. A fractional weight has no such
+//! reading (the tests' null distributions count rows) and is a named error, never a p-value
+//! for some made-up sample size. The Wasserstein distance needs no counts and takes any
+//! weights.
 
 use std::borrow::Cow;
 
