@@ -9,8 +9,8 @@ use std::fmt;
 use rusqlite::types::ValueRef;
 
 use crate::stats::StatsError;
-use crate::value::{ValueError, describe as show};
 use crate::stats::ks::TestError;
+use crate::value::{ValueError, describe as show};
 
 /// What an adapter can reject. The SQL function name is added by [`fail`].
 #[derive(Debug, Clone, PartialEq)]
@@ -37,6 +37,15 @@ pub enum ArgError {
     Internal(String),
     /// An error from a test kernel (Kolmogorov-Smirnov and the other comparisons).
     Test(TestError),
+    /// A distribution argument of a kind the function does not take (it needs an
+    /// empirical one).
+    NotEmpirical { arg: usize },
+    /// A weighted empirical distribution given to a rank test, whose weights are not all
+    /// whole numbers (a rank test counts a weight as that many rows).
+    FractionalWeight { arg: usize, weight: f64 },
+    /// A weighted empirical distribution whose weights stand for more rows than a rank test
+    /// replicates.
+    TooManyRows { arg: usize, total: f64, limit: u64 },
 }
 
 impl fmt::Display for ArgError {
@@ -64,6 +73,21 @@ impl fmt::Display for ArgError {
                 "internal error: {what}; this is a bug in ogive, please report it"
             ),
             ArgError::Test(e) => e.fmt(f),
+            ArgError::NotEmpirical { arg } => write!(
+                f,
+                "argument {arg} must be an empirical distribution (a BLOB from dist_empirical)"
+            ),
+            ArgError::FractionalWeight { arg, weight } => write!(
+                f,
+                "argument {arg} has the fractional weight {weight}; this test counts a weight as \
+                 that many rows, so weights must be whole numbers (dist_distance's metric 'wasserstein' \
+                 takes any weights)"
+            ),
+            ArgError::TooManyRows { arg, total, limit } => write!(
+                f,
+                "argument {arg} has weights summing to {total}; this test counts a weight as that \
+                 many rows, up to {limit} per distribution"
+            ),
         }
     }
 }

@@ -1,27 +1,47 @@
-//! Two-sample comparison aggregates: `ks_test`.
+//! Two-sample comparisons: the `ks_test` aggregate over one column split by a boolean, and
+//! the scalars `dist_ks` and `dist_distance` on two distribution values.
 //!
-//! Adapters only: they read and check arguments, split the rows into the two samples, and
-//! hand the sorted samples to [`crate::stats::ks`]. NULL x and NULL `in_second` rows are
-//! skipped; a group where either sample has no values gives NULL.
+//! Adapters only: they read and check arguments, turn the rows or the distribution values
+//! into sorted samples, and hand them to [`crate::stats::ks`] and [`crate::stats::gof`].
+//! NULL x and NULL `in_second` rows are skipped; a group where either sample has no values
+//! gives NULL, as does a NULL distribution argument (`dist_empirical` of an empty group is
+//! NULL).
+//!
+//! # Weighted empirical values in rank tests
+//!
+//! The weights of an empirical value are frequency weights. The rank tests (Kolmogorov-Smirnov,
+//! Cramer-von Mises, Anderson-Darling) count a whole-number weight `w` as `w` rows holding the
+//! value, so `dist_ks(dist_empirical(x, w), ...)` is exactly the test on the replicated rows,
+//! up to [`MAX_REPLICATED_ROWS`] rows per distribution. A fractional weight has no such
+//! reading (the tests' null distributions count rows) and is a named error, never a p-value
+//! for some made-up sample size. The Wasserstein distance needs no counts and takes any
+//! weights.
+
+use std::borrow::Cow;
 
 use rusqlite::functions::{Aggregate, Context};
 use rusqlite::types::Value;
 use serde_json::json;
 
-use super::args::{Constant, fail, number, text};
-use super::{FunctionDef, Kind, aggregate};
+use super::args::{ArgError, Constant, fail, number, text};
+use super::dist::dist_arg;
+use super::{FunctionDef, Kind, aggregate, scalar};
+use crate::stats::gof::{anderson_darling_ksamp, cramer_von_mises_2samp, wasserstein_1};
 use crate::stats::ks::{Alternative, KsResult, PMethod, TestError, ks_2samp};
+use crate::stats::sample::Sample;
+use crate::value::Dist;
 
 type Result<T> = rusqlite::Result<T>;
 
 /// The registry rows of this module.
-pub static FUNCTIONS: &[FunctionDef] = &[FunctionDef {
-    name: "ks_test",
-    kind: Kind::Aggregate,
-    arities: &[2, 3, 4],
-    signature: "ks_test(x, in_second [, alternative [, method]])",
-    summary: "two-sample Kolmogorov-Smirnov test of x split by a boolean: JSON {d, p, n1, n2, method, alternative}",
-    help: "Compares the rows where in_second is false (sample 1) with those where it is true \
+pub static FUNCTIONS: &[FunctionDef] = &[
+    FunctionDef {
+        name: "ks_test",
+        kind: Kind::Aggregate,
+        arities: &[2, 3, 4],
+        signature: "ks_test(x, in_second [, alternative [, method]])",
+        summary: "two-sample Kolmogorov-Smirnov test of x split by a boolean: JSON {d, p, n1, n2, method, alternative}",
+        help: "Compares the rows where in_second is false (sample 1) with those where it is true \
            (sample 2), as in ks_test(temp_c, week = 48). alternative: 'two-sided' (default; \
            d = max |F1 - F2|), 'less' (d = max(F2 - F1): sample 1 tends to be larger) or \
            'greater' (d = max(F1 - F2): sample 1 tends to be smaller), with scipy's meaning. \
@@ -35,11 +55,67 @@ pub static FUNCTIONS: &[FunctionDef] = &[FunctionDef {
            values (there is nothing to compare), or when alternative or method is NULL. \
            alternative and method must be the same on every row of a group. Errors: non-numeric \
            x or in_second, an unknown alternative or method, an exact p-value out of reach.",
-    example: "SELECT round(ks_test(column1, column1 > 3) ->> '$.p', 4) \
+        example: "SELECT round(ks_test(column1, column1 > 3) ->> '$.p', 4) \
               FROM (VALUES (1), (2), (3), (4), (5), (6))",
-    example_result: "0.1",
-    register: |c, d| aggregate(c, d, || KsTest),
-}];
+        example_result: "0.1",
+        register: |c, d| aggregate(c, d, || KsTest),
+    },
+    FunctionDef {
+        name: "dist_ks",
+        kind: Kind::Scalar,
+        arities: &[2, 3, 4],
+        signature: "dist_ks(d1, d2 [, alternative [, method]])",
+        summary: "Kolmogorov-Smirnov test of two empirical distributions: JSON {d, p, n1, n2, method, alternative}, as ks_test",
+        help: "The two-sample test of ks_test on the values two empirical distributions hold: \
+               the same JSON, to the last digit, as ks_test over the rows they were built \
+               from, with the same alternative ('two-sided' default, 'less', 'greater'; d1 \
+               plays sample 1) and method ('auto' default, 'exact', 'asymp'). Weights are \
+               frequency weights: a whole-number weight w counts as w rows (n1 and n2 are then \
+               the total weights), up to 10000000 rows per distribution; a fractional weight is \
+               an error. NULL d1 or d2 (dist_empirical of an empty group is NULL, so either \
+               sample with fewer than one value), alternative or method gives NULL. Both \
+               arguments must be empirical distributions; a one-sample test against a model \
+               is valid only when the model's parameters were not estimated from the same \
+               data (Lilliefors 1967: its p-values would be far too large). Errors: an \
+               argument that is not an empirical distribution, an unknown alternative or \
+               method, fractional weights, an exact p-value out of reach.",
+        example: "SELECT round(dist_ks(a.d, b.d) ->> '$.p', 4) \
+                  FROM (SELECT dist_empirical(column1) AS d FROM (VALUES (1), (2), (3))) AS a, \
+                  (SELECT dist_empirical(column1) AS d FROM (VALUES (4), (5), (6))) AS b",
+        example_result: "0.1",
+        register: |c, d| scalar(c, d, dist_ks),
+    },
+    FunctionDef {
+        name: "dist_distance",
+        kind: Kind::Scalar,
+        arities: &[3],
+        signature: "dist_distance(d1, d2, metric)",
+        summary: "how far apart two empirical distributions are: metric 'ks', 'wasserstein', 'cvm' or 'ad'; JSON {metric, statistic, p, method, n1, n2}",
+        help: "metric 'ks': the two-sided Kolmogorov-Smirnov statistic max |F1 - F2| and its \
+               p-value, as dist_ks. 'wasserstein': the L1 distance between the two cdfs, \
+               integral |F1 - F2| dt, in the units of the values (how far, on average, mass \
+               must move to turn one into the other); any frequency weights; no p; statistic \
+               null when infinite (an infinite value in one distribution only). 'cvm': the \
+               two-sample Cramer-von Mises statistic T and p-value of Anderson (1962), exact \
+               when neither sample has more than 20 values and there are no ties, asymptotic \
+               otherwise. 'ad': the k-sample Anderson-Darling test of Scholz and Stephens \
+               (1987), midrank version for ties, with k = 2: statistic is the standardised \
+               (A2akN - 1) / sigma, a2akn the raw one, and p is interpolated in their table \
+               between 0.001 and 0.25; beyond it p is the table's end and p_range says \
+               'at_least' or 'at_most' (otherwise 'value'). method names how p was computed. \
+               For 'ks', 'cvm' and 'ad' a whole-number weight w counts as w rows, as in dist_ks, \
+               and a fractional weight is an error. NULL for a NULL argument (so for a sample \
+               with fewer than one value), and when the samples are too small for the metric: \
+               'cvm' needs 2 values in each, 'ad' 4 values in all and two distinct ones. \
+               Errors: an unknown metric, an argument that is not an empirical distribution, \
+               fractional weights for a rank metric.",
+        example: "SELECT dist_distance(a.d, b.d, 'wasserstein') ->> '$.statistic' \
+                  FROM (SELECT dist_empirical(column1) AS d FROM (VALUES (0), (1), (5))) AS a, \
+                  (SELECT dist_empirical(column1) AS d FROM (VALUES (2), (3), (7))) AS b",
+        example_result: "2.0",
+        register: |c, d| scalar(c, d, dist_distance),
+    },
+];
 
 /// The JSON text of a two-sample result.
 pub fn ks_json(r: &KsResult) -> String {
@@ -148,5 +224,262 @@ impl Aggregate<KsTestState, Value> for KsTest {
         )
         .map_err(|e| fail(NAME, e))?;
         Ok(Value::Text(ks_json(&r)))
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// Scalars on distribution values
+
+/// The most rows a weighted empirical distribution stands for in a rank test: each whole
+/// weight `w` becomes `w` rows in memory (80 MB at this limit).
+pub const MAX_REPLICATED_ROWS: u64 = 10_000_000;
+
+/// The sorted rows of one sample of a rank test, borrowed from the value when unweighted.
+type Rows<'a> = Cow<'a, [f64]>;
+
+/// The values of empirical distribution argument `arg` as the rows of a rank test, sorted:
+/// an unweighted sample's values as they are, and with whole-number weights each value
+/// repeated weight times (the test on the replicated rows, exactly).
+///
+/// # Errors
+/// [`ArgError::FractionalWeight`] for a weight that is not a whole number;
+/// [`ArgError::TooManyRows`] when the weights sum to more than [`MAX_REPLICATED_ROWS`].
+fn rows_of(s: &Sample, arg: usize) -> std::result::Result<Rows<'_>, ArgError> {
+    let Some(weights) = s.weights() else {
+        return Ok(Cow::Borrowed(s.values()));
+    };
+    if let Some(&weight) = weights.iter().find(|w| w.fract() != 0.0) {
+        return Err(ArgError::FractionalWeight { arg, weight });
+    }
+    let total = s.total_weight();
+    if total > MAX_REPLICATED_ROWS as f64 {
+        return Err(ArgError::TooManyRows {
+            arg,
+            total,
+            limit: MAX_REPLICATED_ROWS,
+        });
+    }
+    let mut rows = Vec::with_capacity(total as usize);
+    for (&x, &w) in s.values().iter().zip(weights) {
+        rows.extend(std::iter::repeat_n(x, w as usize));
+    }
+    Ok(Cow::Owned(rows))
+}
+
+/// Which argument of a pair is not an empirical distribution.
+fn not_empirical(d1: &Dist) -> ArgError {
+    ArgError::NotEmpirical {
+        arg: if matches!(d1, Dist::Empirical(_)) {
+            2
+        } else {
+            1
+        },
+    }
+}
+
+/// Reads an optional TEXT option of a scalar at `idx`: absent gives the default, NULL gives
+/// `None`.
+fn scalar_option<T: Default>(
+    ctx: &Context<'_>,
+    idx: usize,
+    what: &'static str,
+    name: &'static str,
+    parse: impl FnOnce(&str) -> std::result::Result<T, TestError>,
+) -> Result<Option<T>> {
+    if ctx.len() <= idx {
+        return Ok(Some(T::default()));
+    }
+    match text(ctx.get_raw(idx), what).map_err(|e| fail(name, e))? {
+        None => Ok(None),
+        Some(v) => parse(v).map(Some).map_err(|e| fail(name, e)),
+    }
+}
+
+/// `dist_ks(d1, d2 [, alternative [, method]])`: dispatches on the kinds of the two values.
+fn dist_ks(ctx: &Context<'_>) -> Result<Value> {
+    const NAME: &str = "dist_ks";
+    let d1 = dist_arg(ctx, 0, NAME)?;
+    let d2 = dist_arg(ctx, 1, NAME)?;
+    let alternative = scalar_option(ctx, 2, "alternative", NAME, Alternative::parse)?;
+    let method = scalar_option(ctx, 3, "method", NAME, PMethod::parse)?;
+    let (Some(d1), Some(d2), Some(alternative), Some(method)) = (d1, d2, alternative, method)
+    else {
+        return Ok(Value::Null);
+    };
+    match (&*d1, &*d2) {
+        (Dist::Empirical(x), Dist::Empirical(y)) => {
+            let x = rows_of(x, 1).map_err(|e| fail(NAME, e))?;
+            let y = rows_of(y, 2).map_err(|e| fail(NAME, e))?;
+            let r = ks_2samp(&x, &y, alternative, method).map_err(|e| fail(NAME, e))?;
+            Ok(Value::Text(ks_json(&r)))
+        }
+        // Dist has one kind today; a model value lands here until the one-sample test
+        // (empirical against model) gets its own arm above.
+        #[allow(unreachable_patterns)]
+        (d1, _) => Err(fail(NAME, not_empirical(d1))),
+    }
+}
+
+/// The metrics of `dist_distance`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Metric {
+    Ks,
+    Wasserstein,
+    Cvm,
+    Ad,
+}
+
+impl Metric {
+    fn parse(s: &str) -> std::result::Result<Metric, ArgError> {
+        match s.trim().to_ascii_lowercase().as_str() {
+            "ks" => Ok(Metric::Ks),
+            "wasserstein" => Ok(Metric::Wasserstein),
+            "cvm" => Ok(Metric::Cvm),
+            "ad" => Ok(Metric::Ad),
+            _ => Err(ArgError::BadJson {
+                what: "metric",
+                detail: format!("must be 'ks', 'wasserstein', 'cvm' or 'ad', got '{s}'"),
+            }),
+        }
+    }
+
+    fn name(self) -> &'static str {
+        match self {
+            Metric::Ks => "ks",
+            Metric::Wasserstein => "wasserstein",
+            Metric::Cvm => "cvm",
+            Metric::Ad => "ad",
+        }
+    }
+}
+
+/// How many observations a sample stands for in a result: its count, or its total weight
+/// when weighted.
+fn size_json(s: &Sample) -> serde_json::Value {
+    if s.is_weighted() {
+        json!(s.total_weight())
+    } else {
+        json!(s.len())
+    }
+}
+
+/// `dist_distance(d1, d2, metric)`.
+fn dist_distance(ctx: &Context<'_>) -> Result<Value> {
+    const NAME: &str = "dist_distance";
+    let d1 = dist_arg(ctx, 0, NAME)?;
+    let d2 = dist_arg(ctx, 1, NAME)?;
+    let metric = text(ctx.get_raw(2), "metric")
+        .and_then(|m| m.map(Metric::parse).transpose())
+        .map_err(|e| fail(NAME, e))?;
+    let (Some(d1), Some(d2), Some(metric)) = (d1, d2, metric) else {
+        return Ok(Value::Null);
+    };
+    let (x, y) = match (&*d1, &*d2) {
+        (Dist::Empirical(x), Dist::Empirical(y)) => (x, y),
+        #[allow(unreachable_patterns)]
+        (d1, _) => return Err(fail(NAME, not_empirical(d1))),
+    };
+    // The rank metrics read whole weights as replicated rows.
+    let rows = || -> Result<(Rows<'_>, Rows<'_>)> {
+        let xs = rows_of(x, 1).map_err(|e| fail(NAME, e))?;
+        let ys = rows_of(y, 2).map_err(|e| fail(NAME, e))?;
+        Ok((xs, ys))
+    };
+    let out = match metric {
+        Metric::Wasserstein => {
+            wasserstein_1(x.values(), x.weights(), y.values(), y.weights()).map(|w| {
+                json!({
+                    "metric": metric.name(),
+                    "statistic": w,
+                    "n1": size_json(x),
+                    "n2": size_json(y),
+                })
+            })
+        }
+        Metric::Ks => {
+            let (xs, ys) = rows()?;
+            ks_2samp(&xs, &ys, Alternative::TwoSided, PMethod::Auto).map(|r| {
+                json!({
+                    "metric": metric.name(),
+                    "statistic": r.d,
+                    "p": r.p,
+                    "method": r.method.name(),
+                    "n1": r.n1,
+                    "n2": r.n2,
+                })
+            })
+        }
+        Metric::Cvm => {
+            let (xs, ys) = rows()?;
+            cramer_von_mises_2samp(&xs, &ys, PMethod::Auto).map(|r| {
+                json!({
+                    "metric": metric.name(),
+                    "statistic": r.statistic,
+                    "p": r.p,
+                    "method": r.method.name(),
+                    "n1": xs.len(),
+                    "n2": ys.len(),
+                })
+            })
+        }
+        Metric::Ad => {
+            let (xs, ys) = rows()?;
+            anderson_darling_ksamp(&[&xs, &ys]).map(|r| {
+                json!({
+                    "metric": metric.name(),
+                    "statistic": r.statistic,
+                    "a2akn": r.a2akn,
+                    "p": r.p,
+                    "p_range": r.p_range.name(),
+                    "method": "interpolated",
+                    "n1": xs.len(),
+                    "n2": ys.len(),
+                })
+            })
+        }
+    };
+    match out {
+        Ok(v) => Ok(Value::Text(v.to_string())),
+        // Too small for the metric: no statistic to report (documented).
+        Err(TestError::TooFewValues { .. }) => Ok(Value::Null),
+        Err(e) => Err(fail(NAME, e)),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn whole_weights_become_replicated_rows() {
+        // By the definition of frequency weights: a value with weight w stands for w rows.
+        let s = Sample::from_pairs(vec![(2.0, 3.0), (1.0, 1.0), (5.0, 2.0)]).unwrap();
+        assert_eq!(&*rows_of(&s, 1).unwrap(), &[1.0, 2.0, 2.0, 2.0, 5.0, 5.0]);
+        let plain = Sample::from_values(vec![3.0, 1.0]).unwrap();
+        assert!(matches!(rows_of(&plain, 1), Ok(Cow::Borrowed(&[1.0, 3.0]))));
+        let fractional = Sample::from_pairs(vec![(1.0, 2.0), (4.0, 0.5)]).unwrap();
+        assert_eq!(
+            rows_of(&fractional, 2).unwrap_err(),
+            ArgError::FractionalWeight {
+                arg: 2,
+                weight: 0.5
+            }
+        );
+        let heavy = Sample::from_pairs(vec![(1.0, 2e7)]).unwrap();
+        assert!(matches!(
+            rows_of(&heavy, 1),
+            Err(ArgError::TooManyRows { arg: 1, .. })
+        ));
+    }
+
+    #[test]
+    fn metrics_are_named() {
+        for name in ["ks", "wasserstein", "cvm", "ad"] {
+            assert_eq!(Metric::parse(&name.to_uppercase()).unwrap().name(), name);
+        }
+        assert_eq!(
+            fail("dist_distance", Metric::parse("energy").unwrap_err()).to_string(),
+            "dist_distance: metric must be 'ks', 'wasserstein', 'cvm' or 'ad', got 'energy'"
+        );
     }
 }

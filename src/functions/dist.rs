@@ -247,7 +247,11 @@ fn real(x: Option<f64>) -> Value {
 
 /// Reads argument `idx` as a distribution. When SQLite keeps auxiliary data for the
 /// argument (a constant), the decoded value is reused on later rows.
-fn dist_arg(ctx: &Context<'_>, idx: usize, name: &'static str) -> Result<Option<Arc<Dist>>> {
+pub(crate) fn dist_arg(
+    ctx: &Context<'_>,
+    idx: usize,
+    name: &'static str,
+) -> Result<Option<Arc<Dist>>> {
     let arg = idx as c_int;
     if let Ok(Some(d)) = ctx.get_aux::<Dist>(arg) {
         return Ok(Some(d));

@@ -25,6 +25,18 @@ def close(a, b, rel):
     return a == b or abs(a - b) <= rel * max(abs(a), abs(b))
 
 
+def assert_matches_ks_2samp(got, x, y, alt, method):
+    """got: the JSON of ks_test or dist_ks; reference scipy.stats.ks_2samp(x, y,
+    alternative=alt, method=method), d to 1e-14 and p to 1e-10 relative (the issue's
+    requirement)."""
+    want = scipy.stats.ks_2samp(x, y, alternative=alt, method=method)
+    assert close(got["d"], float(want.statistic), 1e-14), (alt, got)
+    assert close(got["p"], float(want.pvalue), 1e-10), (alt, method, got, want)
+    assert (got["n1"], got["n2"]) == (len(x), len(y))
+    assert got["alternative"] == alt
+    assert got["method"] == ("exact" if method == "exact" else "asymptotic")
+
+
 def load_split(conn, groups):
     """groups: list of (x, y) pairs -> table t(g, x, second)."""
     conn.execute("CREATE TABLE t(g INTEGER, x REAL, second INTEGER)")
@@ -45,14 +57,7 @@ def test_matches_scipy_ks_2samp_without_ties(conn):
         for method in ["exact", "asymp"]:
             out = dict(rows(conn, "SELECT g, ks_test(x, second, ?, ?) FROM t GROUP BY g", (alt, method)))
             for g, (x, y) in enumerate(groups):
-                got = json.loads(out[g])
-                want = scipy.stats.ks_2samp(x, y, alternative=alt, method=method)
-                assert close(got["d"], float(want.statistic), 1e-14), (g, alt, got)
-                # Issue requirement: 1e-10 relative on p.
-                assert close(got["p"], float(want.pvalue), 1e-10), (g, alt, method, got, want)
-                assert (got["n1"], got["n2"]) == (len(x), len(y))
-                assert got["alternative"] == alt
-                assert got["method"] == ("exact" if method == "exact" else "asymptotic")
+                assert_matches_ks_2samp(json.loads(out[g]), x, y, alt, method)
 
 
 def enumerate_p(x, y, alt):
