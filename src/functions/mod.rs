@@ -8,9 +8,9 @@
 
 pub mod args;
 pub mod column;
+pub mod compare;
 pub mod dist;
 pub(crate) mod table;
-pub mod compare;
 
 use rusqlite::Connection;
 use rusqlite::functions::{Aggregate, Context, FunctionFlags};

@@ -31,18 +31,18 @@
 
 pub mod band;
 pub mod ecdf;
-pub mod grid;
-pub mod histogram;
-pub mod kde;
-pub mod moments;
-pub mod quantile;
-pub mod sample;
 #[cfg(test)]
 mod fixtures;
 pub mod gof;
+pub mod grid;
+pub mod histogram;
+pub mod kde;
 pub mod ks;
 pub mod lilliefors;
+pub mod moments;
+pub mod quantile;
 pub mod rng;
+pub mod sample;
 pub mod sum;
 
 use std::fmt;
