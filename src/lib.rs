@@ -3,6 +3,7 @@
 //! The crate has three layers:
 //!
 //! - [`stats`]: the mathematics, pure functions on slices with no SQLite in sight;
+//! - [`value`]: the SQL values (the model JSON), parsed and validated at the boundary;
 //! - [`functions`]: the SQL adapters and the registry of every SQL function;
 //! - [`register`]: installs the functions on a [`rusqlite::Connection`].
 //!
@@ -25,6 +26,7 @@
 
 pub mod functions;
 pub mod stats;
+pub mod value;
 
 #[cfg(feature = "loadable")]
 pub mod extension;

@@ -9,6 +9,9 @@ use std::fmt;
 use rusqlite::types::ValueRef;
 
 use crate::stats::StatsError;
+use crate::stats::fit::FitError;
+use crate::stats::mixture::MixtureError;
+use crate::value::model::ModelError;
 
 /// What an adapter can reject. The SQL function name is added by [`fail`].
 #[derive(Debug, Clone, PartialEq)]
@@ -27,6 +30,12 @@ pub enum ArgError {
     BadJson { what: &'static str, detail: String },
     /// An error from a kernel.
     Stats(StatsError),
+    /// A parametric fit or parameter set that was refused.
+    Fit(FitError),
+    /// A mixture fit or mixture that was refused.
+    Mixture(MixtureError),
+    /// Model JSON that was refused.
+    Model(ModelError),
 }
 
 impl fmt::Display for ArgError {
@@ -45,6 +54,9 @@ impl fmt::Display for ArgError {
             ),
             ArgError::BadJson { what, detail } => write!(f, "{what} {detail}"),
             ArgError::Stats(e) => e.fmt(f),
+            ArgError::Fit(e) => e.fmt(f),
+            ArgError::Mixture(e) => e.fmt(f),
+            ArgError::Model(e) => e.fmt(f),
         }
     }
 }
@@ -52,6 +64,24 @@ impl fmt::Display for ArgError {
 impl From<StatsError> for ArgError {
     fn from(e: StatsError) -> Self {
         ArgError::Stats(e)
+    }
+}
+
+impl From<FitError> for ArgError {
+    fn from(e: FitError) -> Self {
+        ArgError::Fit(e)
+    }
+}
+
+impl From<MixtureError> for ArgError {
+    fn from(e: MixtureError) -> Self {
+        ArgError::Mixture(e)
+    }
+}
+
+impl From<ModelError> for ArgError {
+    fn from(e: ModelError) -> Self {
+        ArgError::Model(e)
     }
 }
 

@@ -8,6 +8,7 @@
 
 pub mod args;
 pub mod column;
+pub mod models;
 
 use rusqlite::Connection;
 use rusqlite::functions::{Aggregate, FunctionFlags};
@@ -96,7 +97,7 @@ where
 
 /// The registry: one slice of rows per adapter module, in the order the README lists
 /// them. A new module adds its `FUNCTIONS` here.
-pub static REGISTRY: &[&[FunctionDef]] = &[column::FUNCTIONS];
+pub static REGISTRY: &[&[FunctionDef]] = &[column::FUNCTIONS, models::FUNCTIONS];
 
 /// Every registry row, in listing order.
 pub fn all() -> impl Iterator<Item = &'static FunctionDef> {

@@ -8,6 +8,9 @@
 //!   unweighted by selection and with frequency weights.
 //! - [`ecdf`]: the empirical distribution function as a running count.
 //! - [`moments`]: the numeric summary behind `profile(x)`.
+//! - [`fit`]: parametric families and their maximum-likelihood fits.
+//! - [`mixture`]: univariate Gaussian mixtures, fitted by EM.
+//! - [`roots`]: the safeguarded root finder behind shape equations and mixture quantiles.
 //!
 //! # NaN policy
 //!
@@ -18,8 +21,11 @@
 //! `-inf` and `+inf`) is reported as `None`, which SQL shows as NULL.
 
 pub mod ecdf;
+pub mod fit;
+pub mod mixture;
 pub mod moments;
 pub mod quantile;
+pub mod roots;
 pub mod sum;
 
 use std::fmt;

@@ -1,0 +1,3 @@
+//! The SQL values of ogive and their parsing and validation at the boundary.
+
+pub mod model;
