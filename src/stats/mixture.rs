@@ -25,17 +25,19 @@
 //!   likelihood; see `Data::em`. The fixed points and the ascent property are EM's.
 //! - **Variance floor.** A component's variance never drops below `1e-6` times the data's
 //!   variance, so no component collapses onto a tie and the likelihood stays bounded.
-//! - **Convergence.** A run stops when the total log-likelihood rises by less than
-//!   `1e-10` per value over a cycle, or after 10 000 passes (then `converged` is false).
-//!   While several k are compared each runs to `1e-8` per value; the winner then
-//!   continues to `1e-10`. `iterations` counts passes over the data.
+//! - **Convergence.** A run stops when the log-likelihood is within `1e-12` per value of
+//!   its maximum, as estimated from the rise of one EM step and the rate at which EM
+//!   steps shrink (`rise / (1 - rate^2)`, Aitken's reasoning as in Bohning et al. 1994),
+//!   so that slowly converging runs go on; or after 10 000 passes (then `converged` is
+//!   false). Starts and candidate k are compared at `1e-8` per value; only the winner
+//!   continues to `1e-12`. `iterations` counts passes over the data.
 //! - **Several starts.** Each k starts from the equal-count blocks of the sorted data (a
 //!   quantile start) and from nine k-means++ seedings (Arthur and Vassilvitskii 2007,
 //!   "k-means++: the advantages of careful seeding") refined by Lloyd iterations, drawn
 //!   from a SplitMix64 generator (Steele, Lea and Flood 2014) with fixed seeds, so the
 //!   same input always gives the same fit; identical starts run once. Every start runs
-//!   12 passes; the two best continue to convergence and the better one wins (the
-//!   "short EM" strategy of Biernacki, Celeux and Govaert 2003, "Choosing starting values
+//!   12 passes; the two best continue to the comparison tolerance and the better one
+//!   wins (the "short EM" strategy of Biernacki, Celeux and Govaert 2003, "Choosing starting values
 //!   for the EM algorithm", CSDA 41).
 //! - Components are reported sorted by mean.
 //!
@@ -52,7 +54,8 @@ use statrs::distribution::{Continuous, ContinuousCDF, Normal};
 
 use super::StatsError;
 use super::fit::information_criteria;
-use super::roots::solve_increasing;
+use super::fit::normal_cdf;
+use super::roots::invert_cdf;
 use super::sum::NeumaierSum;
 
 /// The most components a mixture may have.
@@ -61,10 +64,10 @@ pub const MAX_COMPONENTS: usize = 16;
 pub const MAX_BIC_K: usize = 6;
 /// Variance floor, relative to the data's variance.
 const VARIANCE_FLOOR: f64 = 1e-6;
-/// Convergence: the rise in total log-likelihood per value below which EM stops; a
-/// looser one while comparing the candidate k (the winner then continues to the strict
-/// one).
-const TOLERANCE: f64 = 1e-10;
+/// Convergence: the estimated gap to the maximum log-likelihood, per value, below which
+/// EM stops; a looser one while comparing starts and candidate k (the winner then
+/// continues to the strict one).
+const TOLERANCE: f64 = 1e-12;
 const SELECTION_TOLERANCE: f64 = 1e-8;
 /// Halvings of a SQUAREM extrapolation before falling back to plain EM.
 const MAX_BACKTRACKS: usize = 8;
@@ -219,16 +222,36 @@ impl Mixture {
         Ok(Mixture { components, laws })
     }
 
-    /// The components.
+    /// The components, in the order given.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::mixture::{Component, Mixture};
+    /// let c = Component { weight: 1.0, mean: 2.0, sd: 3.0 };
+    /// assert_eq!(Mixture::new(vec![c])?.components(), &[c]);
+    /// # Ok::<(), ogive::stats::mixture::MixtureError>(())
+    /// ```
     pub fn components(&self) -> &[Component] {
         &self.components
     }
 
-    /// The cumulative distribution function at `t`, in `[0, 1]`. NaN `t` gives NaN.
+    /// The cumulative distribution function at `t`, `sum w_j Phi((t - mu_j) / sd_j)`, in
+    /// `[0, 1]`. NaN `t` gives NaN.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::mixture::{Component, Mixture};
+    /// let m = Mixture::new(vec![
+    ///     Component { weight: 0.25, mean: 0.0, sd: 1.0 },
+    ///     Component { weight: 0.75, mean: 100.0, sd: 1.0 },
+    /// ])?;
+    /// assert_eq!(m.cdf(50.0), 0.25);
+    /// # Ok::<(), ogive::stats::mixture::MixtureError>(())
+    /// ```
     pub fn cdf(&self, t: f64) -> f64 {
         let mut s = NeumaierSum::default();
-        for (c, law) in self.components.iter().zip(&self.laws) {
-            s.add(c.weight * law.cdf(t));
+        for c in &self.components {
+            s.add(c.weight * normal_cdf(t, c.mean, c.sd));
         }
         let v = s.value();
         if v.is_nan() { v } else { v.clamp(0.0, 1.0) }
@@ -252,7 +275,7 @@ impl Mixture {
     }
 
     /// The p-quantile: the t with `cdf(t) = p`, found by bracketed Newton-bisection
-    /// ([`solve_increasing`]) between the smallest and the largest of the components'
+    /// ([`invert_cdf`]) between the smallest and the largest of the components'
     /// p-quantiles, which enclose it (the mixture cdf is a weighted mean of theirs).
     /// `p = 0` gives `-inf` and `p = 1` gives `+inf`.
     ///
@@ -278,19 +301,22 @@ impl Mixture {
         if p == 1.0 {
             return Ok(f64::INFINITY);
         }
+        // The components' p-quantiles enclose the root; statrs' standard normal quantile
+        // is only approximate, and `invert_cdf` widens the interval if need be.
         let z = Normal::standard().inverse_cdf(p);
-        let (mut lo, mut hi, mut start) = (f64::INFINITY, f64::NEG_INFINITY, 0.0);
+        let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
         for c in &self.components {
             let q = c.mean + c.sd * z;
             lo = lo.min(q);
             hi = hi.max(q);
-            start += c.weight * q;
         }
-        Ok(solve_increasing(
-            |t| (self.cdf(t) - p, self.pdf(t)),
+        Ok(invert_cdf(
+            |t| self.cdf(t),
+            |t| self.pdf(t),
+            p,
             lo,
             hi,
-            start,
+            f64::NEG_INFINITY,
         ))
     }
 
@@ -304,6 +330,17 @@ impl Mixture {
     }
 
     /// The standard deviation, `sqrt(sum w_j (sd_j^2 + (mu_j - mean)^2))`.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::mixture::{Component, Mixture};
+    /// let m = Mixture::new(vec![
+    ///     Component { weight: 0.5, mean: -3.0, sd: 4.0 },
+    ///     Component { weight: 0.5, mean: 3.0, sd: 4.0 },
+    /// ])?;
+    /// assert_eq!(m.sd(), 5.0); // sqrt(16 + 9)
+    /// # Ok::<(), ogive::stats::mixture::MixtureError>(())
+    /// ```
     pub fn sd(&self) -> f64 {
         let m = self.mean();
         let mut s = NeumaierSum::default();
@@ -425,16 +462,10 @@ pub fn fit_mixture(xs: &[f64], k: Option<usize>) -> Result<MixtureFit, MixtureEr
             .filter(|&k| k <= distinct && need(k) as u64 <= n)
             .collect(),
     };
-    // Comparing several k, each runs to the looser tolerance first.
-    let tolerance = if ks.len() > 1 {
-        SELECTION_TOLERANCE
-    } else {
-        TOLERANCE
-    };
     let mut candidates = Vec::with_capacity(ks.len());
     let mut best: Option<(f64, usize, Run)> = None;
     for &k in &ks {
-        let run = data.best_run(k, tolerance);
+        let run = data.best_run(k);
         let scored = run.map(|r| {
             let loglik = data.loglik_in_x(r.loglik);
             let (_, bic) = information_criteria(loglik, need(k), n);
@@ -658,8 +689,10 @@ impl Data {
         Mixture::new(components).ok()
     }
 
-    /// The best EM run for k components over all starts, converged to `tolerance`.
-    fn best_run(&self, k: usize, tolerance: f64) -> Option<Run> {
+    /// The best EM run for k components over all starts, converged to the selection
+    /// tolerance.
+    fn best_run(&self, k: usize) -> Option<Run> {
+        let tolerance = SELECTION_TOLERANCE;
         let mut starts: Vec<Params> = Vec::new();
         if let Some(p) = self.quantile_start(k) {
             starts.push(p);
@@ -696,8 +729,8 @@ impl Data {
         }
     }
 
-    /// Runs EM from `start` until the log-likelihood rises by less than `tolerance` per
-    /// value from one cycle to the next, or `limit` passes in all (counting `done`
+    /// Runs EM from `start` until the estimated gap between the log-likelihood and its
+    /// maximum is below `tolerance` per value, or `limit` passes in all (counting `done`
     /// already made). `None` when plain EM loses a component.
     ///
     /// Each cycle is accelerated by SQUAREM (Varadhan and Roland 2008, "Simple and
@@ -727,8 +760,23 @@ impl Data {
             if passes + 2 > limit {
                 return stop(p0, ll0, passes, false);
             }
-            let (_, p2) = self.em_pass(&p1)?;
+            let (ll1, p2) = self.em_pass(&p1)?;
             passes += 1;
+            // How far p0 is from the optimum: near it, plain EM converges linearly, its
+            // steps shrinking by a rate rho (estimated from two successive steps) and the
+            // gaps in log-likelihood by rho^2, so the gap at p0 is about
+            // (ll(p1) - ll(p0)) / (1 - rho^2) (the reasoning of Aitken's extrapolation;
+            // Bohning, Dietz, Schaub, Schlattmann and Lindsay 1994, Ann. Inst. Statist.
+            // Math. 46). A slowly converging run stops only when that is small.
+            let first_rise = ll1 - ll0;
+            let rho = p2.minus(&p1).norm() / p1.minus(&p0).norm();
+            let gap = if first_rise <= 0.0 {
+                0.0
+            } else if rho < 1.0 {
+                first_rise / (1.0 - rho * rho)
+            } else {
+                f64::INFINITY
+            };
             let mut next = p2;
             let (r, v) = (p1.minus(&p0), p2.minus(&p1).minus(&p1.minus(&p0)));
             let (nr, nv) = (r.norm(), v.norm());
@@ -750,13 +798,13 @@ impl Data {
             }
             let (ll, after) = self.em_pass(&next)?;
             passes += 1;
-            if ll - ll0 < tolerance * self.total {
+            if ll < ll0 {
                 // A rounding-level fall keeps the earlier point.
-                return if ll >= ll0 {
-                    stop(next, ll, passes, true)
-                } else {
-                    stop(p0, ll0, passes, true)
-                };
+                return stop(p0, ll0, passes, true);
+            }
+            if gap < tolerance * self.total {
+                // p0 was within the tolerance; the cycle's end is better still.
+                return stop(next, ll, passes, true);
             }
             (p0, ll0, p1) = (next, ll, after);
         }

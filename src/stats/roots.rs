@@ -8,8 +8,9 @@
 //! and Flannery, *Numerical Recipes* (3rd ed., 2007), section 9.4.
 //!
 //! It solves the shape equations of the gamma and Weibull maximum-likelihood fits
-//! ([`crate::stats::fit`]) and inverts the cdf of Gaussian mixtures
-//! ([`crate::stats::mixture`]).
+//! ([`crate::stats::fit`]); [`invert_cdf`] builds on it to compute quantiles of mixtures
+//! ([`crate::stats::mixture`]) and to refine approximate quantiles to the root of their
+//! own cdf.
 
 /// At most this many evaluations; bisection alone halves a bracket of doubles to one ulp
 /// in far fewer (about 2100 halvings separate the largest double from the smallest, but
@@ -74,6 +75,48 @@ where
         x = next;
     }
     x
+}
+
+/// Solves `cdf(t) = p` for an increasing `cdf` with density `pdf`, starting from an
+/// interval `[lo, hi]` believed to hold the root (`lo = hi` for a single guess). The
+/// interval is widened geometrically until the cdf brackets p, never below `floor` (the
+/// lower end of the support, where the cdf is 0), then [`solve_increasing`] finishes.
+/// When no bracket is found within the doubles the midpoint of the guess is returned.
+///
+/// # Example
+/// ```
+/// use ogive::stats::roots::invert_cdf;
+/// // The exponential cdf 1 - exp(-t) from a rough guess: the root is ln 2.
+/// let t = invert_cdf(|t| -(-t).exp_m1(), |t| (-t).exp(), 0.5, 0.6, 0.6, 0.0);
+/// assert!((t - 2f64.ln()).abs() < 1e-15);
+/// ```
+pub fn invert_cdf<C, D>(cdf: C, pdf: D, p: f64, lo: f64, hi: f64, floor: f64) -> f64
+where
+    C: Fn(f64) -> f64,
+    D: Fn(f64) -> f64,
+{
+    let guess = lo + 0.5 * (hi - lo);
+    let first = (hi - lo)
+        .max(1e-9 * (lo.abs() + hi.abs()))
+        .max(f64::MIN_POSITIVE);
+    let (mut a, mut width) = (lo, first);
+    let mut steps = 0;
+    while a > floor && cdf(a) > p && steps < 1100 {
+        a = (lo - width).max(floor);
+        width *= 16.0;
+        steps += 1;
+    }
+    let (mut b, mut width) = (hi, first);
+    steps = 0;
+    while b.is_finite() && cdf(b) < p && steps < 1100 {
+        b = hi + width;
+        width *= 16.0;
+        steps += 1;
+    }
+    if !(a.is_finite() && b.is_finite()) || cdf(a) > p || cdf(b) < p {
+        return guess;
+    }
+    solve_increasing(|t| (cdf(t) - p, pdf(t)), a, b, guess)
 }
 
 #[cfg(test)]

@@ -369,17 +369,7 @@ fn read_components(r: &mut Reader<'_>) -> Result<Mixture, ModelError> {
             mean: field("mean")?,
             sd: field("sd")?,
         };
-        if let Some(extra) = obj
-            .keys()
-            .find(|k| !["weight", "mean", "sd"].contains(&k.as_str()))
-        {
-            return Err(ModelError::UnknownField {
-                what: r.what,
-                field: path(extra),
-                scope: "a component".to_string(),
-                allowed: "weight, mean, sd".to_string(),
-            });
-        }
+        only(r, obj, &["weight", "mean", "sd"], "a component", path)?;
         components.push(c);
     }
     Mixture::new(components).map_err(|e| match e {
@@ -392,8 +382,32 @@ fn read_components(r: &mut Reader<'_>) -> Result<Mixture, ModelError> {
             &format!("components[{index}].{field}"),
             format!("must be {rule}, got {value}"),
         ),
+        MixtureError::WeightSum(total) => r.bad(
+            "components",
+            format!("must have weights that sum to 1, got {total}"),
+        ),
         other => r.bad("components", other.to_string()),
     })
+}
+
+/// Rejects a field of a nested object (a component, a candidate) outside `allowed`;
+/// `path` names a field in messages.
+fn only(
+    r: &Reader<'_>,
+    obj: &Map<String, Value>,
+    allowed: &[&str],
+    scope: &str,
+    path: impl Fn(&str) -> String,
+) -> Result<(), ModelError> {
+    match obj.keys().find(|k| !allowed.contains(&k.as_str())) {
+        Some(extra) => Err(ModelError::UnknownField {
+            what: r.what,
+            field: path(extra),
+            scope: scope.to_string(),
+            allowed: allowed.join(", "),
+        }),
+        None => Ok(()),
+    }
 }
 
 /// Reads `k_candidates`: an array of `{"k", "loglik", "bic"}`.
@@ -415,17 +429,7 @@ fn read_candidates(r: &Reader<'_>, v: &Value) -> Result<Vec<Candidate>, ModelErr
                     format!("must be an object, got {item}"),
                 )
             })?;
-            if let Some(extra) = obj
-                .keys()
-                .find(|k| !["k", "loglik", "bic"].contains(&k.as_str()))
-            {
-                return Err(ModelError::UnknownField {
-                    what: r.what,
-                    field: path(extra),
-                    scope: "a k_candidates item".to_string(),
-                    allowed: "k, loglik, bic".to_string(),
-                });
-            }
+            only(r, obj, &["k", "loglik", "bic"], "a k_candidates item", path)?;
             let k = obj
                 .get("k")
                 .and_then(Value::as_u64)
@@ -617,6 +621,15 @@ impl Model {
 
     /// The model as JSON text: `family`, the parameters (or `k` and `components`), then
     /// whichever fit statistics it has. Non-finite numbers never occur.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::fit::{Family, fit};
+    /// use ogive::value::model::Model;
+    /// let m = Model::from(fit(&[1.0, 3.0], Family::Uniform)?);
+    /// assert!(m.to_json().starts_with(r#"{"family":"uniform","min":1.0,"max":3.0,"n":2,"#));
+    /// # Ok::<(), ogive::stats::fit::FitError>(())
+    /// ```
     pub fn to_json(&self) -> String {
         let mut out = Map::new();
         out.insert("family".into(), json!(self.family_name()));
@@ -665,6 +678,14 @@ impl Model {
     }
 
     /// The family name: one of [`Family::names`] or [`MIXTURE_FAMILY`].
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::parse(r#"{"family": "Gamma", "shape": 2, "scale": 1}"#)?;
+    /// assert_eq!(m.family_name(), "gamma");
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
     pub fn family_name(&self) -> &'static str {
         match &self.law {
             Law::Parametric(p) => p.family().name(),
@@ -673,16 +694,40 @@ impl Model {
     }
 
     /// The distribution.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::{Law, Model};
+    /// let m = Model::from_parameters("normal", r#"{"mean": 0, "sd": 1}"#)?;
+    /// assert!(matches!(m.law(), Law::Parametric(_)));
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
     pub fn law(&self) -> &Law {
         &self.law
     }
 
     /// The number of values fitted, when the model was fitted.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::parse(r#"{"family": "exponential", "rate": 2, "n": 40}"#)?;
+    /// assert_eq!(m.n(), Some(40));
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
     pub fn n(&self) -> Option<u64> {
         self.n
     }
 
     /// The maximised log-likelihood, when the model was fitted.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("exponential", r#"{"rate": 2}"#)?;
+    /// assert_eq!(m.loglik(), None);
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
     pub fn loglik(&self) -> Option<f64> {
         self.loglik
     }
@@ -706,6 +751,14 @@ impl Model {
 
     /// The density at `t`; `+inf` at 0 for a gamma or Weibull with shape below 1; NaN
     /// `t` gives NaN.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("uniform", r#"{"min": 0, "max": 4}"#)?;
+    /// assert_eq!(m.pdf(1.0), 0.25);
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
     pub fn pdf(&self, t: f64) -> f64 {
         match &self.law {
             Law::Parametric(p) => p.pdf(t),
@@ -737,6 +790,14 @@ impl Model {
     }
 
     /// The mean; `None` when it overflows (a lognormal with a very large sigma).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("weibull", r#"{"shape": 1, "scale": 2}"#)?;
+    /// assert_eq!(m.mean(), Some(2.0)); // shape 1 is the exponential with mean 2
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
     pub fn mean(&self) -> Option<f64> {
         match &self.law {
             Law::Parametric(p) => p.mean(),
@@ -745,6 +806,14 @@ impl Model {
     }
 
     /// The standard deviation; `None` when it overflows.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("normal", r#"{"mean": 1, "sd": 3}"#)?;
+    /// assert_eq!(m.sd(), Some(3.0));
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
     pub fn sd(&self) -> Option<f64> {
         match &self.law {
             Law::Parametric(p) => p.sd(),
@@ -775,6 +844,17 @@ impl Model {
     /// The components, sorted by mean for a fitted mixture. A parametric model is one
     /// component of weight 1 with the distribution's mean and sd (infinite when they
     /// overflow).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters(
+    ///     "normal_mixture",
+    ///     r#"{"components": [{"weight": 0.4, "mean": 0, "sd": 1}, {"weight": 0.6, "mean": 5, "sd": 2}]}"#,
+    /// )?;
+    /// assert_eq!(m.components()[1].mean, 5.0);
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
     pub fn components(&self) -> Vec<Component> {
         match &self.law {
             Law::Parametric(p) => vec![Component {
