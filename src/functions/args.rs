@@ -9,7 +9,10 @@ use std::fmt;
 use rusqlite::types::ValueRef;
 
 use crate::stats::StatsError;
+use crate::stats::fit::FitError;
 use crate::stats::ks::TestError;
+use crate::stats::mixture::MixtureError;
+use crate::value::model::ModelError;
 use crate::value::{ValueError, describe as show};
 
 /// What an adapter can reject. The SQL function name is added by [`fail`].
@@ -46,6 +49,12 @@ pub enum ArgError {
     /// A weighted empirical distribution whose weights stand for more rows than a rank test
     /// replicates.
     TooManyRows { arg: usize, total: f64, limit: u64 },
+    /// A parametric fit or parameter set that was refused.
+    Fit(FitError),
+    /// A mixture fit or mixture that was refused.
+    Mixture(MixtureError),
+    /// Model JSON that was refused.
+    Model(ModelError),
 }
 
 impl fmt::Display for ArgError {
@@ -88,6 +97,9 @@ impl fmt::Display for ArgError {
                 "argument {arg} has weights summing to {total}; this test counts a weight as that \
                  many rows, up to {limit} per distribution"
             ),
+            ArgError::Fit(e) => e.fmt(f),
+            ArgError::Mixture(e) => e.fmt(f),
+            ArgError::Model(e) => e.fmt(f),
         }
     }
 }
@@ -107,6 +119,24 @@ impl From<StatsError> for ArgError {
 impl From<ValueError> for ArgError {
     fn from(e: ValueError) -> Self {
         ArgError::Value(e)
+    }
+}
+
+impl From<FitError> for ArgError {
+    fn from(e: FitError) -> Self {
+        ArgError::Fit(e)
+    }
+}
+
+impl From<MixtureError> for ArgError {
+    fn from(e: MixtureError) -> Self {
+        ArgError::Mixture(e)
+    }
+}
+
+impl From<ModelError> for ArgError {
+    fn from(e: ModelError) -> Self {
+        ArgError::Model(e)
     }
 }
 

@@ -10,6 +10,7 @@ pub mod args;
 pub mod column;
 pub mod compare;
 pub mod dist;
+pub mod models;
 pub(crate) mod table;
 
 use rusqlite::Connection;
@@ -111,7 +112,12 @@ pub(crate) fn scalar(
 
 /// The registry: one slice of rows per adapter module, in the order the README lists
 /// them. A new module adds its `FUNCTIONS` here.
-pub static REGISTRY: &[&[FunctionDef]] = &[column::FUNCTIONS, dist::FUNCTIONS, compare::FUNCTIONS];
+pub static REGISTRY: &[&[FunctionDef]] = &[
+    column::FUNCTIONS,
+    dist::FUNCTIONS,
+    compare::FUNCTIONS,
+    models::FUNCTIONS,
+];
 
 /// Every registry row, in listing order.
 pub fn all() -> impl Iterator<Item = &'static FunctionDef> {

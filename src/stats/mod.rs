@@ -20,6 +20,9 @@
 //! - [`gof`]: two-sample Cramer-von Mises, k-sample Anderson-Darling, Wasserstein-1.
 //! - [`lilliefors`]: Kolmogorov-Smirnov with estimated normal or exponential parameters.
 //! - [`rng`]: a seeded generator for repeatable simulations.
+//! - [`fit`]: parametric families and their maximum-likelihood fits.
+//! - [`mixture`]: univariate Gaussian mixtures, fitted by EM.
+//! - [`roots`]: the safeguarded root finder behind shape equations and mixture quantiles.
 //!
 //! # NaN policy
 //!
@@ -31,6 +34,7 @@
 
 pub mod band;
 pub mod ecdf;
+pub mod fit;
 #[cfg(test)]
 mod fixtures;
 pub mod gof;
@@ -39,9 +43,11 @@ pub mod histogram;
 pub mod kde;
 pub mod ks;
 pub mod lilliefors;
+pub mod mixture;
 pub mod moments;
 pub mod quantile;
 pub mod rng;
+pub mod roots;
 pub mod sample;
 pub mod sum;
 

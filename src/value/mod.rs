@@ -9,6 +9,7 @@
 //! [`Dist::from_sql`] and an arm in each method here.
 
 pub mod empirical;
+pub mod model;
 
 use std::fmt;
 

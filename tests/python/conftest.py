@@ -41,6 +41,13 @@ def scalar(conn, sql, params=()):
     return out[0][0]
 
 
+def expect_error(conn, sql, message):
+    """Runs `sql` and checks that it fails with an error containing `message`."""
+    with pytest.raises(Exception) as err:
+        rows(conn, sql)
+    assert message in str(err.value), str(err.value)
+
+
 def load_column(conn, table, values, groups=None, weights=None):
     """Creates `table(g, x, w)` and inserts the values in one transaction."""
     conn.execute(f"CREATE TABLE {table}(g INTEGER, x REAL, w REAL)")

@@ -1,0 +1,969 @@
+//! The model JSON value: a fitted or given parametric distribution or Gaussian mixture.
+//!
+//! `dist_fit`, `dist_mixture` and `dist_model` return a model as JSON text, so that
+//! SQLite's own `->>` and `json_each` read it and fit results join against other
+//! tables. A parametric model:
+//!
+//! ```json
+//! {"family": "gamma", "shape": 2.1, "scale": 1.7, "n": 272, "loglik": -421.3, "aic": 846.6, "bic": 853.8}
+//! ```
+//!
+//! Its parameters, by family: normal `mean`, `sd`; lognormal `mu`, `sigma` (the mean and
+//! sd of `ln x`); exponential `rate`; gamma and weibull `shape`, `scale`; uniform `min`,
+//! `max`. A Gaussian mixture has the family `normal_mixture`:
+//!
+//! ```json
+//! {"family": "normal_mixture", "k": 2,
+//!  "components": [{"weight": 0.35, "mean": 2.04, "sd": 0.27}, {"weight": 0.65, "mean": 4.29, "sd": 0.41}],
+//!  "n": 272, "loglik": -276.4, "aic": 562.7, "bic": 580.7, "iterations": 31, "converged": true,
+//!  "k_candidates": [{"k": 1, "loglik": -421.4, "bic": 854.0}, {"k": 2, "loglik": -276.4, "bic": 580.7}]}
+//! ```
+//!
+//! `n`, `loglik`, `aic`, `bic` (and for a mixture `k`, `iterations`, `converged`,
+//! `k_candidates`) describe the fit; a model built from known parameters has none of
+//! them. [`Model::parse`] accepts exactly these fields: a missing parameter, an unknown
+//! field or a value outside its domain is an error naming the field, and an unknown
+//! family lists the supported ones. Serialising with [`Model::to_json`] and parsing again
+//! gives the same model (numbers are written in their shortest round-trip form).
+//!
+//! Evaluation ([`Model::cdf`], [`Model::pdf`], [`Model::quantile`], [`Model::mean`],
+//! [`Model::sd`], [`Model::component_index`], [`Model::components`]) is done by
+//! [`crate::stats::fit::Parametric`] and [`crate::stats::mixture::Mixture`].
+
+use std::fmt;
+
+use serde_json::{Map, Value, json};
+
+use crate::stats::StatsError;
+use crate::stats::fit::{Family, FitError, Parametric, ParametricFit};
+use crate::stats::mixture::{
+    Candidate, Component, MAX_COMPONENTS, Mixture, MixtureError, MixtureFit,
+};
+
+/// The family name of a Gaussian mixture.
+pub const MIXTURE_FAMILY: &str = "normal_mixture";
+
+/// Fit metadata every model may carry.
+const FIT_FIELDS: [&str; 4] = ["n", "loglik", "aic", "bic"];
+/// Further metadata of a fitted mixture.
+const EM_FIELDS: [&str; 4] = ["k", "iterations", "converged", "k_candidates"];
+
+/// Why a model (or a parameter object) was refused.
+///
+/// `what` is the text being read: `"model"` for [`Model::parse`], `"params"` for
+/// [`Model::from_parameters`].
+#[derive(Debug, Clone, PartialEq)]
+pub enum ModelError {
+    /// Not JSON at all.
+    NotJson { what: &'static str, detail: String },
+    /// JSON, but not an object.
+    NotObject { what: &'static str, got: String },
+    /// A required field is absent.
+    MissingField {
+        what: &'static str,
+        field: String,
+        needs: String,
+    },
+    /// A field that does not belong (`scope` says where: "a normal model").
+    UnknownField {
+        what: &'static str,
+        field: String,
+        scope: String,
+        allowed: String,
+    },
+    /// A field with a value outside its domain.
+    BadField {
+        what: &'static str,
+        field: String,
+        detail: String,
+    },
+    /// A family ogive does not know.
+    UnknownFamily(String),
+    /// A probability outside `[0, 1]`.
+    Probability(f64),
+}
+
+impl fmt::Display for ModelError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            ModelError::NotJson { what, detail } => write!(
+                f,
+                "{what} must be JSON text as dist_fit, dist_mixture or dist_model make it; this is \
+                 not JSON ({detail})"
+            ),
+            ModelError::NotObject { what, got } => {
+                write!(f, "{what} must be a JSON object, got {got}")
+            }
+            ModelError::MissingField { what, field, needs } => {
+                write!(f, "{what} lacks the field \"{field}\" (required: {needs})")
+            }
+            ModelError::UnknownField {
+                what,
+                field,
+                scope,
+                allowed,
+            } => write!(
+                f,
+                "{what} has an unknown field \"{field}\"; the fields of {scope} are {allowed}"
+            ),
+            ModelError::BadField {
+                what,
+                field,
+                detail,
+            } => write!(f, "{what} field \"{field}\" {detail}"),
+            ModelError::UnknownFamily(name) => write!(
+                f,
+                "unknown family '{name}'; supported: {}, {MIXTURE_FAMILY}",
+                Family::names()
+            ),
+            ModelError::Probability(p) => write!(f, "p must be between 0 and 1, got {p}"),
+        }
+    }
+}
+
+impl std::error::Error for ModelError {}
+
+impl From<StatsError> for ModelError {
+    fn from(e: StatsError) -> Self {
+        match e {
+            StatsError::ProbabilityOutOfRange(p) => ModelError::Probability(p),
+            other => ModelError::BadField {
+                what: "model",
+                field: "p".to_string(),
+                detail: other.to_string(),
+            },
+        }
+    }
+}
+
+/// The distribution a model describes.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Law {
+    /// One of the parametric families.
+    Parametric(Parametric),
+    /// A Gaussian mixture.
+    Mixture(Mixture),
+}
+
+/// A model: a distribution with, when it was fitted, the fit's statistics.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Model {
+    law: Law,
+    n: Option<u64>,
+    loglik: Option<f64>,
+    aic: Option<f64>,
+    bic: Option<f64>,
+    iterations: Option<u64>,
+    converged: Option<bool>,
+    k_candidates: Option<Vec<Candidate>>,
+}
+
+impl From<ParametricFit> for Model {
+    fn from(f: ParametricFit) -> Self {
+        Model {
+            n: Some(f.n),
+            loglik: Some(f.loglik),
+            aic: Some(f.aic),
+            bic: Some(f.bic),
+            ..Model::of(Law::Parametric(f.distribution))
+        }
+    }
+}
+
+impl From<MixtureFit> for Model {
+    fn from(f: MixtureFit) -> Self {
+        Model {
+            n: Some(f.n),
+            loglik: Some(f.loglik),
+            aic: Some(f.aic),
+            bic: Some(f.bic),
+            iterations: Some(u64::from(f.iterations)),
+            converged: Some(f.converged),
+            k_candidates: Some(f.candidates),
+            ..Model::of(Law::Mixture(f.mixture))
+        }
+    }
+}
+
+/// A JSON object being read: the fields taken so far, so that any left over can be
+/// reported as unknown.
+struct Reader<'a> {
+    what: &'static str,
+    scope: String,
+    object: &'a Map<String, Value>,
+    needs: String,
+    taken: Vec<&'a str>,
+}
+
+impl<'a> Reader<'a> {
+    fn new(
+        what: &'static str,
+        scope: String,
+        object: &'a Map<String, Value>,
+        needs: &[&str],
+    ) -> Self {
+        Reader {
+            what,
+            scope,
+            object,
+            needs: needs.join(", "),
+            taken: vec!["family"],
+        }
+    }
+
+    fn bad(&self, field: &str, detail: impl Into<String>) -> ModelError {
+        ModelError::BadField {
+            what: self.what,
+            field: field.to_string(),
+            detail: detail.into(),
+        }
+    }
+
+    /// The value of a field, if present and not null.
+    fn optional(&mut self, field: &'a str) -> Option<&'a Value> {
+        self.taken.push(field);
+        self.object.get(field).filter(|v| !v.is_null())
+    }
+
+    fn required(&mut self, field: &'a str) -> Result<&'a Value, ModelError> {
+        self.optional(field)
+            .ok_or_else(|| ModelError::MissingField {
+                what: self.what,
+                field: field.to_string(),
+                needs: self.needs.clone(),
+            })
+    }
+
+    fn number(&self, field: &str, v: &Value) -> Result<f64, ModelError> {
+        v.as_f64()
+            .filter(|x| x.is_finite())
+            .ok_or_else(|| self.bad(field, format!("must be a number, got {v}")))
+    }
+
+    fn optional_number(&mut self, field: &'a str) -> Result<Option<f64>, ModelError> {
+        self.optional(field)
+            .map(|v| self.number(field, v))
+            .transpose()
+    }
+
+    fn optional_count(&mut self, field: &'a str) -> Result<Option<u64>, ModelError> {
+        self.optional(field)
+            .map(|v| {
+                v.as_u64()
+                    .ok_or_else(|| self.bad(field, format!("must be a whole number >= 0, got {v}")))
+            })
+            .transpose()
+    }
+
+    /// Fails on the first field not taken.
+    fn finish(&self, allowed: &[&str]) -> Result<(), ModelError> {
+        match self
+            .object
+            .keys()
+            .find(|k| !self.taken.contains(&k.as_str()))
+        {
+            Some(field) => Err(ModelError::UnknownField {
+                what: self.what,
+                field: field.clone(),
+                scope: self.scope.clone(),
+                allowed: allowed.join(", "),
+            }),
+            None => Ok(()),
+        }
+    }
+}
+
+/// Parses JSON text into an object.
+fn object<'a>(
+    what: &'static str,
+    text: &str,
+    value: &'a mut Value,
+) -> Result<&'a Map<String, Value>, ModelError> {
+    *value = serde_json::from_str(text).map_err(|e| ModelError::NotJson {
+        what,
+        detail: e.to_string(),
+    })?;
+    match value {
+        Value::Object(map) => Ok(map),
+        other => Err(ModelError::NotObject {
+            what,
+            got: shorten(&other.to_string()),
+        }),
+    }
+}
+
+fn shorten(s: &str) -> String {
+    if s.chars().count() > 40 {
+        format!("{}...", s.chars().take(40).collect::<String>())
+    } else {
+        s.to_string()
+    }
+}
+
+/// What a family is: the mixture or one of the parametric families.
+enum Kind {
+    Parametric(Family),
+    Mixture,
+}
+
+fn kind(name: &str) -> Result<Kind, ModelError> {
+    if name.trim().eq_ignore_ascii_case(MIXTURE_FAMILY) {
+        return Ok(Kind::Mixture);
+    }
+    Family::from_name(name)
+        .map(Kind::Parametric)
+        .map_err(|_| ModelError::UnknownFamily(name.to_string()))
+}
+
+/// Reads a parametric family's parameters.
+fn read_parametric(r: &mut Reader<'_>, family: Family) -> Result<Parametric, ModelError> {
+    let mut values = Vec::with_capacity(2);
+    for &name in family.parameter_names() {
+        let v = r.required(name)?;
+        values.push(r.number(name, v)?);
+    }
+    Parametric::new(family, &values).map_err(|e| match e {
+        FitError::BadParameter {
+            name, value, rule, ..
+        } => r.bad(name, format!("must be {rule}, got {value}")),
+        other => r.bad(family.parameter_names()[0], other.to_string()),
+    })
+}
+
+/// Reads a mixture's `components`.
+fn read_components(r: &mut Reader<'_>) -> Result<Mixture, ModelError> {
+    let v = r.required("components")?;
+    let items = v
+        .as_array()
+        .filter(|a| !a.is_empty() && a.len() <= MAX_COMPONENTS)
+        .ok_or_else(|| {
+            r.bad(
+                "components",
+                format!(
+                    "must be an array of 1 to {MAX_COMPONENTS} objects {{\"weight\", \"mean\", \"sd\"}}"
+                ),
+            )
+        })?;
+    let mut components = Vec::with_capacity(items.len());
+    for (i, item) in items.iter().enumerate() {
+        let path = |field: &str| format!("components[{i}].{field}");
+        let obj = item.as_object().ok_or_else(|| {
+            r.bad(
+                &format!("components[{i}]"),
+                format!("must be an object, got {item}"),
+            )
+        })?;
+        let field = |name: &str| -> Result<f64, ModelError> {
+            let v =
+                obj.get(name)
+                    .filter(|v| !v.is_null())
+                    .ok_or_else(|| ModelError::MissingField {
+                        what: r.what,
+                        field: path(name),
+                        needs: "weight, mean, sd in every component".to_string(),
+                    })?;
+            r.number(&path(name), v)
+        };
+        let c = Component {
+            weight: field("weight")?,
+            mean: field("mean")?,
+            sd: field("sd")?,
+        };
+        only(r, obj, &["weight", "mean", "sd"], "a component", path)?;
+        components.push(c);
+    }
+    Mixture::new(components).map_err(|e| match e {
+        MixtureError::BadComponent {
+            index,
+            field,
+            value,
+            rule,
+        } => r.bad(
+            &format!("components[{index}].{field}"),
+            format!("must be {rule}, got {value}"),
+        ),
+        MixtureError::WeightSum(total) => r.bad(
+            "components",
+            format!("must have weights that sum to 1, got {total}"),
+        ),
+        other => r.bad("components", other.to_string()),
+    })
+}
+
+/// Rejects a field of a nested object (a component, a candidate) outside `allowed`;
+/// `path` names a field in messages.
+fn only(
+    r: &Reader<'_>,
+    obj: &Map<String, Value>,
+    allowed: &[&str],
+    scope: &str,
+    path: impl Fn(&str) -> String,
+) -> Result<(), ModelError> {
+    match obj.keys().find(|k| !allowed.contains(&k.as_str())) {
+        Some(extra) => Err(ModelError::UnknownField {
+            what: r.what,
+            field: path(extra),
+            scope: scope.to_string(),
+            allowed: allowed.join(", "),
+        }),
+        None => Ok(()),
+    }
+}
+
+/// Reads `k_candidates`: an array of `{"k", "loglik", "bic"}`.
+fn read_candidates(r: &Reader<'_>, v: &Value) -> Result<Vec<Candidate>, ModelError> {
+    let items = v.as_array().ok_or_else(|| {
+        r.bad(
+            "k_candidates",
+            format!("must be an array, got {}", shorten(&v.to_string())),
+        )
+    })?;
+    items
+        .iter()
+        .enumerate()
+        .map(|(i, item)| {
+            let path = |f: &str| format!("k_candidates[{i}].{f}");
+            let obj = item.as_object().ok_or_else(|| {
+                r.bad(
+                    &format!("k_candidates[{i}]"),
+                    format!("must be an object, got {item}"),
+                )
+            })?;
+            only(r, obj, &["k", "loglik", "bic"], "a k_candidates item", path)?;
+            let k = obj
+                .get("k")
+                .and_then(Value::as_u64)
+                .filter(|k| (1..=MAX_COMPONENTS as u64).contains(k))
+                .ok_or_else(|| {
+                    r.bad(
+                        &path("k"),
+                        format!("must be a whole number from 1 to {MAX_COMPONENTS}"),
+                    )
+                })?;
+            let opt = |f: &str| -> Result<Option<f64>, ModelError> {
+                match obj.get(f) {
+                    None | Some(Value::Null) => Ok(None),
+                    Some(v) => r.number(&path(f), v).map(Some),
+                }
+            };
+            Ok(Candidate {
+                k: k as usize,
+                loglik: opt("loglik")?,
+                bic: opt("bic")?,
+            })
+        })
+        .collect()
+}
+
+impl Model {
+    /// A model of a distribution, with no fit statistics.
+    fn of(law: Law) -> Model {
+        Model {
+            law,
+            n: None,
+            loglik: None,
+            aic: None,
+            bic: None,
+            iterations: None,
+            converged: None,
+            k_candidates: None,
+        }
+    }
+
+    /// Parses and validates model JSON (as `dist_fit`, `dist_mixture` and `dist_model`
+    /// write it).
+    ///
+    /// # Errors
+    /// [`ModelError`] naming what is wrong: not JSON, not an object, no or unknown
+    /// `family` (listing the supported ones), a missing parameter, an unknown field, or
+    /// a value outside its domain (`sd` must be > 0, the mixture weights must sum to 1,
+    /// and so on).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::parse(r#"{"family": "normal", "mean": 0, "sd": 1}"#)?;
+    /// assert_eq!(m.cdf(0.0), 0.5);
+    /// let e = Model::parse(r#"{"family": "normal", "mean": 0}"#).unwrap_err();
+    /// assert_eq!(e.to_string(), "model lacks the field \"sd\" (required: mean, sd)");
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn parse(text: &str) -> Result<Model, ModelError> {
+        const WHAT: &str = "model";
+        let mut value = Value::Null;
+        let obj = object(WHAT, text, &mut value)?;
+        let family = match obj.get("family") {
+            Some(Value::String(s)) => s.as_str(),
+            Some(other) => {
+                return Err(ModelError::BadField {
+                    what: WHAT,
+                    field: "family".to_string(),
+                    detail: format!(
+                        "must be a family name such as \"normal\", got {}",
+                        shorten(&other.to_string())
+                    ),
+                });
+            }
+            None => {
+                return Err(ModelError::MissingField {
+                    what: WHAT,
+                    field: "family".to_string(),
+                    needs: "family and the family's parameters".to_string(),
+                });
+            }
+        };
+        match kind(family)? {
+            Kind::Parametric(f) => {
+                let mut r = Reader::new(WHAT, format!("a {f} model"), obj, f.parameter_names());
+                let law = read_parametric(&mut r, f)?;
+                let mut m = Model::of(Law::Parametric(law));
+                m.read_fit_fields(&mut r)?;
+                let mut allowed = vec!["family"];
+                allowed.extend(f.parameter_names());
+                allowed.extend(FIT_FIELDS);
+                r.finish(&allowed)?;
+                Ok(m)
+            }
+            Kind::Mixture => {
+                let mut r = Reader::new(
+                    WHAT,
+                    format!("a {MIXTURE_FAMILY} model"),
+                    obj,
+                    &["components"],
+                );
+                let mixture = read_components(&mut r)?;
+                let k = r.optional_count("k")?;
+                let len = mixture.components().len();
+                if let Some(k) = k
+                    && k != len as u64
+                {
+                    return Err(r.bad(
+                        "k",
+                        format!("must equal the number of components, {len}, got {k}"),
+                    ));
+                }
+                let mut m = Model::of(Law::Mixture(mixture));
+                m.read_fit_fields(&mut r)?;
+                m.iterations = r.optional_count("iterations")?;
+                m.converged = match r.optional("converged") {
+                    None => None,
+                    Some(Value::Bool(b)) => Some(*b),
+                    Some(other) => {
+                        return Err(
+                            r.bad("converged", format!("must be true or false, got {other}"))
+                        );
+                    }
+                };
+                m.k_candidates = match r.optional("k_candidates") {
+                    None => None,
+                    Some(v) => Some(read_candidates(&r, v)?),
+                };
+                let mut allowed = vec!["family", "components"];
+                allowed.extend(FIT_FIELDS);
+                allowed.extend(EM_FIELDS);
+                r.finish(&allowed)?;
+                Ok(m)
+            }
+        }
+    }
+
+    fn read_fit_fields<'a>(&mut self, r: &mut Reader<'a>) -> Result<(), ModelError> {
+        self.n = r.optional_count("n")?;
+        self.loglik = r.optional_number("loglik")?;
+        self.aic = r.optional_number("aic")?;
+        self.bic = r.optional_number("bic")?;
+        Ok(())
+    }
+
+    /// A model from a family name and a JSON object of its parameters only, such as
+    /// `{"shape": 2, "scale": 3}` for `gamma` or `{"components": [...]}` for
+    /// `normal_mixture`.
+    ///
+    /// # Errors
+    /// As [`Model::parse`], with `params` in the messages; fields other than the
+    /// parameters (fit statistics included) are unknown here.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("weibull", r#"{"shape": 1, "scale": 2}"#)?;
+    /// assert_eq!(m.to_json(), r#"{"family":"weibull","shape":1.0,"scale":2.0}"#);
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn from_parameters(family: &str, params: &str) -> Result<Model, ModelError> {
+        const WHAT: &str = "params";
+        let kind = kind(family)?;
+        let mut value = Value::Null;
+        let obj = object(WHAT, params, &mut value)?;
+        let law = match kind {
+            Kind::Parametric(f) => {
+                let mut r = Reader::new(WHAT, format!("{f} params"), obj, f.parameter_names());
+                r.taken.clear();
+                let law = read_parametric(&mut r, f)?;
+                r.finish(f.parameter_names())?;
+                Law::Parametric(law)
+            }
+            Kind::Mixture => {
+                let mut r = Reader::new(
+                    WHAT,
+                    format!("{MIXTURE_FAMILY} params"),
+                    obj,
+                    &["components"],
+                );
+                r.taken.clear();
+                let law = read_components(&mut r)?;
+                r.finish(&["components"])?;
+                Law::Mixture(law)
+            }
+        };
+        Ok(Model::of(law))
+    }
+
+    /// The model as JSON text: `family`, the parameters (or `k` and `components`), then
+    /// whichever fit statistics it has. Non-finite numbers never occur.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::fit::{Family, fit};
+    /// use ogive::value::model::Model;
+    /// let m = Model::from(fit(&[1.0, 3.0], Family::Uniform)?);
+    /// assert!(m.to_json().starts_with(r#"{"family":"uniform","min":1.0,"max":3.0,"n":2,"#));
+    /// # Ok::<(), ogive::stats::fit::FitError>(())
+    /// ```
+    pub fn to_json(&self) -> String {
+        let mut out = Map::new();
+        out.insert("family".into(), json!(self.family_name()));
+        match &self.law {
+            Law::Parametric(p) => {
+                for (name, v) in p.parameters() {
+                    out.insert(name.into(), json!(v));
+                }
+            }
+            Law::Mixture(m) => {
+                out.insert("k".into(), json!(m.components().len()));
+                let comps: Vec<Value> = m
+                    .components()
+                    .iter()
+                    .map(|c| json!({"weight": c.weight, "mean": c.mean, "sd": c.sd}))
+                    .collect();
+                out.insert("components".into(), Value::Array(comps));
+            }
+        }
+        if let Some(n) = self.n {
+            out.insert("n".into(), json!(n));
+        }
+        for (name, v) in [
+            ("loglik", self.loglik),
+            ("aic", self.aic),
+            ("bic", self.bic),
+        ] {
+            if let Some(v) = v {
+                out.insert(name.into(), json!(v));
+            }
+        }
+        if let Some(i) = self.iterations {
+            out.insert("iterations".into(), json!(i));
+        }
+        if let Some(c) = self.converged {
+            out.insert("converged".into(), json!(c));
+        }
+        if let Some(cands) = &self.k_candidates {
+            let items: Vec<Value> = cands
+                .iter()
+                .map(|c| json!({"k": c.k, "loglik": c.loglik, "bic": c.bic}))
+                .collect();
+            out.insert("k_candidates".into(), Value::Array(items));
+        }
+        Value::Object(out).to_string()
+    }
+
+    /// The family name: one of [`Family::names`] or [`MIXTURE_FAMILY`].
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::parse(r#"{"family": "Gamma", "shape": 2, "scale": 1}"#)?;
+    /// assert_eq!(m.family_name(), "gamma");
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn family_name(&self) -> &'static str {
+        match &self.law {
+            Law::Parametric(p) => p.family().name(),
+            Law::Mixture(_) => MIXTURE_FAMILY,
+        }
+    }
+
+    /// The distribution.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::{Law, Model};
+    /// let m = Model::from_parameters("normal", r#"{"mean": 0, "sd": 1}"#)?;
+    /// assert!(matches!(m.law(), Law::Parametric(_)));
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn law(&self) -> &Law {
+        &self.law
+    }
+
+    /// The number of values fitted, when the model was fitted.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::parse(r#"{"family": "exponential", "rate": 2, "n": 40}"#)?;
+    /// assert_eq!(m.n(), Some(40));
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn n(&self) -> Option<u64> {
+        self.n
+    }
+
+    /// The maximised log-likelihood, when the model was fitted.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("exponential", r#"{"rate": 2}"#)?;
+    /// assert_eq!(m.loglik(), None);
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn loglik(&self) -> Option<f64> {
+        self.loglik
+    }
+
+    /// The cumulative distribution function at `t`, in `[0, 1]`; NaN `t` gives NaN (SQL
+    /// adapters never pass NaN: they read it as NULL).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("exponential", r#"{"rate": 1}"#)?;
+    /// assert_eq!(m.cdf(0.0), 0.0);
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn cdf(&self, t: f64) -> f64 {
+        match &self.law {
+            Law::Parametric(p) => p.cdf(t),
+            Law::Mixture(m) => m.cdf(t),
+        }
+    }
+
+    /// The density at `t`; `+inf` at 0 for a gamma or Weibull with shape below 1; NaN
+    /// `t` gives NaN.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("uniform", r#"{"min": 0, "max": 4}"#)?;
+    /// assert_eq!(m.pdf(1.0), 0.25);
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn pdf(&self, t: f64) -> f64 {
+        match &self.law {
+            Law::Parametric(p) => p.pdf(t),
+            Law::Mixture(m) => m.pdf(t),
+        }
+    }
+
+    /// The p-quantile. `p = 0` and `p = 1` give the ends of the support, which are
+    /// infinite for the normal (both), the positive families and mixtures (`+inf` at
+    /// `p = 1`; mixtures `-inf` at 0). A mixture's quantile is found by bracketed
+    /// Newton-bisection on its cdf.
+    ///
+    /// # Errors
+    /// [`ModelError::Probability`] for p outside `[0, 1]` or NaN.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("uniform", r#"{"min": 0, "max": 10}"#)?;
+    /// assert_eq!(m.quantile(0.3)?, 3.0);
+    /// assert!(m.quantile(1.2).is_err());
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn quantile(&self, p: f64) -> Result<f64, ModelError> {
+        Ok(match &self.law {
+            Law::Parametric(d) => d.quantile(p)?,
+            Law::Mixture(m) => m.quantile(p)?,
+        })
+    }
+
+    /// The mean; `None` when it overflows (a lognormal with a very large sigma).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("weibull", r#"{"shape": 1, "scale": 2}"#)?;
+    /// assert_eq!(m.mean(), Some(2.0)); // shape 1 is the exponential with mean 2
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn mean(&self) -> Option<f64> {
+        match &self.law {
+            Law::Parametric(p) => p.mean(),
+            Law::Mixture(m) => Some(m.mean()).filter(|v| v.is_finite()),
+        }
+    }
+
+    /// The standard deviation; `None` when it overflows.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("normal", r#"{"mean": 1, "sd": 3}"#)?;
+    /// assert_eq!(m.sd(), Some(3.0));
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn sd(&self) -> Option<f64> {
+        match &self.law {
+            Law::Parametric(p) => p.sd(),
+            Law::Mixture(m) => Some(m.sd()).filter(|v| v.is_finite()),
+        }
+    }
+
+    /// The index (from 0) of the mixture component most probable for `t`; a parametric
+    /// model has one component, index 0. `None` for an infinite or NaN `t`.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters(
+    ///     "normal_mixture",
+    ///     r#"{"components": [{"weight": 0.5, "mean": 0, "sd": 1}, {"weight": 0.5, "mean": 10, "sd": 1}]}"#,
+    /// )?;
+    /// assert_eq!(m.component_index(7.5), Some(1));
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn component_index(&self, t: f64) -> Option<usize> {
+        match &self.law {
+            Law::Parametric(_) => t.is_finite().then_some(0),
+            Law::Mixture(m) => m.component_index(t),
+        }
+    }
+
+    /// The components, sorted by mean for a fitted mixture. A parametric model is one
+    /// component of weight 1 with the distribution's mean and sd (infinite when they
+    /// overflow).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters(
+    ///     "normal_mixture",
+    ///     r#"{"components": [{"weight": 0.4, "mean": 0, "sd": 1}, {"weight": 0.6, "mean": 5, "sd": 2}]}"#,
+    /// )?;
+    /// assert_eq!(m.components()[1].mean, 5.0);
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn components(&self) -> Vec<Component> {
+        match &self.law {
+            Law::Parametric(p) => vec![Component {
+                weight: 1.0,
+                mean: p.mean().unwrap_or(f64::INFINITY),
+                sd: p.sd().unwrap_or(f64::INFINITY),
+            }],
+            Law::Mixture(m) => m.components().to_vec(),
+        }
+    }
+}
+
+impl fmt::Display for Model {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&self.to_json())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::stats::fit::fit;
+    use crate::stats::mixture::fit_mixture;
+
+    #[test]
+    fn fitted_models_round_trip() {
+        let xs = [0.7, 1.3, 2.2, 2.9, 3.1, 4.8, 5.5, 7.9, 0.2, 1.1];
+        for family in Family::ALL {
+            let m = Model::from(fit(&xs, family).unwrap());
+            let text = m.to_json();
+            assert_eq!(Model::parse(&text), Ok(m.clone()), "{text}");
+            assert_eq!(Model::parse(&text).unwrap().to_json(), text);
+        }
+        let m = Model::from(fit_mixture(&xs, None).unwrap());
+        let text = m.to_json();
+        assert_eq!(Model::parse(&text).unwrap(), m);
+    }
+
+    fn err(text: &str) -> String {
+        Model::parse(text).unwrap_err().to_string()
+    }
+
+    #[test]
+    fn errors_name_the_field() {
+        assert_eq!(
+            err(r#"{"family": "normal", "mean": 0, "sd": 1, "scale": 2}"#),
+            "model has an unknown field \"scale\"; the fields of a normal model are family, mean, \
+             sd, n, loglik, aic, bic"
+        );
+        assert_eq!(
+            err(r#"{"family": "gamma", "shape": -1, "scale": 2}"#),
+            "model field \"shape\" must be finite and > 0, got -1"
+        );
+        assert_eq!(
+            err(r#"{"family": "poisson", "rate": 1}"#),
+            "unknown family 'poisson'; supported: normal, lognormal, exponential, gamma, weibull, \
+             uniform, normal_mixture"
+        );
+        assert_eq!(
+            err(r#"{"mean": 1}"#),
+            "model lacks the field \"family\" (required: family and the family's parameters)"
+        );
+        assert!(err("[1, 2]").starts_with("model must be a JSON object, got [1,2]"));
+        assert!(err("nope").starts_with("model must be JSON text"));
+        assert_eq!(
+            err(
+                r#"{"family": "normal_mixture", "components": [{"weight": 1, "mean": 0, "sd": 1, "w": 2}]}"#
+            ),
+            "model has an unknown field \"components[0].w\"; the fields of a component are \
+             weight, mean, sd"
+        );
+        assert_eq!(
+            err(r#"{"family": "normal_mixture", "components": [{"weight": 1, "mean": 0}]}"#),
+            "model lacks the field \"components[0].sd\" (required: weight, mean, sd in every \
+             component)"
+        );
+        assert_eq!(
+            err(
+                r#"{"family": "normal_mixture", "k": 3, "components": [{"weight": 1, "mean": 0, "sd": 1}]}"#
+            ),
+            "model field \"k\" must equal the number of components, 1, got 3"
+        );
+        assert_eq!(
+            err(r#"{"family": "uniform", "min": 3, "max": 1}"#),
+            "model field \"max\" must be finite and greater than min, got 1"
+        );
+        assert_eq!(
+            err(r#"{"family": "normal", "mean": "zero", "sd": 1}"#),
+            "model field \"mean\" must be a number, got \"zero\""
+        );
+        let e = Model::from_parameters("normal", r#"{"mean": 0, "sd": 1, "n": 5}"#).unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "params has an unknown field \"n\"; the fields of normal params are mean, sd"
+        );
+    }
+
+    #[test]
+    fn parametric_components_and_index() {
+        let m = Model::from_parameters("normal", r#"{"mean": 3, "sd": 2}"#).unwrap();
+        assert_eq!(
+            m.components(),
+            vec![Component {
+                weight: 1.0,
+                mean: 3.0,
+                sd: 2.0
+            }]
+        );
+        assert_eq!(m.component_index(100.0), Some(0));
+        assert_eq!(m.component_index(f64::INFINITY), None);
+    }
+}
