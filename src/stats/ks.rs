@@ -459,6 +459,7 @@ pub fn ks_2samp_from_statistic(
 /// lattice-path walk of the module docs.
 ///
 /// `blocks` must sum to `n1 + n2`; a block list that does not is treated as untied.
+/// A p-value below the smallest normal double (about 2.2e-308) is returned as 0.
 ///
 /// # Example
 /// ```
@@ -560,11 +561,22 @@ pub fn exact_2samp_p(
                 lo += 1;
             }
             if empty {
-                return exited.value().clamp(0.0, 1.0);
+                return normal_or_zero(exited.value());
             }
         }
     }
-    exited.value().clamp(0.0, 1.0)
+    normal_or_zero(exited.value())
+}
+
+/// A probability from the lattice walk, clamped to [0, 1]. Below the smallest normal
+/// double (about 2.2e-308) the walk's masses have underflowed and the digits that remain
+/// are rounding noise, so such a p is reported as 0: the true value is smaller still.
+fn normal_or_zero(p: f64) -> f64 {
+    if p < f64::MIN_POSITIVE {
+        0.0
+    } else {
+        p.min(1.0)
+    }
 }
 
 /// The asymptotic two-sample p-value for statistic `d` (see the module docs).
@@ -1589,5 +1601,28 @@ mod tests {
             one_sample_statistic(&[0.5], |_| 1.5),
             Err(TestError::BadCdf { .. })
         ));
+    }
+
+    #[test]
+    fn complete_separation_far_below_the_double_range_is_zero() {
+        // Complete separation: only the two splits that put all of one sample first reach
+        // D = 1, so p = 2 / C(n1 + n2, n1) by counting. For 700 + 700 that is about 1e-420,
+        // far below f64::MIN_POSITIVE: expected exactly 0 rather than subnormal noise.
+        let blocks = vec![1usize; 1400];
+        let p = exact_2samp_p(700, 700, 700 * 700, &blocks, Alternative::TwoSided);
+        assert_eq!(p, 0.0);
+        // And at 500 + 500 the value is still representable and positive: 2 / C(1000, 500)
+        // = 3.7e-299 (log10 C(1000, 500) = 298.43..., from lgamma; tolerance 1e-6 relative).
+        let blocks = vec![1usize; 1000];
+        let p = exact_2samp_p(500, 500, 500 * 500, &blocks, Alternative::TwoSided);
+        let log10_c = (ln_choose(1000, 500)) / std::f64::consts::LN_10;
+        let expected = 2.0 * 10f64.powf(-log10_c);
+        assert!((p - expected).abs() <= 1e-6 * expected, "{p} vs {expected}");
+    }
+
+    fn ln_choose(n: u64, k: u64) -> f64 {
+        (1..=k)
+            .map(|i| ((n - k + i) as f64).ln() - (i as f64).ln())
+            .sum()
     }
 }
