@@ -8,9 +8,10 @@
 
 pub mod args;
 pub mod column;
+pub mod sketch;
 
 use rusqlite::Connection;
-use rusqlite::functions::{Aggregate, FunctionFlags};
+use rusqlite::functions::{Aggregate, Context, FunctionFlags, WindowAggregate};
 use rusqlite::types::Value;
 
 /// How a function is used in SQL.
@@ -94,9 +95,38 @@ where
     Ok(())
 }
 
+/// Registers a window function (also usable as a plain aggregate) for each arity of its
+/// row.
+pub(crate) fn window<S, W>(
+    conn: &Connection,
+    def: &'static FunctionDef,
+    make: fn() -> W,
+) -> rusqlite::Result<()>
+where
+    S: std::panic::RefUnwindSafe + std::panic::UnwindSafe + Send,
+    W: WindowAggregate<S, Value> + Send + 'static,
+{
+    for &n in def.arities {
+        conn.create_window_function(def.name, n, flags(), make())?;
+    }
+    Ok(())
+}
+
+/// Registers a scalar function for each arity of its row.
+pub(crate) fn scalar(
+    conn: &Connection,
+    def: &'static FunctionDef,
+    f: fn(&mut Context<'_>) -> rusqlite::Result<Value>,
+) -> rusqlite::Result<()> {
+    for &n in def.arities {
+        conn.create_scalar_function(def.name, n, flags(), f)?;
+    }
+    Ok(())
+}
+
 /// The registry: one slice of rows per adapter module, in the order the README lists
 /// them. A new module adds its `FUNCTIONS` here.
-pub static REGISTRY: &[&[FunctionDef]] = &[column::FUNCTIONS];
+pub static REGISTRY: &[&[FunctionDef]] = &[column::FUNCTIONS, sketch::FUNCTIONS];
 
 /// Every registry row, in listing order.
 pub fn all() -> impl Iterator<Item = &'static FunctionDef> {
