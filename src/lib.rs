@@ -1,8 +1,9 @@
 //! ogive: empirical distributions, quantiles, tests and fits inside SQLite.
 //!
-//! The crate has three layers:
+//! The crate has these layers:
 //!
 //! - [`stats`]: the mathematics, pure functions on slices with no SQLite in sight;
+//! - [`value`]: the SQL values ogive builds (BLOB layouts, encoding and validation);
 //! - [`functions`]: the SQL adapters and the registry of every SQL function;
 //! - [`register`]: installs the functions on a [`rusqlite::Connection`].
 //!
@@ -25,6 +26,7 @@
 
 pub mod functions;
 pub mod stats;
+pub mod value;
 
 #[cfg(feature = "loadable")]
 pub mod extension;

@@ -3,11 +3,16 @@
 //! Every kernel here is reached from SQL through an adapter in [`crate::functions`], and
 //! from Rust directly. One file per method family:
 //!
-//! - [`sum`]: compensated (Neumaier) summation, used wherever n can be large.
+//! - [`sum`]: compensated (Neumaier) summation, used wherever n can be large, and exact
+//!   summation for sums that must also subtract.
 //! - [`quantile`]: the nine sample-quantile definitions of Hyndman and Fan (1996),
 //!   unweighted by selection and with frequency weights.
 //! - [`ecdf`]: the empirical distribution function as a running count.
 //! - [`moments`]: the numeric summary behind `profile(x)`.
+//! - [`order`]: a multiset with order statistics in O(log n), behind the window forms of
+//!   `quantile`.
+//! - [`sketch`]: a mergeable quantile sketch in bounded memory with a proven rank-error
+//!   bound (Karnin, Lang and Liberty 2016).
 //!
 //! # NaN policy
 //!
@@ -19,7 +24,9 @@
 
 pub mod ecdf;
 pub mod moments;
+pub mod order;
 pub mod quantile;
+pub mod sketch;
 pub mod sum;
 
 use std::fmt;
@@ -37,6 +44,8 @@ pub enum StatsError {
     NotANumber,
     /// Weights and values of different lengths.
     LengthMismatch { values: usize, weights: usize },
+    /// A window removed a value it never added (a broken promise of the host).
+    LeftFrameUnseen,
 }
 
 impl fmt::Display for StatsError {
@@ -56,6 +65,11 @@ impl fmt::Display for StatsError {
             StatsError::LengthMismatch { values, weights } => write!(
                 f,
                 "got {values} values but {weights} weights; give one weight per value"
+            ),
+            StatsError::LeftFrameUnseen => write!(
+                f,
+                "a row left the window frame that never entered it; this is a bug in the \
+                 host's window machinery, please report it with the query"
             ),
         }
     }
