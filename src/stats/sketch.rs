@@ -499,15 +499,27 @@ impl QuantileSketch {
     /// # Errors
     /// [`super::StatsError::ProbabilityOutOfRange`] when `p` is not in `[0, 1]`.
     pub fn quantile(&self, p: f64) -> Result<Option<f64>, super::StatsError> {
-        super::check_probability(p)?;
+        Ok(self.quantiles(&[p])?.pop().flatten())
+    }
+
+    /// [`QuantileSketch::quantile`] at each of `ps`, sorting the kept values once.
+    ///
+    /// # Errors
+    /// [`super::StatsError::ProbabilityOutOfRange`] when a `p` is not in `[0, 1]`.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::sketch::QuantileSketch;
+    /// let mut s = QuantileSketch::new(0.01).unwrap();
+    /// (1..=4).for_each(|i| s.insert(f64::from(i)).unwrap());
+    /// assert_eq!(s.quantiles(&[0.0, 0.5, 1.0]).unwrap(), vec![Some(1.0), Some(2.0), Some(4.0)]);
+    /// ```
+    pub fn quantiles(&self, ps: &[f64]) -> Result<Vec<Option<f64>>, super::StatsError> {
+        for &p in ps {
+            super::check_probability(p)?;
+        }
         if self.n == 0 {
-            return Ok(None);
-        }
-        if p == 0.0 {
-            return Ok(Some(self.min));
-        }
-        if p == 1.0 {
-            return Ok(Some(self.max));
+            return Ok(vec![None; ps.len()]);
         }
         let mut weighted: Vec<(f64, u64)> = self
             .levels
@@ -516,15 +528,27 @@ impl QuantileSketch {
             .flat_map(|(h, level)| level.iter().map(move |&x| (x, 1u64 << h)))
             .collect();
         weighted.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
-        let target = p * self.n as f64;
-        let mut cumulative = 0u64;
-        for (x, w) in weighted {
-            cumulative += w;
-            if cumulative as f64 >= target {
-                return Ok(Some(x));
-            }
+        let mut cumulative = Vec::with_capacity(weighted.len());
+        let mut acc = 0u64;
+        for &(_, w) in &weighted {
+            acc += w;
+            cumulative.push(acc);
         }
-        Ok(Some(self.max))
+        let n = self.n as f64;
+        Ok(ps
+            .iter()
+            .map(|&p| {
+                Some(if p == 0.0 {
+                    self.min
+                } else if p == 1.0 {
+                    self.max
+                } else {
+                    let target = p * n;
+                    let i = cumulative.partition_point(|&c| (c as f64) < target);
+                    weighted.get(i).map_or(self.max, |&(x, _)| x)
+                })
+            })
+            .collect())
     }
 
     /// Rebuilds a sketch from its stored parts, checking every invariant a sketch keeps.
