@@ -24,7 +24,7 @@ use std::time::Instant;
 use ogive::functions::args::{fail, number};
 use ogive::rusqlite::functions::{Aggregate, Context, FunctionFlags, WindowAggregate};
 use ogive::rusqlite::{Connection, params};
-use ogive::stats::order::OrderStatistics;
+use ogive::stats::order::{OrderStatistics, splitmix64};
 use ogive::stats::quantile::{QuantileType, quantile_ranked, quantile_sorted};
 use ogive::stats::sketch::{DEFAULT_EPSILON, QuantileSketch, max_retained};
 use ogive::value::sketch::encode;
@@ -76,20 +76,11 @@ impl WindowAggregate<Vec<f64>, Option<f64>> for Resort {
     }
 }
 
-/// SplitMix64, for seeded data.
-fn splitmix(state: &mut u64) -> u64 {
-    *state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
-    let mut z = *state;
-    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-    z ^ (z >> 31)
-}
-
 /// A cargo temperature in degC, unrounded: every value distinct, the worst case for the
 /// order-statistic tree (a sensor's 0.1 degC resolution would leave a few hundred
 /// distinct values and a tree of that size, whatever w is).
 fn reading(state: &mut u64) -> f64 {
-    let u = |s: &mut u64| (splitmix(s) >> 11) as f64 / (1u64 << 53) as f64;
+    let u = |s: &mut u64| (splitmix64(s) >> 11) as f64 / (1u64 << 53) as f64;
     let steady = 3.0 + 2.0 * (u(state) + u(state) + u(state) - 1.5);
     let door = if u(state) < 0.03 { 6.0 * u(state) } else { 0.0 };
     steady + door
@@ -137,7 +128,7 @@ fn rolling(conn: &Connection, call: &str, w: usize) -> (f64, Vec<Option<f64>>) {
 }
 
 /// The median of five runs, in seconds.
-fn median3(mut f: impl FnMut() -> f64) -> f64 {
+fn median5(mut f: impl FnMut() -> f64) -> f64 {
     let mut t = [f(), f(), f(), f(), f()];
     t.sort_by(f64::total_cmp);
     t[2]
@@ -188,8 +179,8 @@ fn main() {
     println!("|---|---|---|---|---|---|");
     let mut per_row = Vec::new();
     for w in [100, 1_000, 10_000] {
-        let ours = median3(|| rolling(&big, "quantile(x, 0.95)", w).0);
-        let floor = median3(|| rolling(&big, "sum(x)", w).0);
+        let ours = median5(|| rolling(&big, "quantile(x, 0.95)", w).0);
+        let floor = median5(|| rolling(&big, "sum(x)", w).0);
         let ns = |s: f64| s * 1e9 / ROWS as f64;
         println!(
             "| {w} | {ROWS} | {ours:.3} | {:.0} | {floor:.3} | {:.0} |",
@@ -232,7 +223,7 @@ fn main() {
             equal &= a == b;
         }
         let per = (t[1] - t[0]) / (n2 - n1) as f64;
-        let ours = median3(|| rolling(&big, "quantile(x, 0.95)", w).0);
+        let ours = median5(|| rolling(&big, "quantile(x, 0.95)", w).0);
         println!(
             "| {w} | {n1}, {n2} | {:.0} | {:.1} | {ours:.3} | {:.0}x | {equal} |",
             per * 1e9,
@@ -254,7 +245,7 @@ fn main() {
         (10_000, 3_000),
         (100_000, 300),
     ] {
-        let tree = median3(|| kernel_tree(&xs, w).0) * 1e9 / ROWS as f64;
+        let tree = median5(|| kernel_tree(&xs, w).0) * 1e9 / ROWS as f64;
         let (t_resort, a) = kernel_resort(&xs, w, resort_rows);
         let (_, b) = kernel_tree(&xs[..w - 1 + resort_rows], w);
         let resort = t_resort * 1e9 / resort_rows as f64;
@@ -267,20 +258,15 @@ fn main() {
     }
 
     println!("\n## Plain aggregate (selection, O(n)) over {ROWS} rows\n");
-    let t = median3(|| {
-        let start = Instant::now();
-        let _: f64 = big
-            .query_row("SELECT quantile(x, 0.5) FROM t", [], |r| r.get(0))
-            .unwrap();
-        start.elapsed().as_secs_f64()
-    });
-    let floor = median3(|| {
-        let start = Instant::now();
-        let _: f64 = big
-            .query_row("SELECT avg(x) FROM t", [], |r| r.get(0))
-            .unwrap();
-        start.elapsed().as_secs_f64()
-    });
+    let aggregate = |sql: &str| {
+        median5(|| {
+            let start = Instant::now();
+            let _: f64 = big.query_row(sql, [], |r| r.get(0)).unwrap();
+            start.elapsed().as_secs_f64()
+        })
+    };
+    let t = aggregate("SELECT quantile(x, 0.5) FROM t");
+    let floor = aggregate("SELECT avg(x) FROM t");
     println!("- quantile(x, 0.5): {t:.3} s; avg(x) over the same rows: {floor:.3} s");
 
     println!("\n## quantile_sketch memory at the default epsilon {DEFAULT_EPSILON}\n");

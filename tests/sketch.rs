@@ -6,6 +6,7 @@
 //! The same for merges of 64 shard sketches. The reference is exact sorting, which the
 //! issue accepts as the outside reference by enumeration.
 
+use ogive::stats::order::splitmix64;
 use ogive::stats::sketch::{DEFAULT_EPSILON, QuantileSketch, epsilon_for_k, max_retained};
 use ogive::value::sketch::{decode, encode};
 
@@ -14,11 +15,7 @@ struct Rng(u64);
 
 impl Rng {
     fn next(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
+        splitmix64(&mut self.0)
     }
     /// Uniform in (0, 1).
     fn uniform(&mut self) -> f64 {

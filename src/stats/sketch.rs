@@ -267,16 +267,29 @@ pub fn max_retained(k: u32, n: u64) -> u64 {
 /// ```
 #[derive(Debug, Clone, PartialEq)]
 pub struct QuantileSketch {
-    k: u32,
-    n: u64,
-    min: f64,
-    max: f64,
-    variance: f64,
-    rng: u64,
-    levels: Vec<Vec<f64>>,
+    state: SketchState,
     capacities: Vec<u32>,
     capacity_total: usize,
     retained: usize,
+}
+
+/// What a sketch stores (and its BLOB holds); the rest is derived from it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SketchState {
+    /// The capacity parameter.
+    pub k: u32,
+    /// Values summarised.
+    pub n: u64,
+    /// The smallest value summarised (`+inf` when empty).
+    pub min: f64,
+    /// The largest value summarised (`-inf` when empty).
+    pub max: f64,
+    /// `S`, the sum of `4^h` over every compaction (the proof's variance term).
+    pub variance: f64,
+    /// The state of the coin generator.
+    pub rng: u64,
+    /// The kept values, level by level (level `h` stands for `2^h` values each).
+    pub levels: Vec<Vec<f64>>,
 }
 
 impl QuantileSketch {
@@ -292,13 +305,15 @@ impl QuantileSketch {
     /// An empty sketch with capacity parameter `k` (clamped to `MIN_K..=MAX_K`).
     pub fn with_k(k: u32) -> Self {
         let mut s = QuantileSketch {
-            k: k.clamp(MIN_K, MAX_K),
-            n: 0,
-            min: f64::INFINITY,
-            max: f64::NEG_INFINITY,
-            variance: 0.0,
-            rng: DEFAULT_SEED,
-            levels: vec![Vec::new()],
+            state: SketchState {
+                k: k.clamp(MIN_K, MAX_K),
+                n: 0,
+                min: f64::INFINITY,
+                max: f64::NEG_INFINITY,
+                variance: 0.0,
+                rng: DEFAULT_SEED,
+                levels: vec![Vec::new()],
+            },
             capacities: Vec::new(),
             capacity_total: 0,
             retained: 0,
@@ -309,13 +324,13 @@ impl QuantileSketch {
 
     /// The same sketch with another seed for its coins (before any value is inserted).
     pub fn with_seed(mut self, seed: u64) -> Self {
-        self.rng = seed;
+        self.state.rng = seed;
         self
     }
 
     fn refresh_capacities(&mut self) {
-        let levels = self.levels.len();
-        let mut caps: Vec<u32> = capacity_below_top(self.k).take(levels).collect();
+        let levels = self.state.levels.len();
+        let mut caps: Vec<u32> = capacity_below_top(self.state.k).take(levels).collect();
         caps.reverse();
         self.capacity_total = caps.iter().map(|&c| c as usize).sum();
         self.capacities = caps;
@@ -323,37 +338,37 @@ impl QuantileSketch {
 
     /// The capacity parameter `k`.
     pub fn k(&self) -> u32 {
-        self.k
+        self.state.k
     }
 
     /// The number of values summarised.
     pub fn n(&self) -> u64 {
-        self.n
+        self.state.n
     }
 
     /// The smallest value summarised (`+inf` when empty).
     pub fn min(&self) -> f64 {
-        self.min
+        self.state.min
     }
 
     /// The largest value summarised (`-inf` when empty).
     pub fn max(&self) -> f64 {
-        self.max
+        self.state.max
     }
 
     /// `S`, the sum of `4^h` over every compaction so far (the proof's variance term).
     pub fn variance(&self) -> f64 {
-        self.variance
+        self.state.variance
     }
 
     /// The state of the coin generator.
     pub fn rng_state(&self) -> u64 {
-        self.rng
+        self.state.rng
     }
 
     /// The kept values, level by level (level `h` stands for `2^h` values each).
     pub fn levels(&self) -> &[Vec<f64>] {
-        &self.levels
+        &self.state.levels
     }
 
     /// How many values the sketch keeps.
@@ -364,17 +379,17 @@ impl QuantileSketch {
     /// The proven rank-error bound as a share of n for this sketch's `k` (see
     /// [`epsilon_for_k`]).
     pub fn epsilon(&self) -> f64 {
-        epsilon_for_k(self.k)
+        epsilon_for_k(self.state.k)
     }
 
     /// The bound this sketch's own history proves, as a share of n, at failure
     /// probability [`FAILURE_PROBABILITY`] per query: `sqrt(2 S ln(2/delta)) / n`. At
     /// most [`QuantileSketch::epsilon`]; 0 while nothing was compacted (exact).
     pub fn instance_error_bound(&self) -> f64 {
-        if self.n == 0 {
+        if self.state.n == 0 {
             return 0.0;
         }
-        (2.0 * self.variance * (2.0 / FAILURE_PROBABILITY).ln()).sqrt() / self.n as f64
+        (2.0 * self.state.variance * (2.0 / FAILURE_PROBABILITY).ln()).sqrt() / self.state.n as f64
     }
 
     /// Adds one value.
@@ -386,11 +401,15 @@ impl QuantileSketch {
         if x.is_nan() {
             return Err(SketchError::NotANumber);
         }
-        self.n = self.n.checked_add(1).ok_or(SketchError::TooManyValues)?;
-        self.min = self.min.min(x);
-        self.max = self.max.max(x);
-        self.rng = self.rng.rotate_left(7) ^ x.to_bits();
-        self.levels[0].push(x);
+        self.state.n = self
+            .state
+            .n
+            .checked_add(1)
+            .ok_or(SketchError::TooManyValues)?;
+        self.state.min = self.state.min.min(x);
+        self.state.max = self.state.max.max(x);
+        self.state.rng = self.state.rng.rotate_left(7) ^ x.to_bits();
+        self.state.levels[0].push(x);
         self.retained += 1;
         if self.retained >= self.capacity_total {
             self.compress();
@@ -417,29 +436,32 @@ impl QuantileSketch {
     /// assert!(a.merge(&QuantileSketch::new(0.05).unwrap()).is_err());
     /// ```
     pub fn merge(&mut self, other: &QuantileSketch) -> Result<(), SketchError> {
-        if self.k != other.k {
+        if self.state.k != other.state.k {
             return Err(SketchError::ParameterMismatch {
-                left: self.k,
-                right: other.k,
+                left: self.state.k,
+                right: other.state.k,
             });
         }
-        if other.n == 0 {
+        if other.state.n == 0 {
             return Ok(());
         }
-        self.n = self
+        self.state.n = self
+            .state
             .n
-            .checked_add(other.n)
+            .checked_add(other.state.n)
             .ok_or(SketchError::TooManyValues)?;
-        self.min = self.min.min(other.min);
-        self.max = self.max.max(other.max);
-        self.variance += other.variance;
-        let mut mixed = self.rng ^ other.rng.rotate_left(32);
-        self.rng = splitmix64(&mut mixed);
-        if other.levels.len() > self.levels.len() {
-            self.levels.resize_with(other.levels.len(), Vec::new);
+        self.state.min = self.state.min.min(other.state.min);
+        self.state.max = self.state.max.max(other.state.max);
+        self.state.variance += other.state.variance;
+        let mut mixed = self.state.rng ^ other.state.rng.rotate_left(32);
+        self.state.rng = splitmix64(&mut mixed);
+        if other.state.levels.len() > self.state.levels.len() {
+            self.state
+                .levels
+                .resize_with(other.state.levels.len(), Vec::new);
             self.refresh_capacities();
         }
-        for (mine, theirs) in self.levels.iter_mut().zip(&other.levels) {
+        for (mine, theirs) in self.state.levels.iter_mut().zip(&other.state.levels) {
             mine.extend_from_slice(theirs);
         }
         self.retained += other.retained;
@@ -451,8 +473,8 @@ impl QuantileSketch {
     fn compress(&mut self) {
         while self.retained >= self.capacity_total {
             // Some level is at or above its capacity, since the total is.
-            let Some(h) = (0..self.levels.len())
-                .find(|&h| self.levels[h].len() >= self.capacities[h] as usize)
+            let Some(h) = (0..self.state.levels.len())
+                .find(|&h| self.state.levels[h].len() >= self.capacities[h] as usize)
             else {
                 break;
             };
@@ -462,25 +484,26 @@ impl QuantileSketch {
 
     /// Sorts level `h` and moves every other value up one level, by a fair coin.
     fn compact(&mut self, h: usize) {
-        if h + 1 == self.levels.len() {
-            self.levels.push(Vec::new());
+        if h + 1 == self.state.levels.len() {
+            self.state.levels.push(Vec::new());
             self.refresh_capacities();
         }
-        let mut buf = std::mem::take(&mut self.levels[h]);
+        let mut buf = std::mem::take(&mut self.state.levels[h]);
         buf.sort_unstable_by(f64::total_cmp);
         let odd_one_out = if buf.len() % 2 == 1 { buf.pop() } else { None };
-        let offset = (splitmix64(&mut self.rng) & 1) as usize;
-        self.levels[h + 1].extend(buf.iter().skip(offset).step_by(2));
+        let offset = (splitmix64(&mut self.state.rng) & 1) as usize;
+        self.state.levels[h + 1].extend(buf.iter().skip(offset).step_by(2));
         self.retained -= buf.len() / 2;
-        self.variance += 4f64.powi(h as i32);
+        self.state.variance += 4f64.powi(h as i32);
         buf.clear();
         buf.extend(odd_one_out);
-        self.levels[h] = buf;
+        self.state.levels[h] = buf;
     }
 
     /// The estimated number of values `<= t`.
     pub fn rank(&self, t: f64) -> u64 {
-        self.levels
+        self.state
+            .levels
             .iter()
             .enumerate()
             .map(|(h, level)| (level.iter().filter(|&&x| x <= t).count() as u64) << h)
@@ -490,7 +513,7 @@ impl QuantileSketch {
     /// The estimated share of values `<= t`; `None` when the sketch is empty or `t` is
     /// NaN.
     pub fn cdf(&self, t: f64) -> Option<f64> {
-        (self.n > 0 && !t.is_nan()).then(|| self.rank(t) as f64 / self.n as f64)
+        (self.state.n > 0 && !t.is_nan()).then(|| self.rank(t) as f64 / self.state.n as f64)
     }
 
     /// The estimated p-quantile: the smallest kept value whose estimated rank reaches
@@ -518,10 +541,11 @@ impl QuantileSketch {
         for &p in ps {
             super::check_probability(p)?;
         }
-        if self.n == 0 {
+        if self.state.n == 0 {
             return Ok(vec![None; ps.len()]);
         }
         let mut weighted: Vec<(f64, u64)> = self
+            .state
             .levels
             .iter()
             .enumerate()
@@ -534,37 +558,43 @@ impl QuantileSketch {
             acc += w;
             cumulative.push(acc);
         }
-        let n = self.n as f64;
+        let n = self.state.n as f64;
         Ok(ps
             .iter()
             .map(|&p| {
                 Some(if p == 0.0 {
-                    self.min
+                    self.state.min
                 } else if p == 1.0 {
-                    self.max
+                    self.state.max
                 } else {
                     let target = p * n;
                     let i = cumulative.partition_point(|&c| (c as f64) < target);
-                    weighted.get(i).map_or(self.max, |&(x, _)| x)
+                    weighted.get(i).map_or(self.state.max, |&(x, _)| x)
                 })
             })
             .collect())
     }
 
-    /// Rebuilds a sketch from its stored parts, checking every invariant a sketch keeps.
+    /// The stored state (what the BLOB holds).
+    pub fn state(&self) -> &SketchState {
+        &self.state
+    }
+
+    /// Rebuilds a sketch from its stored state, checking every invariant a sketch keeps.
     ///
     /// # Errors
     /// [`SketchError::Corrupt`] naming the first invariant that fails.
-    pub fn from_parts(
-        k: u32,
-        n: u64,
-        min: f64,
-        max: f64,
-        variance: f64,
-        rng: u64,
-        levels: Vec<Vec<f64>>,
-    ) -> Result<Self, SketchError> {
+    pub fn from_state(state: SketchState) -> Result<Self, SketchError> {
         let bad = |why: String| Err(SketchError::Corrupt(why));
+        let SketchState {
+            k,
+            n,
+            min,
+            max,
+            variance,
+            ref levels,
+            ..
+        } = state;
         if !(MIN_K..=MAX_K).contains(&k) {
             return bad(format!("k = {k} is outside {MIN_K}..={MAX_K}"));
         }
@@ -604,13 +634,7 @@ impl QuantileSketch {
         }
         let retained = levels.iter().map(Vec::len).sum();
         let mut s = QuantileSketch {
-            k,
-            n,
-            min,
-            max,
-            variance,
-            rng,
-            levels,
+            state,
             capacities: Vec::new(),
             capacity_total: 0,
             retained,
@@ -710,19 +734,11 @@ mod tests {
         };
         let a = build();
         assert_eq!(a, build());
-        let b = QuantileSketch::from_parts(
-            a.k(),
-            a.n(),
-            a.min(),
-            a.max(),
-            a.variance(),
-            a.rng_state(),
-            a.levels().to_vec(),
-        )
-        .unwrap();
+        let b = QuantileSketch::from_state(a.state().clone()).unwrap();
         assert_eq!(a, b);
-        let err = QuantileSketch::from_parts(32, a.n() + 1, 0.0, 1e9, 1.0, 0, a.levels().to_vec())
-            .unwrap_err();
+        let mut state = a.state().clone();
+        state.n += 1;
+        let err = QuantileSketch::from_state(state).unwrap_err();
         assert!(err.to_string().contains("but it says n ="), "{err}");
     }
 

@@ -23,7 +23,7 @@
 //! invariant a sketch keeps ([`QuantileSketch::from_parts`]), so a damaged, truncated or
 //! foreign BLOB is an error, never a wrong answer.
 
-use crate::stats::sketch::{MAX_LEVELS, QuantileSketch, SketchError};
+use crate::stats::sketch::{MAX_LEVELS, QuantileSketch, SketchError, SketchState};
 
 /// The first four bytes of every sketch BLOB.
 pub const MAGIC: [u8; 4] = *b"OGQS";
@@ -62,23 +62,24 @@ pub fn fnv1a64(bytes: &[u8]) -> u64 {
 /// assert_eq!(blob.len(), 56 + 4 + 3 * 8 + 8);
 /// assert_eq!(decode(&blob).unwrap(), s);
 /// ```
-pub fn encode(s: &QuantileSketch) -> Option<Vec<u8>> {
-    if s.n() == 0 {
+pub fn encode(sketch: &QuantileSketch) -> Option<Vec<u8>> {
+    let s = sketch.state();
+    if s.n == 0 {
         return None;
     }
-    let levels = s.levels();
-    let mut out = Vec::with_capacity(HEADER_LEN + 4 * levels.len() + 8 * s.retained() + 8);
+    let levels = &s.levels;
+    let mut out = Vec::with_capacity(HEADER_LEN + 4 * levels.len() + 8 * sketch.retained() + 8);
     out.extend_from_slice(&MAGIC);
     out.push(VERSION);
     out.push(0);
     out.extend_from_slice(&(levels.len() as u16).to_le_bytes());
-    out.extend_from_slice(&s.k().to_le_bytes());
+    out.extend_from_slice(&s.k.to_le_bytes());
     out.extend_from_slice(&0u32.to_le_bytes());
-    out.extend_from_slice(&s.n().to_le_bytes());
-    out.extend_from_slice(&s.min().to_le_bytes());
-    out.extend_from_slice(&s.max().to_le_bytes());
-    out.extend_from_slice(&s.variance().to_le_bytes());
-    out.extend_from_slice(&s.rng_state().to_le_bytes());
+    out.extend_from_slice(&s.n.to_le_bytes());
+    out.extend_from_slice(&s.min.to_le_bytes());
+    out.extend_from_slice(&s.max.to_le_bytes());
+    out.extend_from_slice(&s.variance.to_le_bytes());
+    out.extend_from_slice(&s.rng.to_le_bytes());
     for level in levels {
         out.extend_from_slice(&(level.len() as u32).to_le_bytes());
     }
@@ -157,15 +158,15 @@ pub fn decode(b: &[u8]) -> Result<QuantileSketch, SketchError> {
             level
         })
         .collect();
-    QuantileSketch::from_parts(
-        u32::from_le_bytes(array(b, 8)),
-        u64::from_le_bytes(array(b, 16)),
-        f64::from_le_bytes(array(b, 24)),
-        f64::from_le_bytes(array(b, 32)),
-        f64::from_le_bytes(array(b, 40)),
-        u64::from_le_bytes(array(b, 48)),
-        level_values,
-    )
+    QuantileSketch::from_state(SketchState {
+        k: u32::from_le_bytes(array(b, 8)),
+        n: u64::from_le_bytes(array(b, 16)),
+        min: f64::from_le_bytes(array(b, 24)),
+        max: f64::from_le_bytes(array(b, 32)),
+        variance: f64::from_le_bytes(array(b, 40)),
+        rng: u64::from_le_bytes(array(b, 48)),
+        levels: level_values,
+    })
 }
 
 #[cfg(test)]
