@@ -1,9 +1,10 @@
 #!/usr/bin/env bash
-# Fuzzes the empirical-distribution BLOB decoder for a bounded time: `bash fuzz/run.sh [SECONDS]`
-# (default 60). Installs cargo-fuzz from crates.io when it is missing. cargo fuzz passes
-# nightly-only flags (-Zsanitizer=address and friends) to rustc; RUSTC_BOOTSTRAP=1 lets the
-# stable toolchain accept them, so no nightly toolchain is needed. Exits non-zero when the
-# fuzzer finds a crash (the input is kept under fuzz/artifacts/).
+# Fuzzes every target in fuzz/fuzz_targets/ (the empirical-distribution BLOB decoder and the
+# quantile-sketch decoder) for a bounded time each: `bash fuzz/run.sh [SECONDS]` (default 60).
+# Installs cargo-fuzz from crates.io when it is missing. cargo fuzz passes nightly-only flags
+# (-Zsanitizer=address and friends) to rustc; RUSTC_BOOTSTRAP=1 lets the stable toolchain
+# accept them, so no nightly toolchain is needed. Exits non-zero when a target finds a crash
+# (the input is kept under fuzz/artifacts/).
 set -euo pipefail
 cd "$(dirname "$0")"
 seconds="${1:-60}"
@@ -12,21 +13,27 @@ if ! cargo fuzz --version >/dev/null 2>&1; then
     echo "== installing cargo-fuzz"
     cargo install cargo-fuzz --locked
 fi
-
 export RUSTC_BOOTSTRAP=1
-mkdir -p corpus/blob_decode
-echo "== fuzzing blob_decode for ${seconds} s"
+
 log="$(mktemp)"
 trap 'rm -f "$log"' EXIT
-set +e
-cargo fuzz run blob_decode corpus/blob_decode seeds -- \
-    -max_total_time="$seconds" -print_final_stats=1 2>&1 | tee "$log" | grep -E "^(#[0-9]+.*(INITED|DONE|pulse)|Done|==[0-9]+==ERROR|SUMMARY)|panicked" 
-status="${PIPESTATUS[0]}"
-set -e
-runs="$(sed -n 's/^stat::number_of_executed_units: *//p' "$log" | tail -1)"
-secs="$(sed -n 's/^stat::average_exec_per_sec: *//p' "$log" | tail -1)"
-echo "blob_decode: ${runs:-?} executions, ${secs:-?} per second, exit status ${status}"
-if [ "$status" -ne 0 ]; then
-    tail -n 60 "$log"
-fi
-exit "$status"
+for target in $(cargo fuzz list); do
+    mkdir -p "corpus/$target"
+    extra=()
+    if [ -d "seeds/$target" ]; then extra+=("seeds/$target"); elif [ "$target" = blob_decode ] && [ -d seeds ]; then extra+=(seeds); fi
+    flags=(-max_total_time="$seconds" -print_final_stats=1 -max_len=4096)
+    if [ -f "$target.dict" ]; then flags+=("-dict=$target.dict"); fi
+    echo "== fuzzing $target for ${seconds} s"
+    set +e
+    cargo fuzz run "$target" "corpus/$target" "${extra[@]}" -- "${flags[@]}" 2>&1 | tee "$log" |
+        grep -E "^(#[0-9]+.*(INITED|DONE)|Done|==[0-9]+==ERROR|SUMMARY)|panicked"
+    status="${PIPESTATUS[0]}"
+    set -e
+    runs="$(sed -n 's/^stat::number_of_executed_units: *//p' "$log" | tail -1)"
+    rate="$(sed -n 's/^stat::average_exec_per_sec: *//p' "$log" | tail -1)"
+    echo "$target: ${runs:-?} executions, ${rate:-?} per second, exit status ${status}"
+    if [ "$status" -ne 0 ]; then
+        tail -n 60 "$log"
+        exit "$status"
+    fi
+done

@@ -3,8 +3,8 @@
 //! The crate has four layers:
 //!
 //! - [`stats`]: the mathematics, pure functions on slices with no SQLite in sight;
-//! - [`value`]: the SQL values (the empirical-distribution BLOB and the model JSON), read
-//!   and checked at the boundary;
+//! - [`value`]: the SQL values (the empirical-distribution BLOB, the model JSON and the
+//!   quantile-sketch BLOB), read and checked at the boundary;
 //! - [`functions`]: the SQL adapters and the registry of every SQL function;
 //! - [`register`]: installs the functions on a [`rusqlite::Connection`].
 //!

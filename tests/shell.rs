@@ -762,7 +762,7 @@ fn a_session_at_the_prompt_runs_a_query_cancels_one_and_leaves() {
 
     // The shell's own words.
     tmux.line("functions ecdf");
-    tmux.wait_for("ecdf(x, t [, w])  (aggregate, 2 or 3 arguments)");
+    tmux.wait_for("ecdf(x, t [, w])  (window, 2 or 3 arguments)");
     tmux.line("format csv");
     tmux.wait_for("format csv");
     tmux.line("SELECT 6 * 7 AS answer;");

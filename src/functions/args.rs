@@ -12,6 +12,7 @@ use crate::stats::StatsError;
 use crate::stats::fit::FitError;
 use crate::stats::ks::TestError;
 use crate::stats::mixture::MixtureError;
+use crate::stats::sketch::SketchError;
 use crate::value::model::ModelError;
 use crate::value::{ValueError, describe as show};
 
@@ -30,6 +31,12 @@ pub enum ArgError {
     },
     /// A JSON argument that does not have the required shape.
     BadJson { what: &'static str, detail: String },
+    /// A value that should be a BLOB made by ogive is something else.
+    NotBlob {
+        what: &'static str,
+        made_by: &'static str,
+        shown: String,
+    },
     /// An error from a kernel.
     Stats(StatsError),
     /// A distribution argument that is not a valid distribution value.
@@ -55,6 +62,8 @@ pub enum ArgError {
     Mixture(MixtureError),
     /// Model JSON that was refused.
     Model(ModelError),
+    /// An error from the quantile sketch or its BLOB.
+    Sketch(SketchError),
 }
 
 impl fmt::Display for ArgError {
@@ -72,6 +81,11 @@ impl fmt::Display for ArgError {
                 "{what} must be the same on every row of a group, got {first} and then {now}"
             ),
             ArgError::BadJson { what, detail } => write!(f, "{what} {detail}"),
+            ArgError::NotBlob {
+                what,
+                made_by,
+                shown,
+            } => write!(f, "{what} must be a BLOB made by {made_by}, got {shown}"),
             ArgError::Stats(e) => e.fmt(f),
             ArgError::Value(e) => e.fmt(f),
             ArgError::Missing { signature } => {
@@ -100,6 +114,7 @@ impl fmt::Display for ArgError {
             ArgError::Fit(e) => e.fmt(f),
             ArgError::Mixture(e) => e.fmt(f),
             ArgError::Model(e) => e.fmt(f),
+            ArgError::Sketch(e) => e.fmt(f),
         }
     }
 }
@@ -137,6 +152,12 @@ impl From<MixtureError> for ArgError {
 impl From<ModelError> for ArgError {
     fn from(e: ModelError) -> Self {
         ArgError::Model(e)
+    }
+}
+
+impl From<SketchError> for ArgError {
+    fn from(e: SketchError) -> Self {
+        ArgError::Sketch(e)
     }
 }
 
@@ -224,6 +245,24 @@ pub fn text<'a>(v: ValueRef<'a>, what: &'static str) -> Result<Option<&'a str>, 
     }
 }
 
+/// A BLOB argument: NULL gives `None`; anything but a BLOB is an error that names the
+/// functions that make such BLOBs (`made_by`).
+pub fn blob<'a>(
+    v: ValueRef<'a>,
+    what: &'static str,
+    made_by: &'static str,
+) -> Result<Option<&'a [u8]>, ArgError> {
+    match v {
+        ValueRef::Null => Ok(None),
+        ValueRef::Blob(b) => Ok(Some(b)),
+        other => Err(ArgError::NotBlob {
+            what,
+            made_by,
+            shown: show(other),
+        }),
+    }
+}
+
 /// An argument that must be the same on every row of a group (a probability, a
 /// threshold, a type). Remembers the first value, NULL included, and rejects a change.
 #[derive(Debug, Clone, Default)]
@@ -283,6 +322,17 @@ mod tests {
         );
         assert!(number(ValueRef::Text(b"nan"), "x").is_err());
         assert!(number(ValueRef::Blob(&[1, 2]), "x").is_err());
+    }
+
+    #[test]
+    fn blobs_only() {
+        assert_eq!(blob(ValueRef::Blob(&[1]), "s", "f"), Ok(Some(&[1u8][..])));
+        assert_eq!(blob(ValueRef::Null, "s", "f"), Ok(None));
+        let e = blob(ValueRef::Integer(3), "s", "quantile_sketch").unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "s must be a BLOB made by quantile_sketch, got 3"
+        );
     }
 
     #[test]

@@ -3,16 +3,27 @@
 //! Adapters only: they read and check arguments, keep the rows a kernel needs, and hand
 //! them to [`crate::stats`]. NULL x is skipped, as SQL aggregates do; a group with no
 //! non-NULL x gives NULL.
+//!
+//! `ecdf` and `quantile` are also window functions (`OVER (...)`): SQLite adds each row
+//! entering the frame (`step`), removes each row leaving it (`inverse`) and asks for the
+//! current answer (`value`). `ecdf` keeps running counts, O(1) per row. `quantile` keeps
+//! the frame's values in an order-statistic tree ([`OrderStatistics`]), O(log w) per row
+//! for a frame of w rows; as a plain aggregate it never builds the tree and stays O(n)
+//! selection: the values are collected in a vector and moved into the tree only when
+//! SQLite first calls `value` or `inverse`, which it does only in window use.
 
-use rusqlite::functions::{Aggregate, Context};
+use rusqlite::functions::{Aggregate, Context, WindowAggregate};
 use rusqlite::types::Value;
 use serde_json::json;
 
 use super::args::{ArgError, Constant, fail, number, text, whole};
-use super::{FunctionDef, Kind, aggregate};
+use super::{FunctionDef, Kind, aggregate, window};
 use crate::stats::ecdf::{EcdfCounter, WeightedEcdfCounter};
 use crate::stats::moments::Profile;
-use crate::stats::quantile::{QuantileType, WeightedSorted, quantile_select, quantile_sorted};
+use crate::stats::order::OrderStatistics;
+use crate::stats::quantile::{
+    QuantileType, WeightedSorted, quantile_ranked, quantile_select, quantile_sorted,
+};
 use crate::stats::{StatsError, check_probability, check_weight};
 
 type Result<T> = rusqlite::Result<T>;
@@ -21,32 +32,38 @@ type Result<T> = rusqlite::Result<T>;
 pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "ecdf",
-        kind: Kind::Aggregate,
+        kind: Kind::Window,
         arities: &[2, 3],
         signature: "ecdf(x, t [, w])",
-        summary: "share of x at or below t (weighted by w), in [0, 1]; one pass, O(1) memory",
+        summary: "share of x at or below t (weighted by w), in [0, 1]; O(1) memory, O(1) per row in a window",
         help: "The empirical cdf of the group at t: count(x <= t) / count(x), or with frequency \
-               weights sum(w where x <= t) / sum(w). t must be the same on every row of a group. \
-               NULL x (or w) rows are skipped; NULL t gives NULL; no rows gives NULL. Errors: \
-               non-numeric x, t or w; a negative or infinite weight.",
+               weights sum(w where x <= t) / sum(w), each sum exact and rounded once. t must be \
+               the same on every row of a group. NULL x (or w) rows are skipped; NULL t gives \
+               NULL; no rows gives NULL. Also a window function: ecdf(x, t) OVER (ORDER BY ... \
+               ROWS BETWEEN 999 PRECEDING AND CURRENT ROW) is the share of the frame at or \
+               below t, for ROWS, RANGE and GROUPS frames; a frame with no non-NULL x gives \
+               NULL. Errors: non-numeric x, t or w; a negative or infinite weight.",
         example: "SELECT ecdf(column1, 2.5) FROM (VALUES (1), (2), (3), (4))",
         example_result: "0.5",
-        register: |c, d| aggregate(c, d, || Ecdf),
+        register: |c, d| window(c, d, || Ecdf),
     },
     FunctionDef {
         name: "quantile",
-        kind: Kind::Aggregate,
+        kind: Kind::Window,
         arities: &[2, 3],
         signature: "quantile(x, p [, type])",
-        summary: "empirical p-quantile of x; type 1..9 (Hyndman and Fan 1996), default 7",
+        summary: "empirical p-quantile of x; type 1..9 (Hyndman and Fan 1996), default 7; O(log w) per row in a window",
         help: "The p-quantile of the group by one of the nine Hyndman-Fan definitions (type 7 is \
                numpy's and R's default 'linear'; type 1 is the inverse of the ECDF). Uses \
                selection, O(n). p and type must be the same on every row of a group. NULL x is \
-               skipped; NULL p or type gives NULL. Errors: p outside [0, 1], type outside 1..9, \
-               non-numeric x.",
+               skipped; NULL p or type gives NULL. Also a window function: quantile(x, 0.95) \
+               OVER (ORDER BY ts ROWS BETWEEN 999 PRECEDING AND CURRENT ROW) is the rolling \
+               95th percentile, exactly as if each frame were sorted, in O(log w) per row for \
+               ROWS, RANGE and GROUPS frames; a frame with no non-NULL x gives NULL. Errors: p \
+               outside [0, 1], type outside 1..9, non-numeric x.",
         example: "SELECT quantile(column1, 0.9) FROM (VALUES (1), (2), (3), (4), (5))",
         example_result: "4.6",
-        register: |c, d| aggregate(c, d, || Quantile),
+        register: |c, d| window(c, d, || Quantile),
     },
     FunctionDef {
         name: "weighted_quantile",
@@ -181,26 +198,84 @@ impl Aggregate<EcdfState, Value> for Ecdf {
     }
 
     fn finalize(&self, _: &mut Context<'_>, s: Option<EcdfState>) -> Result<Value> {
-        let Some(s) = s else { return Ok(Value::Null) };
-        let v = match (s.plain, s.weighted) {
+        Ok(s.map_or(Value::Null, |s| real(s.current())))
+    }
+}
+
+impl EcdfState {
+    /// F(t) of the rows counted so far (the group, or the current frame).
+    fn current(&self) -> Option<f64> {
+        match (&self.plain, &self.weighted) {
             (Some(c), _) => c.value(),
             (_, Some(c)) => c.value(),
             _ => None,
+        }
+    }
+}
+
+impl WindowAggregate<EcdfState, Value> for Ecdf {
+    fn value(&self, s: Option<&mut EcdfState>) -> Result<Value> {
+        Ok(s.map_or(Value::Null, |s| real(s.current())))
+    }
+
+    fn inverse(&self, ctx: &mut Context<'_>, s: &mut EcdfState) -> Result<()> {
+        const NAME: &str = "ecdf";
+        let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? else {
+            return Ok(());
         };
-        Ok(real(v))
+        if ctx.len() > 2 {
+            let Some(w) = number(ctx.get_raw(2), "w").map_err(|e| fail(NAME, e))? else {
+                return Ok(());
+            };
+            if let Some(c) = s.weighted.as_mut() {
+                c.remove(x, w).map_err(|e| fail(NAME, e))?;
+            }
+        } else if let Some(c) = s.plain.as_mut() {
+            if c.count() == 0 {
+                return Err(fail(NAME, StatsError::LeftFrameUnseen));
+            }
+            c.remove(x);
+        }
+        Ok(())
     }
 }
 
 // ---------------------------------------------------------------------------------------
 // quantile(x, p [, type])
 
-/// State of `quantile`: the non-NULL values of the group.
+/// State of `quantile`: the non-NULL values of the group (or frame), in a vector for the
+/// plain aggregate and in an order-statistic tree once SQLite uses it as a window.
 #[derive(Debug, Default)]
 pub struct QuantileState {
     xs: Vec<f64>,
+    tree: Option<OrderStatistics>,
     p: Constant<f64>,
     ty: Constant<i64>,
     has_type: bool,
+}
+
+impl QuantileState {
+    /// The order-statistic tree, built from the collected values on first use.
+    fn tree(&mut self) -> std::result::Result<&mut OrderStatistics, StatsError> {
+        let tree = match self.tree.take() {
+            Some(t) => t,
+            None => OrderStatistics::from_values(&std::mem::take(&mut self.xs))?,
+        };
+        Ok(self.tree.insert(tree))
+    }
+
+    /// The quantile of the values held: by the tree in window use, by selection otherwise.
+    fn current(&mut self) -> std::result::Result<Option<f64>, StatsError> {
+        let (Some(&p), Some(ty)) = (self.p.get(), chosen_type(self.has_type, &self.ty)) else {
+            return Ok(None);
+        };
+        match &self.tree {
+            Some(tree) => quantile_ranked(tree.len() as usize, p, ty, |i| {
+                tree.kth(i as u64).unwrap_or(f64::NAN)
+            }),
+            None => quantile_select(&mut self.xs, p, ty),
+        }
+    }
 }
 
 /// `quantile(x, p [, type])`.
@@ -217,7 +292,10 @@ impl Aggregate<QuantileState, Value> for Quantile {
         read_type(NAME, ctx, 2, &mut s.ty)?;
         s.has_type = ctx.len() > 2;
         if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? {
-            s.xs.push(x);
+            match s.tree.as_mut() {
+                Some(tree) => tree.insert(x).map_err(|e| fail(NAME, e))?,
+                None => s.xs.push(x),
+            }
         }
         Ok(())
     }
@@ -226,11 +304,27 @@ impl Aggregate<QuantileState, Value> for Quantile {
         let Some(mut s) = s else {
             return Ok(Value::Null);
         };
-        let (Some(&p), Some(ty)) = (s.p.get(), chosen_type(s.has_type, &s.ty)) else {
-            return Ok(Value::Null);
-        };
-        let q = quantile_select(&mut s.xs, p, ty).map_err(|e| fail("quantile", e))?;
-        Ok(real(q))
+        Ok(real(s.current().map_err(|e| fail("quantile", e))?))
+    }
+}
+
+impl WindowAggregate<QuantileState, Value> for Quantile {
+    fn value(&self, s: Option<&mut QuantileState>) -> Result<Value> {
+        const NAME: &str = "quantile";
+        let Some(s) = s else { return Ok(Value::Null) };
+        s.tree().map_err(|e| fail(NAME, e))?;
+        Ok(real(s.current().map_err(|e| fail(NAME, e))?))
+    }
+
+    fn inverse(&self, ctx: &mut Context<'_>, s: &mut QuantileState) -> Result<()> {
+        const NAME: &str = "quantile";
+        if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? {
+            s.tree()
+                .map_err(|e| fail(NAME, e))?
+                .remove(x)
+                .map_err(|_| fail(NAME, StatsError::LeftFrameUnseen))?;
+        }
+        Ok(())
     }
 }
 

@@ -7,9 +7,13 @@
 //! inequality bounds its error for every n.
 //!
 //! [`EcdfCounter`] evaluates `F(t)` at one fixed `t` in one pass and O(1) memory, which is
-//! what the `ecdf(x, t)` aggregate needs.
+//! what the `ecdf(x, t)` aggregate needs. Both counters also remove observations, which is
+//! what the window form needs: a row leaving the frame is subtracted, in O(1). The weighted
+//! counter keeps its sums exactly ([`ExactSum`]), so removals leave no rounding behind and
+//! the result is the correctly rounded ratio of the frame's sums, however long the window
+//! has slid.
 
-use super::{StatsError, check_weight, sum::NeumaierSum};
+use super::{StatsError, check_weight, sum::ExactSum};
 
 /// A one-pass evaluator of the ECDF at a fixed threshold.
 ///
@@ -69,7 +73,8 @@ impl EcdfCounter {
     }
 }
 
-/// A one-pass evaluator of the weighted ECDF at a fixed threshold, with compensated sums.
+/// A one-pass evaluator of the weighted ECDF at a fixed threshold, with exact sums: the
+/// value is `fl(sum of w where x <= t) / fl(sum of w)`, each sum correctly rounded.
 ///
 /// # Example
 /// ```
@@ -78,12 +83,14 @@ impl EcdfCounter {
 /// e.add(1.0, 3.0).unwrap();
 /// e.add(5.0, 1.0).unwrap();
 /// assert_eq!(e.value(), Some(0.75));
+/// e.remove(5.0, 1.0).unwrap();
+/// assert_eq!(e.value(), Some(1.0));
 /// ```
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct WeightedEcdfCounter {
     t: f64,
-    at_or_below: NeumaierSum,
-    total: NeumaierSum,
+    at_or_below: ExactSum,
+    total: ExactSum,
 }
 
 impl WeightedEcdfCounter {
@@ -91,8 +98,8 @@ impl WeightedEcdfCounter {
     pub fn new(t: f64) -> Self {
         WeightedEcdfCounter {
             t,
-            at_or_below: NeumaierSum::default(),
-            total: NeumaierSum::default(),
+            at_or_below: ExactSum::default(),
+            total: ExactSum::default(),
         }
     }
 
@@ -108,17 +115,33 @@ impl WeightedEcdfCounter {
     #[inline]
     pub fn add(&mut self, x: f64, w: f64) -> Result<(), StatsError> {
         check_weight(w)?;
-        self.total.add(w);
+        self.total.add(w)?;
         if x <= self.t {
-            self.at_or_below.add(w);
+            self.at_or_below.add(w)?;
         }
         Ok(())
     }
 
-    /// `F(t)`, or `None` while the total weight is zero.
+    /// Removes an observation counted before with the same weight (for sliding windows).
+    ///
+    /// # Errors
+    /// [`StatsError::BadWeight`] when `w` is negative or not finite.
+    #[inline]
+    pub fn remove(&mut self, x: f64, w: f64) -> Result<(), StatsError> {
+        check_weight(w)?;
+        self.total.remove(w)?;
+        if x <= self.t {
+            self.at_or_below.remove(w)?;
+        }
+        Ok(())
+    }
+
+    /// `F(t)`, or `None` while the total weight is zero. The total can overflow `f64`
+    /// only beyond 1.8e308; the ratio is then `None` rather than a wrong number.
     pub fn value(&self) -> Option<f64> {
         let total = self.total.value();
-        (total > 0.0).then(|| (self.at_or_below.value() / total).clamp(0.0, 1.0))
+        (total > 0.0 && total.is_finite())
+            .then(|| (self.at_or_below.value() / total).clamp(0.0, 1.0))
     }
 }
 

@@ -3,7 +3,8 @@
 //! Every kernel here is reached from SQL through an adapter in [`crate::functions`], and
 //! from Rust directly. One file per method family:
 //!
-//! - [`sum`]: compensated (Neumaier) summation, used wherever n can be large.
+//! - [`sum`]: compensated (Neumaier) summation, used wherever n can be large, and exact
+//!   summation for sums that must also subtract.
 //! - [`quantile`]: the nine sample-quantile definitions of Hyndman and Fan (1996),
 //!   unweighted by selection and with frequency weights.
 //! - [`ecdf`]: the empirical distribution function as a running count.
@@ -23,6 +24,10 @@
 //! - [`fit`]: parametric families and their maximum-likelihood fits.
 //! - [`mixture`]: univariate Gaussian mixtures, fitted by EM.
 //! - [`roots`]: the safeguarded root finder behind shape equations and mixture quantiles.
+//! - [`order`]: a multiset with order statistics in O(log n), behind the window forms of
+//!   `quantile`.
+//! - [`sketch`]: a mergeable quantile sketch in bounded memory with a proven rank-error
+//!   bound (Karnin, Lang and Liberty 2016).
 //!
 //! # NaN policy
 //!
@@ -45,10 +50,12 @@ pub mod ks;
 pub mod lilliefors;
 pub mod mixture;
 pub mod moments;
+pub mod order;
 pub mod quantile;
 pub mod rng;
 pub mod roots;
 pub mod sample;
+pub mod sketch;
 pub mod sum;
 
 use std::fmt;
@@ -91,6 +98,8 @@ pub enum StatsError {
     BadGridRange { lo: f64, hi: f64 },
     /// A grid size outside `2..=grid::MAX_POINTS`.
     BadGridSize(i64),
+    /// A window removed a value it never added (a broken promise of the host).
+    LeftFrameUnseen,
 }
 
 impl fmt::Display for StatsError {
@@ -160,6 +169,11 @@ impl fmt::Display for StatsError {
                 f,
                 "n must be a whole number from 2 to {}, got {n}",
                 grid::MAX_POINTS
+            ),
+            StatsError::LeftFrameUnseen => write!(
+                f,
+                "a row left the window frame that never entered it; this is a bug in the \
+                 host's window machinery, please report it with the query"
             ),
         }
     }

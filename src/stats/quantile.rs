@@ -223,12 +223,40 @@ pub fn quantile_sorted(
     p: f64,
     ty: QuantileType,
 ) -> Result<Option<f64>, StatsError> {
+    quantile_ranked(sorted.len(), p, ty, |i| sorted[i])
+}
+
+/// The quantile of `n` values known only through their order statistics:
+/// `order_statistic(i)` must return the `i`-th smallest value (0-based, `i < n`). It is
+/// called once or twice. This is how an order-statistic structure (for example
+/// [`super::order::OrderStatistics`]) answers a quantile without sorting, with exactly
+/// the arithmetic of [`quantile_sorted`].
+///
+/// Returns `Ok(None)` when `n` is 0 or the result is undefined.
+///
+/// # Errors
+/// [`StatsError::ProbabilityOutOfRange`] when `p` is not in `[0, 1]`.
+///
+/// # Example
+/// ```
+/// use ogive::stats::quantile::{quantile_ranked, QuantileType};
+/// let sorted = [10.0, 20.0, 30.0];
+/// let q = quantile_ranked(3, 0.25, QuantileType::DEFAULT, |i| sorted[i]).unwrap();
+/// assert_eq!(q, Some(15.0));
+/// ```
+pub fn quantile_ranked(
+    n: usize,
+    p: f64,
+    ty: QuantileType,
+    mut order_statistic: impl FnMut(usize) -> f64,
+) -> Result<Option<f64>, StatsError> {
     check_probability(p)?;
-    if sorted.is_empty() {
+    if n == 0 {
         return Ok(None);
     }
-    let n = sorted.len();
-    Ok(evaluate(plan(n as f64, p, ty), |k| sorted[index_of(k, n)]))
+    Ok(evaluate(plan(n as f64, p, ty), |k| {
+        order_statistic(index_of(k, n))
+    }))
 }
 
 /// The quantile of unsorted values by selection, in O(n) expected time.

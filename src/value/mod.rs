@@ -10,6 +10,7 @@
 
 pub mod empirical;
 pub mod model;
+pub mod sketch;
 
 use std::fmt;
 
