@@ -605,7 +605,7 @@ fn demo_prints_its_tables_and_its_plots_render() {
         "sql/demo/02_share_above_limit.sql · statement 1",
         "share_above_5c",
         "TR07",
-        "4 checks: 3 pass, 1 fail, 0 error",
+        "5 checks: 4 pass, 1 fail, 0 error",
         "plots written to",
     ] {
         assert!(

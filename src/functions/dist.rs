@@ -21,6 +21,7 @@
 //! `-Inf` or `Inf`, as the quantiles of an empirical value holding an infinite reading do;
 //! NaN never does.
 
+use std::cell::RefCell;
 use std::ffi::{CStr, c_int};
 use std::sync::Arc;
 
@@ -120,7 +121,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         kind: Kind::Scalar,
         arities: &[2, 3],
         signature: "dist_pdf(d, t [, bandwidth])",
-        summary: "density of d at t: Gaussian kernel estimate, bandwidth 'scott' (default), 'silverman' or h",
+        summary: "density of d at t: a model's own, or a Gaussian kernel estimate, bandwidth 'scott' (default), 'silverman' or h",
         help: "For an empirical distribution, the Gaussian kernel density estimate at t. \
                bandwidth is 'scott' (the default: sd * n^(-1/5)), 'silverman' \
                (sd * (3n/4)^(-1/5)), or a positive number: the kernel's standard deviation in \
@@ -138,7 +139,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         kind: Kind::Scalar,
         arities: &[1],
         signature: "dist_n(d)",
-        summary: "number of observations in d (INTEGER), or its total weight (REAL) when weighted",
+        summary: "number of observations in d (INTEGER), its total weight (REAL) when weighted, a model's fitted n",
         help: "The count of values an unweighted empirical distribution was built from, as \
                an INTEGER; for a weighted one, the total weight, as a REAL. For a model, the \
                number of values it was fitted to (its n field), NULL for a model built from \
@@ -294,8 +295,17 @@ pub(crate) fn empirical<'a>(
     }
 }
 
+thread_local! {
+    /// The last model read from TEXT on this thread, with its text. SQLite keeps auxiliary
+    /// data only for constant arguments, but a model usually comes from a joined row (a
+    /// fit in a CTE or a table) and repeats, unchanged, on every row of a scan; comparing
+    /// the bytes is far cheaper than parsing and checking the JSON again.
+    static LAST_MODEL: RefCell<Option<(Box<[u8]>, Arc<Dist>)>> = const { RefCell::new(None) };
+}
+
 /// Reads argument `idx` as a distribution. When SQLite keeps auxiliary data for the
-/// argument (a constant), the decoded value is reused on later rows.
+/// argument (a constant), the decoded value is reused on later rows; a model equal, byte
+/// for byte, to the last one read on this thread is reused too.
 pub(crate) fn dist_arg(
     ctx: &Context<'_>,
     idx: usize,
@@ -305,9 +315,29 @@ pub(crate) fn dist_arg(
     if let Ok(Some(d)) = ctx.get_aux::<Dist>(arg) {
         return Ok(Some(d));
     }
-    match Dist::from_sql(ctx.get_raw(idx), idx + 1).map_err(|e| fail(name, e))? {
+    let raw = ctx.get_raw(idx);
+    let text = match raw {
+        ValueRef::Text(t) => Some(t),
+        _ => None,
+    };
+    if let Some(t) = text {
+        let hit = LAST_MODEL.with_borrow(|last| match last {
+            Some((bytes, d)) if **bytes == *t => Some(Arc::clone(d)),
+            _ => None,
+        });
+        if hit.is_some() {
+            return Ok(hit);
+        }
+    }
+    match Dist::from_sql(raw, idx + 1).map_err(|e| fail(name, e))? {
         None => Ok(None),
-        Some(d) => ctx.set_aux(arg, d).map(Some),
+        Some(d) => {
+            let d = ctx.set_aux(arg, d)?;
+            if let Some(t) = text {
+                LAST_MODEL.set(Some((t.into(), Arc::clone(&d))));
+            }
+            Ok(Some(d))
+        }
     }
 }
 

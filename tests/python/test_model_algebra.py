@@ -584,3 +584,23 @@ def test_lilliefors_needs_the_fit_of_the_same_data(conn):
          "dist_ks: each sample needs at least 4 values, got 3"),
     ]:
         expect_error(conn, sql, message)
+
+
+def test_each_row_gets_its_own_model(conn):
+    # Models read from rows are reused while they repeat (a parse cache); alternating and
+    # repeating models must each give their own answer: scipy.stats.norm(0, 1).cdf(t),
+    # scipy.stats.norm(1, 2).cdf(t), scipy.stats.gamma(2, scale=1).cdf(t), 1e-12 relative.
+    laws = [("normal", {"mean": 0, "sd": 1}, st.norm(0, 1)), ("normal", {"mean": 1, "sd": 2}, st.norm(1, 2)),
+            ("gamma", {"shape": 2, "scale": 1}, st.gamma(2, scale=1))]
+    conn.execute("CREATE TABLE r(i INTEGER, family TEXT, params TEXT, t REAL)")
+    order = [0, 0, 1, 2, 2, 2, 0, 1, 1, 0, 2, 1]
+    with conn:
+        conn.executemany("INSERT INTO r VALUES (?, ?, ?, ?)",
+                         [(i, laws[k][0], json.dumps(laws[k][1]), 0.3 * i) for i, k in enumerate(order)])
+    got = rows(conn, "SELECT dist_cdf(dist_model(family, params), t), dist_component(dist_model(family, params), t) "
+                     "FROM r ORDER BY i")
+    for (cdf, component), k, i in zip(got, order, range(len(order))):
+        assert close(cdf, float(laws[k][2].cdf(0.3 * i)), 1e-12) and component == 1
+    expect_error(conn, "SELECT dist_component(dist_empirical(t), 1) FROM r",
+                 "dist_component: model must be model JSON (from dist_mixture, dist_fit or dist_model), "
+                 "not an empirical distribution")
