@@ -9,7 +9,8 @@
 //! function listing matches the registry row for row, `run` and `check` leave a database
 //! file byte-for-byte unchanged, a failed import writes nothing, the demo's plots render
 //! to PNG (rsvg-convert), Ctrl-C ends a batch run with status 130, and a session at the
-//! prompt in a pseudo-terminal (tmux) runs a query, cancels one and leaves cleanly.
+//! prompt in a pseudo-terminal (tmux) runs a query, cancels one and leaves cleanly, and the
+//! README's "Which model fits?" example prints its rows on the demo database.
 
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
@@ -646,6 +647,57 @@ fn demo_prints_its_tables_and_its_plots_render() {
             bytes.len()
         );
     }
+}
+
+/// The README's "Which model fits?" example runs as printed on the demo database and prints
+/// the rows the README shows: its SQL blocks are run with `ogive run --format markdown` and
+/// every table line of the output must equal the README's, in order.
+#[test]
+fn readme_which_model_fits_prints_its_rows_on_the_demo() {
+    let tmp = TempDir::new("readme-models");
+    let db = tmp.path("fleet.db");
+    let out_dir = tmp.path("plots");
+    let built = Command::new(BIN)
+        .args(["demo", "--db", db.to_str().unwrap()])
+        .args(["--out-dir", out_dir.to_str().unwrap()])
+        .current_dir(root())
+        .output()
+        .unwrap();
+    assert!(built.status.success());
+    let readme = std::fs::read_to_string(root().join("README.md")).unwrap();
+    let section = readme
+        .split("<!-- models-example:start -->")
+        .nth(1)
+        .and_then(|rest| rest.split("<!-- models-example:end -->").next())
+        .expect("the README has the models example");
+    let sql: Vec<&str> = section
+        .split("```sql\n")
+        .skip(1)
+        .filter_map(|block| block.split("```").next())
+        .collect();
+    assert_eq!(sql.len(), 2, "two SQL blocks");
+    let file = tmp.path("readme.sql");
+    std::fs::write(&file, sql.concat()).unwrap();
+    let out = Command::new(BIN)
+        .args(["run", file.to_str().unwrap(), "--db", db.to_str().unwrap()])
+        .args(["--format", "markdown"])
+        .output()
+        .unwrap();
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        out.status.success(),
+        "{stdout}{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let tables = |text: &str| -> Vec<String> {
+        text.lines()
+            .filter(|l| l.starts_with('|'))
+            .map(str::to_owned)
+            .collect()
+    };
+    let printed = tables(section);
+    assert_eq!(printed.len(), 2 + 12 + 2 + 1, "{printed:?}");
+    assert_eq!(tables(&stdout), printed);
 }
 
 #[cfg(unix)]

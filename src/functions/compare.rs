@@ -443,7 +443,10 @@ impl<'a> OneSample<'a> {
 
     /// The Lilliefors test: the statistic against the model, which must be the sample's
     /// normal or exponential maximum-likelihood fit, and its Monte Carlo p-value.
-    fn lilliefors(&self, alternative: Alternative) -> std::result::Result<serde_json::Value, ArgError> {
+    fn lilliefors(
+        &self,
+        alternative: Alternative,
+    ) -> std::result::Result<serde_json::Value, ArgError> {
         let wrong = |detail: String| ArgError::BadJson {
             what: "method",
             detail,
@@ -528,7 +531,9 @@ fn dist_ks(ctx: &Context<'_>) -> Result<Value> {
                 .map_err(|e| fail(NAME, e))?;
             one.json(&r, r.method.name())
         }
-        (Pair::One(one), KsMethod::Lilliefors) => one.lilliefors(alternative).map_err(|e| fail(NAME, e))?,
+        (Pair::One(one), KsMethod::Lilliefors) => {
+            one.lilliefors(alternative).map_err(|e| fail(NAME, e))?
+        }
     };
     Ok(Value::Text(out.to_string()))
 }
@@ -667,7 +672,10 @@ fn dist_distance(ctx: &Context<'_>) -> Result<Value> {
 
 /// `dist_distance` between an empirical distribution and a model: the one-sample
 /// Kolmogorov-Smirnov test for 'ks'; the other metrics compare two samples.
-fn one_sample_distance(one: &OneSample<'_>, metric: Metric) -> std::result::Result<Value, ArgError> {
+fn one_sample_distance(
+    one: &OneSample<'_>,
+    metric: Metric,
+) -> std::result::Result<Value, ArgError> {
     if metric != Metric::Ks {
         return Err(ArgError::NotEmpirical {
             arg: 3 - one.arg,

@@ -295,12 +295,15 @@ pub(crate) fn empirical<'a>(
     }
 }
 
+/// A model's text and the distribution read from it.
+type ParsedModel = (Box<[u8]>, Arc<Dist>);
+
 thread_local! {
     /// The last model read from TEXT on this thread, with its text. SQLite keeps auxiliary
     /// data only for constant arguments, but a model usually comes from a joined row (a
     /// fit in a CTE or a table) and repeats, unchanged, on every row of a scan; comparing
     /// the bytes is far cheaper than parsing and checking the JSON again.
-    static LAST_MODEL: RefCell<Option<(Box<[u8]>, Arc<Dist>)>> = const { RefCell::new(None) };
+    static LAST_MODEL: RefCell<Option<ParsedModel>> = const { RefCell::new(None) };
 }
 
 /// Reads argument `idx` as a distribution. When SQLite keeps auxiliary data for the
@@ -480,8 +483,12 @@ fn profile(ctx: &Context<'_>) -> Result<Value> {
     let Some(d) = dist_arg(ctx, 0, NAME)? else {
         return Ok(Value::Null);
     };
-    let s = empirical(&d, 1, "for a model use dist_mean, dist_sd and dist_quantile")
-        .map_err(|e| fail(NAME, e))?;
+    let s = empirical(
+        &d,
+        1,
+        "for a model use dist_mean, dist_sd and dist_quantile",
+    )
+    .map_err(|e| fail(NAME, e))?;
     Ok(s.profile()
         .map_or(Value::Null, |p| Value::Text(profile_json(&p))))
 }

@@ -923,9 +923,8 @@ impl Model {
                 xs.len()
             )));
         }
-        let refit = fit(xs, family).map_err(|e| {
-            ModelError::NotTheFit(format!("the values admit no {family} fit: {e}"))
-        })?;
+        let refit = fit(xs, family)
+            .map_err(|e| ModelError::NotTheFit(format!("the values admit no {family} fit: {e}")))?;
         let theirs = refit.distribution.parameters();
         let spread = match family {
             Family::Normal | Family::LogNormal => theirs[1].1,
@@ -1068,7 +1067,10 @@ mod tests {
             let m = Model::from_parameters(family, params).unwrap();
             for t in ts {
                 let (c, d) = (m.cdf(t), m.pdf(t));
-                assert!((0.0..=1.0).contains(&c), "{family} {params} cdf({t:e}) = {c}");
+                assert!(
+                    (0.0..=1.0).contains(&c),
+                    "{family} {params} cdf({t:e}) = {c}"
+                );
                 assert!(d >= 0.0, "{family} {params} pdf({t:e}) = {d}");
             }
             assert_eq!((m.cdf(f64::NEG_INFINITY), m.cdf(f64::INFINITY)), (0.0, 1.0));
