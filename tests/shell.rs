@@ -583,6 +583,18 @@ fn rsvg(svg: &Path, png: &Path) {
     assert!(status.success(), "rsvg-convert failed on {}", svg.display());
 }
 
+/// Runs a command that must succeed and returns its standard output.
+fn succeed(cmd: &mut Command) -> String {
+    let out = cmd.output().unwrap();
+    let stdout = String::from_utf8_lossy(&out.stdout).into_owned();
+    assert!(
+        out.status.success(),
+        "{stdout}\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    stdout
+}
+
 /// The README's demo: it builds the database, prints the demo tables and the checks, and
 /// writes plots that render. A PNG of a plot must be much larger than the PNG of an empty
 /// canvas of the same size (a blank or broken drawing compresses to almost nothing).
@@ -590,16 +602,10 @@ fn rsvg(svg: &Path, png: &Path) {
 fn demo_prints_its_tables_and_its_plots_render() {
     let tmp = TempDir::new("demo");
     let out_dir = tmp.path("plots");
-    let out = Command::new(BIN)
-        .args(["demo", "--out-dir", out_dir.to_str().unwrap()])
-        .current_dir(root())
-        .output()
-        .unwrap();
-    let stdout = String::from_utf8_lossy(&out.stdout);
-    assert!(
-        out.status.success(),
-        "{stdout}\n{}",
-        String::from_utf8_lossy(&out.stderr)
+    let stdout = succeed(
+        Command::new(BIN)
+            .args(["demo", "--out-dir", out_dir.to_str().unwrap()])
+            .current_dir(root()),
     );
     for want in [
         "145152 cargo temperature readings",
@@ -657,13 +663,12 @@ fn readme_which_model_fits_prints_its_rows_on_the_demo() {
     let tmp = TempDir::new("readme-models");
     let db = tmp.path("fleet.db");
     let out_dir = tmp.path("plots");
-    let built = Command::new(BIN)
-        .args(["demo", "--db", db.to_str().unwrap()])
-        .args(["--out-dir", out_dir.to_str().unwrap()])
-        .current_dir(root())
-        .output()
-        .unwrap();
-    assert!(built.status.success());
+    succeed(
+        Command::new(BIN)
+            .args(["demo", "--db", db.to_str().unwrap()])
+            .args(["--out-dir", out_dir.to_str().unwrap()])
+            .current_dir(root()),
+    );
     let readme = std::fs::read_to_string(root().join("README.md")).unwrap();
     let section = readme
         .split("<!-- models-example:start -->")
@@ -678,16 +683,10 @@ fn readme_which_model_fits_prints_its_rows_on_the_demo() {
     assert_eq!(sql.len(), 2, "two SQL blocks");
     let file = tmp.path("readme.sql");
     std::fs::write(&file, sql.concat()).unwrap();
-    let out = Command::new(BIN)
-        .args(["run", file.to_str().unwrap(), "--db", db.to_str().unwrap()])
-        .args(["--format", "markdown"])
-        .output()
-        .unwrap();
-    let stdout = String::from_utf8_lossy(&out.stdout);
-    assert!(
-        out.status.success(),
-        "{stdout}{}",
-        String::from_utf8_lossy(&out.stderr)
+    let stdout = succeed(
+        Command::new(BIN)
+            .args(["run", file.to_str().unwrap(), "--db", db.to_str().unwrap()])
+            .args(["--format", "markdown"]),
     );
     let tables = |text: &str| -> Vec<String> {
         text.lines()
