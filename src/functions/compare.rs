@@ -4,7 +4,9 @@
 //!
 //! Adapters only: they read and check arguments, turn the rows or the distribution values
 //! into sorted samples, and hand them to [`crate::stats::ks`], [`crate::stats::gof`] and
-//! [`crate::stats::lilliefors`].
+//! [`crate::stats::lilliefors`]. NULL x and NULL `in_second` rows are skipped; a group where
+//! either sample has no values gives NULL, as does a NULL distribution argument
+//! (`dist_empirical` of an empty group is NULL).
 //!
 //! # One sample against a model
 //!
@@ -16,9 +18,6 @@
 //! parameters ([`lilliefors_p`] with the maximum-likelihood sd that `dist_fit` reports),
 //! after [`Model::check_fit_of`] has confirmed that the model is exactly that fit: the
 //! correction is chosen by the caller, never guessed from the model.
-//! NULL x and NULL `in_second` rows are skipped; a group where either sample has no values
-//! gives NULL, as does a NULL distribution argument (`dist_empirical` of an empty group is
-//! NULL).
 //!
 //! # Weighted empirical values in rank tests
 //!
@@ -466,7 +465,7 @@ impl<'a> OneSample<'a> {
                 return Err(wrong(format!(
                     "'lilliefors' needs a normal or exponential model fitted to the sample, \
                      got {}",
-                    Dist::Model(self.model.clone()).kind()
+                    self.model.kind()
                 )));
             }
         };
@@ -679,7 +678,7 @@ fn one_sample_distance(
     if metric != Metric::Ks {
         return Err(ArgError::NotEmpirical {
             arg: 3 - one.arg,
-            got: Dist::Model(one.model.clone()).kind(),
+            got: one.model.kind(),
             instead: match metric {
                 Metric::Wasserstein => {
                     "metric 'wasserstein' compares two samples; against a model use metric 'ks' \

@@ -6,7 +6,8 @@
 //! [`crate::value::Dist::from_sql`], numbers by [`super::args`], and the answers come from
 //! [`crate::stats`]. NULL in any argument of a scalar gives NULL; a NULL argument of a
 //! table-valued function gives no rows. A constant distribution argument (a literal or a
-//! bound parameter) is decoded once per statement, not once per row.
+//! bound parameter) is decoded once per statement, not once per row, and a model that
+//! repeats from row to row (a fit joined to every row) is parsed once while it repeats.
 //!
 //! # Models
 //!

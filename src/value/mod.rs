@@ -178,7 +178,7 @@ impl Dist {
     pub fn kind(&self) -> String {
         match self {
             Dist::Empirical(_) => "an empirical distribution".to_string(),
-            Dist::Model(m) => format!("a {} model", m.family_name()),
+            Dist::Model(m) => m.kind(),
         }
     }
 

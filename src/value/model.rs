@@ -705,6 +705,19 @@ impl Model {
         }
     }
 
+    /// The kind of model, for messages: `"a gamma model"`.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("uniform", r#"{"min": 0, "max": 1}"#)?;
+    /// assert_eq!(m.kind(), "a uniform model");
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn kind(&self) -> String {
+        format!("a {} model", self.family_name())
+    }
+
     /// The distribution.
     ///
     /// # Example
