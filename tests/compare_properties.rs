@@ -6,7 +6,11 @@
 //! - with whole-number frequency weights, `dist_ks` and the rank metrics of `dist_distance`
 //!   are the unweighted functions on the rows repeated weight times;
 //! - swapping the two distributions leaves every two-sided statistic unchanged (each is
-//!   symmetric by definition), and `dist_ks` swaps 'less' and 'greater'.
+//!   symmetric by definition), and `dist_ks` swaps 'less' and 'greater';
+//! - against a model, the one-sample test is the same with the model first or second (the
+//!   alternatives swapped), `dist_distance(..., 'ks')` is `dist_ks`, and the statistic is
+//!   never below half the tallest step of the ECDF (a continuous cdf cannot pass closer to
+//!   both ends of a jump), nor above 1.
 //!
 //! Values come from a coarse grid (many ties), signed zeros, or anywhere in the finite
 //! doubles.
@@ -135,5 +139,44 @@ proptest! {
         prop_assert_eq!(&less["d"], &greater["d"]);
         let (p, q) = (less["p"].as_f64().unwrap(), greater["p"].as_f64().unwrap());
         prop_assert!((p - q).abs() <= 1e-13, "{} vs {}", p, q);
+    }
+
+    #[test]
+    fn one_sample_against_a_model(
+        x in prop::collection::vec(value(), 1..40),
+        mean in -3.0f64..3.0,
+        sd in 0.05f64..5.0,
+    ) {
+        let conn = loaded(&x, &[], None, None);
+        let params = format!(r#"{{"mean": {mean}, "sd": {sd}}}"#);
+        conn.execute(
+            "CREATE TABLE v AS SELECT dist_empirical(x) AS d, dist_model('normal', ?1) AS m \
+             FROM t WHERE s = 1",
+            [&params],
+        ).unwrap();
+        let parse = |t: Option<String>| serde_json::from_str::<Json>(&t.unwrap()).unwrap();
+        for (first, second) in [("two-sided", "two-sided"), ("less", "greater"), ("greater", "less")] {
+            let a = parse(text(&conn, "SELECT dist_ks(d, m, ?1) FROM v", [first]));
+            let b = parse(text(&conn, "SELECT dist_ks(m, d, ?1) FROM v", [second]));
+            prop_assert_eq!(&a["d"], &b["d"]);
+            prop_assert_eq!(&a["p"], &b["p"]);
+            prop_assert_eq!(&a["n1"], &b["n2"]);
+            prop_assert_eq!(&b["n1"], &Json::Null);
+        }
+        let ks = parse(text(&conn, "SELECT dist_ks(d, m) FROM v", []));
+        let dist = parse(text(&conn, "SELECT dist_distance(d, m, 'ks') FROM v", []));
+        prop_assert_eq!(&ks["d"], &dist["statistic"]);
+        prop_assert_eq!(&ks["p"], &dist["p"]);
+        let d = ks["d"].as_f64().unwrap();
+        let p = ks["p"].as_f64().unwrap();
+        let tallest: f64 = conn.query_row(
+            "SELECT max(cdf - prev) FROM (SELECT cdf, lag(cdf, 1, 0) OVER (ORDER BY x) AS prev \
+             FROM dist_steps((SELECT d FROM v)))",
+            [],
+            |r| r.get(0),
+        ).unwrap();
+        // Half a step, less one unit of rounding in the ECDF's and the cdf's arithmetic.
+        prop_assert!(d >= tallest / 2.0 - 1e-15, "d {} below half of {}", d, tallest);
+        prop_assert!((0.0..=1.0).contains(&d) && (0.0..=1.0).contains(&p), "d {} p {}", d, p);
     }
 }

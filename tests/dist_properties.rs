@@ -41,6 +41,7 @@ fn through_blob(s: &Sample) -> Sample {
     let blob = empirical::encode(s);
     match Dist::from_sql(ValueRef::Blob(&blob), 1).unwrap().unwrap() {
         Dist::Empirical(s) => s,
+        other => panic!("a BLOB decodes to an empirical distribution, got {other:?}"),
     }
 }
 

@@ -4,8 +4,9 @@
 //! the mixture scikit-learn's) maximum-likelihood fits to the Old Faithful eruption
 //! durations; the references are scipy's cdf, pdf, ppf, mean and std with them.
 //!
-//! The SQL functions that expose this evaluation (`dist_cdf` and the rest) are shared with
-//! empirical distributions; until they are wired, the same `Model` API is checked here.
+//! The SQL functions that expose this evaluation (`dist_cdf` and the rest, shared with
+//! empirical distributions) are cross-checked through the extension in
+//! tests/python/test_model_algebra.py; here the `Model` API is checked directly.
 
 use ogive::value::model::Model;
 use serde_json::Value;

@@ -9,7 +9,8 @@
 //! function listing matches the registry row for row, `run` and `check` leave a database
 //! file byte-for-byte unchanged, a failed import writes nothing, the demo's plots render
 //! to PNG (rsvg-convert), Ctrl-C ends a batch run with status 130, and a session at the
-//! prompt in a pseudo-terminal (tmux) runs a query, cancels one and leaves cleanly.
+//! prompt in a pseudo-terminal (tmux) runs a query, cancels one and leaves cleanly, and the
+//! README's "Which model fits?" example prints its rows on the demo database.
 
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
@@ -582,6 +583,18 @@ fn rsvg(svg: &Path, png: &Path) {
     assert!(status.success(), "rsvg-convert failed on {}", svg.display());
 }
 
+/// Runs a command that must succeed and returns its standard output.
+fn succeed(cmd: &mut Command) -> String {
+    let out = cmd.output().unwrap();
+    let stdout = String::from_utf8_lossy(&out.stdout).into_owned();
+    assert!(
+        out.status.success(),
+        "{stdout}\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    stdout
+}
+
 /// The README's demo: it builds the database, prints the demo tables and the checks, and
 /// writes plots that render. A PNG of a plot must be much larger than the PNG of an empty
 /// canvas of the same size (a blank or broken drawing compresses to almost nothing).
@@ -589,23 +602,17 @@ fn rsvg(svg: &Path, png: &Path) {
 fn demo_prints_its_tables_and_its_plots_render() {
     let tmp = TempDir::new("demo");
     let out_dir = tmp.path("plots");
-    let out = Command::new(BIN)
-        .args(["demo", "--out-dir", out_dir.to_str().unwrap()])
-        .current_dir(root())
-        .output()
-        .unwrap();
-    let stdout = String::from_utf8_lossy(&out.stdout);
-    assert!(
-        out.status.success(),
-        "{stdout}\n{}",
-        String::from_utf8_lossy(&out.stderr)
+    let stdout = succeed(
+        Command::new(BIN)
+            .args(["demo", "--out-dir", out_dir.to_str().unwrap()])
+            .current_dir(root()),
     );
     for want in [
         "145152 cargo temperature readings",
         "sql/demo/02_share_above_limit.sql · statement 1",
         "share_above_5c",
         "TR07",
-        "4 checks: 3 pass, 1 fail, 0 error",
+        "5 checks: 4 pass, 1 fail, 0 error",
         "plots written to",
     ] {
         assert!(
@@ -646,6 +653,50 @@ fn demo_prints_its_tables_and_its_plots_render() {
             bytes.len()
         );
     }
+}
+
+/// The README's "Which model fits?" example runs as printed on the demo database and prints
+/// the rows the README shows: its SQL blocks are run with `ogive run --format markdown` and
+/// every table line of the output must equal the README's, in order.
+#[test]
+fn readme_which_model_fits_prints_its_rows_on_the_demo() {
+    let tmp = TempDir::new("readme-models");
+    let db = tmp.path("fleet.db");
+    let out_dir = tmp.path("plots");
+    succeed(
+        Command::new(BIN)
+            .args(["demo", "--db", db.to_str().unwrap()])
+            .args(["--out-dir", out_dir.to_str().unwrap()])
+            .current_dir(root()),
+    );
+    let readme = std::fs::read_to_string(root().join("README.md")).unwrap();
+    let section = readme
+        .split("<!-- models-example:start -->")
+        .nth(1)
+        .and_then(|rest| rest.split("<!-- models-example:end -->").next())
+        .expect("the README has the models example");
+    let sql: Vec<&str> = section
+        .split("```sql\n")
+        .skip(1)
+        .filter_map(|block| block.split("```").next())
+        .collect();
+    assert_eq!(sql.len(), 2, "two SQL blocks");
+    let file = tmp.path("readme.sql");
+    std::fs::write(&file, sql.concat()).unwrap();
+    let stdout = succeed(
+        Command::new(BIN)
+            .args(["run", file.to_str().unwrap(), "--db", db.to_str().unwrap()])
+            .args(["--format", "markdown"]),
+    );
+    let tables = |text: &str| -> Vec<String> {
+        text.lines()
+            .filter(|l| l.starts_with('|'))
+            .map(str::to_owned)
+            .collect()
+    };
+    let printed = tables(section);
+    assert_eq!(printed.len(), 2 + 12 + 2 + 1, "{printed:?}");
+    assert_eq!(tables(&stdout), printed);
 }
 
 #[cfg(unix)]

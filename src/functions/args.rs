@@ -48,8 +48,12 @@ pub enum ArgError {
     /// An error from a test kernel (Kolmogorov-Smirnov and the other comparisons).
     Test(TestError),
     /// A distribution argument of a kind the function does not take (it needs an
-    /// empirical one).
-    NotEmpirical { arg: usize },
+    /// empirical one): what it got, and what to do instead.
+    NotEmpirical {
+        arg: usize,
+        got: String,
+        instead: &'static str,
+    },
     /// A weighted empirical distribution given to a rank test, whose weights are not all
     /// whole numbers (a rank test counts a weight as that many rows).
     FractionalWeight { arg: usize, weight: f64 },
@@ -96,9 +100,10 @@ impl fmt::Display for ArgError {
                 "internal error: {what}; this is a bug in ogive, please report it"
             ),
             ArgError::Test(e) => e.fmt(f),
-            ArgError::NotEmpirical { arg } => write!(
+            ArgError::NotEmpirical { arg, got, instead } => write!(
                 f,
-                "argument {arg} must be an empirical distribution (a BLOB from dist_empirical)"
+                "argument {arg} must be an empirical distribution (a BLOB from dist_empirical), \
+                 not {got}; {instead}"
             ),
             ArgError::FractionalWeight { arg, weight } => write!(
                 f,

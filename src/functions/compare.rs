@@ -1,11 +1,23 @@
-//! Two-sample comparisons: the `ks_test` aggregate over one column split by a boolean, and
-//! the scalars `dist_ks` and `dist_distance` on two distribution values.
+//! Comparisons: the `ks_test` aggregate over one column split by a boolean, and the scalars
+//! `dist_ks` and `dist_distance` on two distribution values: two-sample when both are
+//! empirical, one-sample (the data against the model's cdf) when one is a model.
 //!
 //! Adapters only: they read and check arguments, turn the rows or the distribution values
-//! into sorted samples, and hand them to [`crate::stats::ks`] and [`crate::stats::gof`].
-//! NULL x and NULL `in_second` rows are skipped; a group where either sample has no values
-//! gives NULL, as does a NULL distribution argument (`dist_empirical` of an empty group is
-//! NULL).
+//! into sorted samples, and hand them to [`crate::stats::ks`], [`crate::stats::gof`] and
+//! [`crate::stats::lilliefors`]. NULL x and NULL `in_second` rows are skipped; a group where
+//! either sample has no values gives NULL, as does a NULL distribution argument
+//! (`dist_empirical` of an empty group is NULL).
+//!
+//! # One sample against a model
+//!
+//! `dist_ks(d, model)` and `dist_ks(model, d)` run [`ks_1samp`] on the rows of `d` against
+//! the model's cdf and answer in the two-sample JSON shape, adding `"test": "one-sample"`
+//! and the model's `family`, with null for the model's size. Its p-value assumes the model
+//! was fixed before the data were seen. For a model fitted to the same data, method
+//! `'lilliefors'` refers the same statistic to its null distribution under estimated
+//! parameters ([`lilliefors_p`] with the maximum-likelihood sd that `dist_fit` reports),
+//! after [`Model::check_fit_of`] has confirmed that the model is exactly that fit: the
+//! correction is chosen by the caller, never guessed from the model.
 //!
 //! # Weighted empirical values in rank tests
 //!
@@ -26,10 +38,15 @@ use serde_json::json;
 use super::args::{ArgError, Constant, fail, number, text};
 use super::dist::dist_arg;
 use super::{FunctionDef, Kind, aggregate, scalar};
+use crate::stats::fit::Family;
 use crate::stats::gof::{anderson_darling_ksamp, cramer_von_mises_2samp, wasserstein_1};
-use crate::stats::ks::{Alternative, KsResult, PMethod, TestError, ks_2samp};
+use crate::stats::ks::{
+    Alternative, KsOneResult, KsResult, PMethod, TestError, ks_1samp, ks_2samp,
+};
+use crate::stats::lilliefors::{self, Scale, lilliefors_p};
 use crate::stats::sample::Sample;
 use crate::value::Dist;
+use crate::value::model::{Law, Model};
 
 type Result<T> = rusqlite::Result<T>;
 
@@ -65,20 +82,34 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         kind: Kind::Scalar,
         arities: &[2, 3, 4],
         signature: "dist_ks(d1, d2 [, alternative [, method]])",
-        summary: "Kolmogorov-Smirnov test of two empirical distributions: JSON {d, p, n1, n2, method, alternative}, as ks_test",
-        help: "The two-sample test of ks_test on the values two empirical distributions hold: \
-               the same JSON, to the last digit, as ks_test over the rows they were built \
+        summary: "Kolmogorov-Smirnov test of two empirical distributions, or of one against a model: JSON {d, p, n1, n2, method, alternative}",
+        help: "Two empirical distributions: the two-sample test of ks_test on the values they \
+               hold, the same JSON to the last digit as ks_test over the rows they were built \
                from, with the same alternative ('two-sided' default, 'less', 'greater'; d1 \
-               plays sample 1) and method ('auto' default, 'exact', 'asymp'). Weights are \
-               frequency weights: a whole-number weight w counts as w rows (n1 and n2 are then \
-               the total weights), up to 10000000 rows per distribution; a fractional weight is \
-               an error. NULL d1 or d2 (dist_empirical of an empty group is NULL, so either \
-               sample with fewer than one value), alternative or method gives NULL. Both \
-               arguments must be empirical distributions; a one-sample test against a model \
-               is valid only when the model's parameters were not estimated from the same \
-               data (Lilliefors 1967: its p-values would be far too large). Errors: an \
-               argument that is not an empirical distribution, an unknown alternative or \
-               method, fractional weights, an exact p-value out of reach.",
+               plays sample 1) and method ('auto' default, 'exact', 'asymp'). An empirical \
+               distribution and a model (JSON from dist_fit, dist_mixture or dist_model, \
+               either order): the one-sample test of the data against the model's cdf, with \
+               test 'one-sample', the model's family, and null for the model's n1 or n2. Its \
+               p-value is exact for a fully specified continuous model (Marsaglia, Tsang and \
+               Wang 2003, as Simard and L'Ecuyer 2011 organise it; one-sided Birnbaum and \
+               Tingey 1951), with 'auto' switching to the Pelz-Good asymptotic series for \
+               large n, and 'exact' refusing Durbin matrices above order 1000; the \
+               alternative keeps the argument order ('greater': the cdf of d1 lies above \
+               that of d2 somewhere). This p-value is NOT valid when the model's parameters \
+               were estimated from the same data (Lilliefors 1967): it is then far too large. \
+               For a normal or exponential model fitted to the same data, method \
+               'lilliefors' gives the corrected p-value (two-sided; Monte Carlo of 10000 \
+               replicates with a fixed seed under the fitted family, maximum-likelihood sd \
+               as dist_fit reports it; Stephens' 1974 size modification above 500 values); \
+               it refuses any model that is not dist_fit's fit of these very values (n and \
+               parameters to 1e-9). Weights are frequency weights: a whole-number weight w \
+               counts as w rows (n1 and n2 are then the total weights), up to 10000000 rows \
+               per distribution; a fractional weight is an error. NULL d1 or d2 \
+               (dist_empirical of an empty group is NULL, so either sample with fewer than \
+               one value), alternative or method gives NULL. Errors: two models, an argument \
+               that is not a distribution, an unknown alternative or method, fractional \
+               weights, an exact p-value out of reach, 'lilliefors' on a model that is not \
+               the sample's normal or exponential fit.",
         example: "SELECT round(dist_ks(a.d, b.d) ->> '$.p', 4) \
                   FROM (SELECT dist_empirical(column1) AS d FROM (VALUES (1), (2), (3))) AS a, \
                   (SELECT dist_empirical(column1) AS d FROM (VALUES (4), (5), (6))) AS b",
@@ -90,7 +121,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         kind: Kind::Scalar,
         arities: &[3],
         signature: "dist_distance(d1, d2, metric)",
-        summary: "how far apart two empirical distributions are: metric 'ks', 'wasserstein', 'cvm' or 'ad'; JSON {metric, statistic, p, method, n1, n2}",
+        summary: "how far apart two distributions are: metric 'ks', 'wasserstein', 'cvm' or 'ad' (against a model 'ks'); JSON {metric, statistic, p, method, n1, n2}",
         help: "metric 'ks': the two-sided Kolmogorov-Smirnov statistic max |F1 - F2| and its \
                p-value, as dist_ks. 'wasserstein': the L1 distance between the two cdfs, \
                integral |F1 - F2| dt, in the units of the values (how far, on average, mass \
@@ -107,8 +138,12 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                and a fractional weight is an error. NULL for a NULL argument (so for a sample \
                with fewer than one value), and when the samples are too small for the metric: \
                'cvm' needs 2 values in each, 'ad' 4 values in all and two distinct ones. \
-               Errors: an unknown metric, an argument that is not an empirical distribution, \
-               fractional weights for a rank metric.",
+               An empirical distribution and a model (either order) take metric 'ks' only: \
+               the one-sample test of dist_ks with its default method, plus test \
+               'one-sample' and the model's family (its p-value assumes the model was not \
+               fitted to these data; see dist_ks for the Lilliefors correction). Errors: an \
+               unknown metric, an argument that is not a distribution, two models, a model \
+               with 'wasserstein', 'cvm' or 'ad', fractional weights for a rank metric.",
         example: "SELECT dist_distance(a.d, b.d, 'wasserstein') ->> '$.statistic' \
                   FROM (SELECT dist_empirical(column1) AS d FROM (VALUES (0), (1), (5))) AS a, \
                   (SELECT dist_empirical(column1) AS d FROM (VALUES (2), (3), (7))) AS b",
@@ -266,25 +301,14 @@ fn rows_of(s: &Sample, arg: usize) -> std::result::Result<Rows<'_>, ArgError> {
     Ok(Cow::Owned(rows))
 }
 
-/// Which argument of a pair is not an empirical distribution.
-fn not_empirical(d1: &Dist) -> ArgError {
-    ArgError::NotEmpirical {
-        arg: if matches!(d1, Dist::Empirical(_)) {
-            2
-        } else {
-            1
-        },
-    }
-}
-
 /// Reads an optional TEXT option of a scalar at `idx`: absent gives the default, NULL gives
 /// `None`.
-fn scalar_option<T: Default>(
+fn scalar_option<T: Default, E: Into<ArgError>>(
     ctx: &Context<'_>,
     idx: usize,
     what: &'static str,
     name: &'static str,
-    parse: impl FnOnce(&str) -> std::result::Result<T, TestError>,
+    parse: impl FnOnce(&str) -> std::result::Result<T, E>,
 ) -> Result<Option<T>> {
     if ctx.len() <= idx {
         return Ok(Some(T::default()));
@@ -295,29 +319,222 @@ fn scalar_option<T: Default>(
     }
 }
 
-/// `dist_ks(d1, d2 [, alternative [, method]])`: dispatches on the kinds of the two values.
+/// How `dist_ks` computes its p-value: one of the Kolmogorov-Smirnov methods, or the
+/// Lilliefors correction for a model fitted to the same data.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum KsMethod {
+    Ks(PMethod),
+    Lilliefors,
+}
+
+impl Default for KsMethod {
+    fn default() -> Self {
+        KsMethod::Ks(PMethod::Auto)
+    }
+}
+
+impl KsMethod {
+    fn parse(s: &str) -> std::result::Result<KsMethod, ArgError> {
+        if s.trim().eq_ignore_ascii_case("lilliefors") {
+            return Ok(KsMethod::Lilliefors);
+        }
+        PMethod::parse(s)
+            .map(KsMethod::Ks)
+            .map_err(|_| ArgError::BadJson {
+                what: "method",
+                detail: format!("must be 'auto', 'exact', 'asymp' or 'lilliefors', got '{s}'"),
+            })
+    }
+}
+
+/// What a one-sample test against a model needs to know about the call.
+struct OneSample<'a> {
+    /// The empirical distribution.
+    sample: &'a Sample,
+    /// Its argument number (1 or 2).
+    arg: usize,
+    /// The model.
+    model: &'a Model,
+}
+
+/// The two distribution arguments of a comparison.
+enum Pair<'a> {
+    /// Two empirical distributions: a two-sample comparison.
+    Two(&'a Sample, &'a Sample),
+    /// An empirical distribution and a model: a one-sample one.
+    One(OneSample<'a>),
+}
+
+impl<'a> Pair<'a> {
+    /// Sorts the arguments into a comparison; two models are an error (`why` says what
+    /// the function compares).
+    fn of(d1: &'a Dist, d2: &'a Dist, why: &'static str) -> std::result::Result<Self, ArgError> {
+        match (d1, d2) {
+            (Dist::Empirical(x), Dist::Empirical(y)) => Ok(Pair::Two(x, y)),
+            (Dist::Empirical(sample), Dist::Model(model)) => Ok(Pair::One(OneSample {
+                sample,
+                arg: 1,
+                model,
+            })),
+            (Dist::Model(model), Dist::Empirical(sample)) => Ok(Pair::One(OneSample {
+                sample,
+                arg: 2,
+                model,
+            })),
+            (Dist::Model(_), Dist::Model(_)) => Err(ArgError::NotEmpirical {
+                arg: 1,
+                got: d1.kind(),
+                instead: why,
+            }),
+        }
+    }
+}
+
+impl<'a> OneSample<'a> {
+    /// The sample's rows: whole weights replicated, as in the two-sample tests.
+    fn rows(&self) -> std::result::Result<Rows<'a>, ArgError> {
+        rows_of(self.sample, self.arg)
+    }
+
+    /// The one-sample Kolmogorov-Smirnov test of the rows against the model's cdf.
+    /// `alternative` is meant with the arguments in the order given: with the model first,
+    /// `greater` says the model's cdf lies above the ECDF, the kernel's `less`.
+    fn ks(
+        &self,
+        rows: &[f64],
+        alternative: Alternative,
+        method: PMethod,
+    ) -> std::result::Result<KsOneResult, TestError> {
+        let kernel_alternative = match (self.arg, alternative) {
+            (2, Alternative::Less) => Alternative::Greater,
+            (2, Alternative::Greater) => Alternative::Less,
+            (_, a) => a,
+        };
+        let mut r = ks_1samp(rows, |t| self.model.cdf(t), kernel_alternative, method)?;
+        r.alternative = alternative;
+        Ok(r)
+    }
+
+    /// `(n1, n2)` for a result: the sample's size on its side, null on the model's.
+    fn sizes(&self, n: usize) -> (serde_json::Value, serde_json::Value) {
+        if self.arg == 1 {
+            (json!(n), serde_json::Value::Null)
+        } else {
+            (serde_json::Value::Null, json!(n))
+        }
+    }
+
+    /// The one-sample result as JSON: the two-sample shape, plus `test` and the model's
+    /// `family`.
+    fn json(&self, r: &KsOneResult, method: &str) -> serde_json::Value {
+        let (n1, n2) = self.sizes(r.n);
+        json!({
+            "d": r.d,
+            "p": r.p,
+            "n1": n1,
+            "n2": n2,
+            "method": method,
+            "alternative": r.alternative.name(),
+            "test": "one-sample",
+            "family": self.model.family_name(),
+        })
+    }
+
+    /// The Lilliefors test: the statistic against the model, which must be the sample's
+    /// normal or exponential maximum-likelihood fit, and its Monte Carlo p-value.
+    fn lilliefors(
+        &self,
+        alternative: Alternative,
+    ) -> std::result::Result<serde_json::Value, ArgError> {
+        let wrong = |detail: String| ArgError::BadJson {
+            what: "method",
+            detail,
+        };
+        if alternative != Alternative::TwoSided {
+            return Err(wrong(format!(
+                "'lilliefors' is two-sided; drop the alternative '{}' or use 'two-sided'",
+                alternative.name()
+            )));
+        }
+        let family = match self.model.law() {
+            Law::Parametric(p) if p.family() == Family::Normal => lilliefors::Family::Normal,
+            Law::Parametric(p) if p.family() == Family::Exponential => {
+                lilliefors::Family::Exponential
+            }
+            _ => {
+                return Err(wrong(format!(
+                    "'lilliefors' needs a normal or exponential model fitted to the sample, \
+                     got {}",
+                    self.model.kind()
+                )));
+            }
+        };
+        let rows = self.rows()?;
+        if rows.len() < family.min_n() {
+            return Err(TestError::TooFewValues {
+                needed: family.min_n(),
+                got: rows.len(),
+            }
+            .into());
+        }
+        self.model.check_fit_of(&rows)?;
+        let mut r = self.ks(&rows, Alternative::TwoSided, PMethod::Auto)?;
+        r.p = lilliefors_p(r.d, r.n, family, Scale::MaximumLikelihood);
+        let mut out = self.json(&r, "lilliefors");
+        out["replicates"] = json!(lilliefors::REPLICATES);
+        Ok(out)
+    }
+}
+
+/// `dist_ks(d1, d2 [, alternative [, method]])`: two-sample on two empirical values,
+/// one-sample when one of them is a model.
 fn dist_ks(ctx: &Context<'_>) -> Result<Value> {
     const NAME: &str = "dist_ks";
     let d1 = dist_arg(ctx, 0, NAME)?;
     let d2 = dist_arg(ctx, 1, NAME)?;
     let alternative = scalar_option(ctx, 2, "alternative", NAME, Alternative::parse)?;
-    let method = scalar_option(ctx, 3, "method", NAME, PMethod::parse)?;
+    let method = scalar_option(ctx, 3, "method", NAME, KsMethod::parse)?;
     let (Some(d1), Some(d2), Some(alternative), Some(method)) = (d1, d2, alternative, method)
     else {
         return Ok(Value::Null);
     };
-    match (&*d1, &*d2) {
-        (Dist::Empirical(x), Dist::Empirical(y)) => {
+    let pair = Pair::of(
+        &d1,
+        &d2,
+        "dist_ks compares data with data or with a model, so one argument must be empirical",
+    )
+    .map_err(|e| fail(NAME, e))?;
+    let out = match (pair, method) {
+        (Pair::Two(x, y), KsMethod::Ks(method)) => {
             let x = rows_of(x, 1).map_err(|e| fail(NAME, e))?;
             let y = rows_of(y, 2).map_err(|e| fail(NAME, e))?;
             let r = ks_2samp(&x, &y, alternative, method).map_err(|e| fail(NAME, e))?;
-            Ok(Value::Text(ks_json(&r)))
+            return Ok(Value::Text(ks_json(&r)));
         }
-        // Dist has one kind today; a model value lands here until the one-sample test
-        // (empirical against model) gets its own arm above.
-        #[allow(unreachable_patterns)]
-        (d1, _) => Err(fail(NAME, not_empirical(d1))),
-    }
+        (Pair::Two(..), KsMethod::Lilliefors) => {
+            return Err(fail(
+                NAME,
+                ArgError::BadJson {
+                    what: "method",
+                    detail: "'lilliefors' tests one empirical distribution against the normal \
+                             or exponential model dist_fit fitted to it; one argument must be \
+                             that model"
+                        .to_string(),
+                },
+            ));
+        }
+        (Pair::One(one), KsMethod::Ks(method)) => {
+            let rows = one.rows().map_err(|e| fail(NAME, e))?;
+            let r = one
+                .ks(&rows, alternative, method)
+                .map_err(|e| fail(NAME, e))?;
+            one.json(&r, r.method.name())
+        }
+        (Pair::One(one), KsMethod::Lilliefors) => {
+            one.lilliefors(alternative).map_err(|e| fail(NAME, e))?
+        }
+    };
+    Ok(Value::Text(out.to_string()))
 }
 
 /// The metrics of `dist_distance`.
@@ -374,10 +591,16 @@ fn dist_distance(ctx: &Context<'_>) -> Result<Value> {
     let (Some(d1), Some(d2), Some(metric)) = (d1, d2, metric) else {
         return Ok(Value::Null);
     };
-    let (x, y) = match (&*d1, &*d2) {
-        (Dist::Empirical(x), Dist::Empirical(y)) => (x, y),
-        #[allow(unreachable_patterns)]
-        (d1, _) => return Err(fail(NAME, not_empirical(d1))),
+    let pair = Pair::of(
+        &d1,
+        &d2,
+        "dist_distance measures data against data or against a model, so one argument must \
+         be empirical",
+    )
+    .map_err(|e| fail(NAME, e))?;
+    let (x, y) = match pair {
+        Pair::Two(x, y) => (x, y),
+        Pair::One(one) => return one_sample_distance(&one, metric).map_err(|e| fail(NAME, e)),
     };
     // The rank metrics read whole weights as replicated rows.
     let rows = || -> Result<(Rows<'_>, Rows<'_>)> {
@@ -444,6 +667,46 @@ fn dist_distance(ctx: &Context<'_>) -> Result<Value> {
         Err(TestError::TooFewValues { .. }) => Ok(Value::Null),
         Err(e) => Err(fail(NAME, e)),
     }
+}
+
+/// `dist_distance` between an empirical distribution and a model: the one-sample
+/// Kolmogorov-Smirnov test for 'ks'; the other metrics compare two samples.
+fn one_sample_distance(
+    one: &OneSample<'_>,
+    metric: Metric,
+) -> std::result::Result<Value, ArgError> {
+    if metric != Metric::Ks {
+        return Err(ArgError::NotEmpirical {
+            arg: 3 - one.arg,
+            got: one.model.kind(),
+            instead: match metric {
+                Metric::Wasserstein => {
+                    "metric 'wasserstein' compares two samples; against a model use metric 'ks' \
+                     (or dist_ks)"
+                }
+                _ => {
+                    "metrics 'cvm' and 'ad' are two-sample tests here; against a model use \
+                     metric 'ks' (or dist_ks)"
+                }
+            },
+        });
+    }
+    let rows = one.rows()?;
+    let r = one.ks(&rows, Alternative::TwoSided, PMethod::Auto)?;
+    let (n1, n2) = one.sizes(r.n);
+    Ok(Value::Text(
+        json!({
+            "metric": metric.name(),
+            "statistic": r.d,
+            "p": r.p,
+            "method": r.method.name(),
+            "n1": n1,
+            "n2": n2,
+            "test": "one-sample",
+            "family": one.model.family_name(),
+        })
+        .to_string(),
+    ))
 }
 
 #[cfg(test)]

@@ -6,8 +6,23 @@
 //! [`crate::value::Dist::from_sql`], numbers by [`super::args`], and the answers come from
 //! [`crate::stats`]. NULL in any argument of a scalar gives NULL; a NULL argument of a
 //! table-valued function gives no rows. A constant distribution argument (a literal or a
-//! bound parameter) is decoded once per statement, not once per row.
+//! bound parameter) is decoded once per statement, not once per row, and a model that
+//! repeats from row to row (a fit joined to every row) is parsed once while it repeats.
+//!
+//! # Models
+//!
+//! A distribution argument is an empirical BLOB or model JSON (`dist_fit`, `dist_mixture`,
+//! `dist_model`). `dist_cdf`, `dist_pdf`, `dist_quantile`, `dist_mean`, `dist_sd` and
+//! `dist_curve` evaluate a model exactly (`dist_quantile`'s type and the bandwidth of
+//! `dist_pdf` and `dist_curve` are checked but do not apply to a model); `dist_n` gives the
+//! number of values a model was fitted to. `dist_merge`, `dist_profile`, `dist_band`,
+//! `dist_steps` and `dist_histogram` describe a sample, so a model there is an error that
+//! says which function answers the question for a model. Infinite answers (a quantile at
+//! `p = 0` or `1` on an unbounded support, a density at its pole) reach SQL as REAL
+//! `-Inf` or `Inf`, as the quantiles of an empirical value holding an infinite reading do;
+//! NaN never does.
 
+use std::cell::RefCell;
 use std::ffi::{CStr, c_int};
 use std::sync::Arc;
 
@@ -26,7 +41,7 @@ use crate::stats::grid::{check_grid, linspace};
 use crate::stats::histogram::{BinRule, histogram};
 use crate::stats::kde::Bandwidth;
 use crate::stats::quantile::QuantileType;
-use crate::stats::sample::SampleBuilder;
+use crate::stats::sample::{Sample, SampleBuilder};
 use crate::value::{Dist, Size, describe, empirical};
 
 type Result<T> = rusqlite::Result<T>;
@@ -59,7 +74,8 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                same BLOB, bit for bit, as dist_empirical over all their rows at once, so \
                per-day or per-shard values can be rolled up without the raw data. Merging \
                a weighted with an unweighted distribution gives each unweighted value weight \
-               1. NULL d is skipped. Errors: d not a distribution BLOB.",
+               1. NULL d is skipped. Errors: d not a distribution BLOB, or a model (a model \
+               is not a set of values; fit the merged values instead).",
         example: "WITH days(d) AS (SELECT dist_empirical(column1) FROM (VALUES (1), (2)) \
                   UNION ALL SELECT dist_empirical(column1) FROM (VALUES (3))) \
                   SELECT dist_quantile(dist_merge(d), 0.5) FROM days",
@@ -73,8 +89,11 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         signature: "dist_cdf(d, t)",
         summary: "cdf of distribution d at t: the share of its mass at or below t",
         help: "For an empirical distribution, the ECDF: count(x <= t) / n, or with weights \
-               the weight at or below t over the total weight, by binary search. NULL d or t \
-               gives NULL. Errors: d not a distribution BLOB, non-numeric t.",
+               the weight at or below t over the total weight, by binary search. For a model \
+               (JSON from dist_fit, dist_mixture or dist_model), its cdf: statrs and libm's \
+               erfc for the families, the weighted sum of normal cdfs for a mixture; 0 at \
+               -Inf and 1 at Inf. NULL d or t gives NULL. Errors: d not a distribution (an \
+               invalid model names the field), non-numeric t.",
         example: "SELECT dist_cdf(dist_empirical(column1), 2.5) FROM (VALUES (1), (2), (3), (4))",
         example_result: "0.5",
         register: |c, d| scalar(c, d, cdf),
@@ -87,8 +106,12 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         summary: "p-quantile of distribution d; type 1..9 as in quantile, default 7",
         help: "The p-quantile of an empirical distribution by one of the nine Hyndman-Fan \
                definitions, the same kernel as quantile and weighted_quantile (with weights \
-               the total weight plays the part of n). NULL d, p or type gives NULL. Errors: p \
-               outside [0, 1], type outside 1..9, d not a distribution BLOB.",
+               the total weight plays the part of n). For a model, the inverse of its cdf (a \
+               mixture's by safeguarded Newton-bisection), so that dist_quantile(m, \
+               dist_cdf(m, t)) = t; type is a rule for samples, checked but ignored for a \
+               model, so one query serves both kinds. p = 0 and 1 give the ends of a model's \
+               support: -Inf or Inf (REAL) where it is unbounded. NULL d, p or type gives \
+               NULL. Errors: p outside [0, 1], type outside 1..9, d not a distribution.",
         example: "SELECT dist_quantile(dist_empirical(column1), 0.9) \
                   FROM (VALUES (1), (2), (3), (4), (5))",
         example_result: "4.6",
@@ -99,14 +122,15 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         kind: Kind::Scalar,
         arities: &[2, 3],
         signature: "dist_pdf(d, t [, bandwidth])",
-        summary: "density of d at t: Gaussian kernel estimate, bandwidth 'scott' (default), 'silverman' or h",
+        summary: "density of d at t: a model's own, or a Gaussian kernel estimate, bandwidth 'scott' (default), 'silverman' or h",
         help: "For an empirical distribution, the Gaussian kernel density estimate at t. \
                bandwidth is 'scott' (the default: sd * n^(-1/5)), 'silverman' \
                (sd * (3n/4)^(-1/5)), or a positive number: the kernel's standard deviation in \
                the units of x. sd has divisor n - 1; weights count as frequencies. NULL when \
                a rule's bandwidth is undefined (fewer than two observations, no spread, an \
-               infinite value) and for NULL arguments. Errors: an unknown bandwidth, d not a \
-               distribution BLOB.",
+               infinite value) and for NULL arguments. For a model, its density (bandwidth \
+               checked but ignored); Inf (REAL) at the pole 0 of a gamma or Weibull model \
+               with shape below 1. Errors: an unknown bandwidth, d not a distribution.",
         example: "SELECT round(dist_pdf(dist_empirical(column1), 0, 1.0), 6) FROM (VALUES (0))",
         example_result: "0.398942",
         register: |c, d| scalar(c, d, pdf),
@@ -116,9 +140,11 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         kind: Kind::Scalar,
         arities: &[1],
         signature: "dist_n(d)",
-        summary: "number of observations in d (INTEGER), or its total weight (REAL) when weighted",
+        summary: "number of observations in d (INTEGER), its total weight (REAL) when weighted, a model's fitted n",
         help: "The count of values an unweighted empirical distribution was built from, as \
-               an INTEGER; for a weighted one, the total weight, as a REAL. NULL d gives NULL.",
+               an INTEGER; for a weighted one, the total weight, as a REAL. For a model, the \
+               number of values it was fitted to (its n field), NULL for a model built from \
+               known parameters. NULL d gives NULL.",
         example: "SELECT dist_n(dist_empirical(column1, column2)) FROM (VALUES (1, 2.5), (3, 0.5))",
         example_result: "3.0",
         register: |c, d| scalar(c, d, size),
@@ -129,8 +155,9 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         arities: &[1],
         signature: "dist_mean(d)",
         summary: "mean of distribution d",
-        help: "The (weighted) mean, by a compensated sum. NULL when d holds an infinite value, \
-               and for NULL d.",
+        help: "The (weighted) mean, by a compensated sum; for a model, the mean of the \
+               distribution. NULL when d holds an infinite value, when a model's mean \
+               overflows (a lognormal with a huge sigma), and for NULL d.",
         example: "SELECT dist_mean(dist_empirical(column1)) FROM (VALUES (1), (2), (6))",
         example_result: "3.0",
         register: |c, d| scalar(c, d, mean),
@@ -140,10 +167,12 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         kind: Kind::Scalar,
         arities: &[1],
         signature: "dist_sd(d)",
-        summary: "standard deviation of distribution d (divisor n - 1)",
+        summary: "standard deviation of distribution d (divisor n - 1; a model's own sd)",
         help: "The sample standard deviation, divisor n - 1 (W - 1 with weights), computed in \
-               two passes with compensated sums. NULL for a single observation (total weight \
-               at most 1), an infinite value, or NULL d.",
+               two passes with compensated sums; for a model, the standard deviation of the \
+               distribution (for a normal fit, its sd: divisor n). NULL for a single \
+               observation (total weight at most 1), an infinite value, a model's overflow, \
+               or NULL d.",
         example: "SELECT round(dist_sd(dist_empirical(column1)), 4) \
                   FROM (VALUES (2), (4), (4), (4), (5), (5), (7), (9))",
         example_result: "2.1381",
@@ -158,7 +187,8 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         help: "The same JSON object as the profile aggregate over the values d was built \
                from: n, mean, sd, min, q1, median, q3, max, skewness, excess_kurtosis. A \
                weighted distribution adds total_weight, which then plays the part of n in \
-               the moments. NULL d gives NULL.",
+               the moments. NULL d gives NULL. Errors: d not an empirical distribution (a \
+               model has no sample summary: ask it dist_mean, dist_sd, dist_quantile).",
         example: "SELECT dist_profile(dist_empirical(column1)) ->> '$.median' \
                   FROM (VALUES (1), (2), (9))",
         example_result: "2.0",
@@ -174,7 +204,8 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                plus and minus sqrt(ln(2/alpha) / (2n)), clipped to [0, 1]. The band holds the \
                true cdf at every t at once with probability at least 1 - alpha (for \
                continuous data; n is the total weight when weighted). NULL arguments give \
-               NULL. Errors: alpha outside (0, 1), d not a distribution BLOB.",
+               NULL. Errors: alpha outside (0, 1), d not an empirical distribution (a model \
+               is not a sample and has no sampling band).",
         example: "SELECT round(dist_band(dist_empirical(column1), 2, 0.5) ->> '$.lower', 4) \
                   FROM (VALUES (1), (2), (3), (4))",
         example_result: "0.0837",
@@ -188,8 +219,8 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         summary: "rows (x, cdf): the step points of the empirical cdf of d, for plotting",
         help: "One row per distinct value x of the empirical distribution d, ascending, with \
                the cdf at x (the top of the step). Use in FROM, also in joins: \
-               FROM sensors s, dist_steps(s.d). NULL d gives no rows. Errors: d not a \
-               distribution BLOB.",
+               FROM sensors s, dist_steps(s.d). NULL d gives no rows. Errors: d not an \
+               empirical distribution (a model's cdf has no steps: draw it with dist_curve).",
         example: "SELECT group_concat(x || ':' || cdf, ' ') FROM dist_steps(\
                   (SELECT dist_empirical(column1) FROM (VALUES (1), (2), (2), (3))))",
         example_result: "1.0:0.25 2.0:0.75 3.0:1.0",
@@ -207,9 +238,11 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         help: "Evaluates the distribution on the grid lo, lo + (hi - lo)/(n - 1), ..., hi \
                (numpy.linspace's arithmetic): the cdf, and the density (for an empirical \
                distribution the kernel estimate of dist_pdf, bandwidth as there, NULL when \
-               undefined). NULL arguments give no rows. Errors: lo >= hi or not finite, n not \
-               a whole number from 2 to 1000000, an unknown bandwidth, d not a distribution \
-               BLOB.",
+               undefined; for a model its own cdf and density, as dist_cdf and dist_pdf give \
+               them, the bandwidth checked but ignored). Drawn beside dist_steps of the data, \
+               it compares a fitted cdf with the ECDF. NULL arguments give no rows. Errors: \
+               lo >= hi or not finite, n not a whole number from 2 to 1000000, an unknown \
+               bandwidth, d not a distribution.",
         example: "SELECT group_concat(cdf, ' ') FROM dist_curve(\
                   (SELECT dist_empirical(column1) FROM (VALUES (0), (1))), 0, 1, 3)",
         example_result: "0.5 0.5 1.0",
@@ -229,8 +262,9 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                whole number of bins. The edges are those of numpy.histogram_bin_edges. A bin \
                holds [lo, hi), the last one also hi. count is an INTEGER (the total weight, a \
                REAL, when weighted); density = count / (hi - lo) / n integrates to 1. Errors: \
-               an unknown rule, more than 1000000 bins, an infinite value in d, d not a \
-               distribution BLOB.",
+               an unknown rule, more than 1000000 bins, an infinite value in d, d not an \
+               empirical distribution (a model has no counts: its density is the pdf column \
+               of dist_curve).",
         example: "SELECT group_concat(count, ' ') FROM dist_histogram(\
                   (SELECT dist_empirical(column1) FROM (VALUES (0), (1), (2), (4))), 2)",
         example_result: "2 2",
@@ -245,8 +279,37 @@ fn real(x: Option<f64>) -> Value {
     x.map_or(Value::Null, Value::Real)
 }
 
+/// The sample of an empirical distribution argument (number `arg`, from 1); a model is an
+/// error saying what to do `instead`.
+pub(crate) fn empirical<'a>(
+    d: &'a Dist,
+    arg: usize,
+    instead: &'static str,
+) -> std::result::Result<&'a Sample, ArgError> {
+    match d {
+        Dist::Empirical(s) => Ok(s),
+        Dist::Model(_) => Err(ArgError::NotEmpirical {
+            arg,
+            got: d.kind(),
+            instead,
+        }),
+    }
+}
+
+/// A model's text and the distribution read from it.
+type ParsedModel = (Box<[u8]>, Arc<Dist>);
+
+thread_local! {
+    /// The last model read from TEXT on this thread, with its text. SQLite keeps auxiliary
+    /// data only for constant arguments, but a model usually comes from a joined row (a
+    /// fit in a CTE or a table) and repeats, unchanged, on every row of a scan; comparing
+    /// the bytes is far cheaper than parsing and checking the JSON again.
+    static LAST_MODEL: RefCell<Option<ParsedModel>> = const { RefCell::new(None) };
+}
+
 /// Reads argument `idx` as a distribution. When SQLite keeps auxiliary data for the
-/// argument (a constant), the decoded value is reused on later rows.
+/// argument (a constant), the decoded value is reused on later rows; a model equal, byte
+/// for byte, to the last one read on this thread is reused too.
 pub(crate) fn dist_arg(
     ctx: &Context<'_>,
     idx: usize,
@@ -256,9 +319,29 @@ pub(crate) fn dist_arg(
     if let Ok(Some(d)) = ctx.get_aux::<Dist>(arg) {
         return Ok(Some(d));
     }
-    match Dist::from_sql(ctx.get_raw(idx), idx + 1).map_err(|e| fail(name, e))? {
+    let raw = ctx.get_raw(idx);
+    let text = match raw {
+        ValueRef::Text(t) => Some(t),
+        _ => None,
+    };
+    if let Some(t) = text {
+        let hit = LAST_MODEL.with_borrow(|last| match last {
+            Some((bytes, d)) if **bytes == *t => Some(Arc::clone(d)),
+            _ => None,
+        });
+        if hit.is_some() {
+            return Ok(hit);
+        }
+    }
+    match Dist::from_sql(raw, idx + 1).map_err(|e| fail(name, e))? {
         None => Ok(None),
-        Some(d) => ctx.set_aux(arg, d).map(Some),
+        Some(d) => {
+            let d = ctx.set_aux(arg, d)?;
+            if let Some(t) = text {
+                LAST_MODEL.set(Some((t.into(), Arc::clone(&d))));
+            }
+            Ok(Some(d))
+        }
     }
 }
 
@@ -381,7 +464,7 @@ fn pdf(ctx: &Context<'_>) -> Result<Value> {
 }
 
 fn size(ctx: &Context<'_>) -> Result<Value> {
-    Ok(match dist_arg(ctx, 0, "dist_n")?.map(|d| d.size()) {
+    Ok(match dist_arg(ctx, 0, "dist_n")?.and_then(|d| d.size()) {
         None => Value::Null,
         Some(Size::Count(n)) => Value::Integer(i64::try_from(n).unwrap_or(i64::MAX)),
         Some(Size::Weight(w)) => Value::Real(w),
@@ -397,8 +480,18 @@ fn sd(ctx: &Context<'_>) -> Result<Value> {
 }
 
 fn profile(ctx: &Context<'_>) -> Result<Value> {
-    let p = dist_arg(ctx, 0, "dist_profile")?.and_then(|d| d.profile());
-    Ok(p.map_or(Value::Null, |p| Value::Text(profile_json(&p))))
+    const NAME: &str = "dist_profile";
+    let Some(d) = dist_arg(ctx, 0, NAME)? else {
+        return Ok(Value::Null);
+    };
+    let s = empirical(
+        &d,
+        1,
+        "for a model use dist_mean, dist_sd and dist_quantile",
+    )
+    .map_err(|e| fail(NAME, e))?;
+    Ok(s.profile()
+        .map_or(Value::Null, |p| Value::Text(profile_json(&p))))
 }
 
 fn band(ctx: &Context<'_>) -> Result<Value> {
@@ -409,8 +502,12 @@ fn band(ctx: &Context<'_>) -> Result<Value> {
     let (Some(d), Some(t), Some(alpha)) = (d, t, alpha) else {
         return Ok(Value::Null);
     };
-    // Irrefutable today; a new kind of distribution must decide what its band is.
-    let Dist::Empirical(s) = &*d;
+    let s = empirical(
+        &d,
+        1,
+        "a model is not a sample and has no sampling band; compare it with the data by dist_ks",
+    )
+    .map_err(|e| fail(NAME, e))?;
     let Some(f) = s.cdf(t) else {
         return Ok(Value::Null);
     };
@@ -475,11 +572,16 @@ impl Aggregate<SampleBuilder, Value> for DistMerge {
     }
 
     fn step(&self, ctx: &mut Context<'_>, b: &mut SampleBuilder) -> Result<()> {
-        let d = Dist::from_sql(ctx.get_raw(0), 1).map_err(|e| fail("dist_merge", e))?;
-        // Exhaustive on purpose: a new kind of distribution must decide how it merges.
-        match d {
-            None => {}
-            Some(Dist::Empirical(s)) => b.extend(&s),
+        const NAME: &str = "dist_merge";
+        let d = Dist::from_sql(ctx.get_raw(0), 1).map_err(|e| fail(NAME, e))?;
+        if let Some(d) = d {
+            let s = empirical(
+                &d,
+                1,
+                "only samples merge: fit a model to the merged values instead",
+            )
+            .map_err(|e| fail(NAME, e))?;
+            b.extend(s);
         }
         Ok(())
     }
@@ -514,7 +616,12 @@ impl TableFunction for Steps {
         let Some(d) = table_dist(Self::NAME, args.first().copied().flatten())? else {
             return Ok(Vec::new());
         };
-        let Dist::Empirical(s) = d;
+        let s = empirical(
+            &d,
+            1,
+            "a model's cdf has no steps: draw it with dist_curve(model, lo, hi, n)",
+        )
+        .map_err(|e| fail(Self::NAME, e))?;
         Ok(s.steps()
             .into_iter()
             .flat_map(|(x, f)| [Value::Real(x), Value::Real(f)])
@@ -585,8 +692,13 @@ impl TableFunction for Histogram {
         let (Some(d), Some(rule)) = (d, rule) else {
             return Ok(Vec::new());
         };
-        let Dist::Empirical(s) = d;
-        let bins = histogram(&s, rule).map_err(|e| fail(name, e))?;
+        let s = empirical(
+            &d,
+            1,
+            "a model has no counts: its density is the pdf column of dist_curve(model, lo, hi, n)",
+        )
+        .map_err(|e| fail(name, e))?;
+        let bins = histogram(s, rule).map_err(|e| fail(name, e))?;
         let weighted = s.is_weighted();
         Ok(bins
             .into_iter()

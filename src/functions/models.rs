@@ -18,10 +18,12 @@ use rusqlite::vtab::{
     VTabConnection, VTabCursor,
 };
 
-use super::args::{ArgError, Constant, FunctionError, fail, number, text, whole};
+use super::args::{ArgError, Constant, fail, number, text, whole};
+use super::dist::dist_arg;
 use super::{FunctionDef, Kind, aggregate, flags};
 use crate::stats::fit::{Family, fit};
 use crate::stats::mixture::{Component, MAX_COMPONENTS, MixtureError, fit_mixture};
+use crate::value::Dist;
 use crate::value::model::Model;
 
 type Result<T> = rusqlite::Result<T>;
@@ -253,27 +255,23 @@ fn dist_component(ctx: &rusqlite::functions::Context<'_>) -> Result<Value> {
     let Some(t) = number(ctx.get_raw(1), "t").map_err(|e| fail(NAME, e))? else {
         return Ok(Value::Null);
     };
-    if ctx.get_raw(0) == ValueRef::Null {
+    // The parsed model is reused while the argument stays the same (a constant, or the
+    // same fit joined to every row), so a join labels each row without re-parsing.
+    let Some(d) = dist_arg(ctx, 0, NAME)? else {
         return Ok(Value::Null);
-    }
-    // The parsed model is cached while the argument stays the same (a constant or a
-    // value from an outer query), so a join labels each row without re-parsing.
-    let model = ctx.get_or_create_aux(0, |v| -> std::result::Result<Model, FunctionError> {
-        match read_model(v) {
-            Ok(Some(m)) => Ok(m),
-            Ok(None) => Err(FunctionError {
-                function: NAME,
-                error: ArgError::BadJson {
-                    what: "model",
-                    detail: "must not be NULL".to_string(),
-                },
-            }),
-            Err(error) => Err(FunctionError {
-                function: NAME,
-                error,
-            }),
-        }
-    })?;
+    };
+    let Dist::Model(model) = &*d else {
+        return Err(fail(
+            NAME,
+            ArgError::BadJson {
+                what: "model",
+                detail: format!(
+                    "must be model JSON (from dist_mixture, dist_fit or dist_model), not {}",
+                    d.kind()
+                ),
+            },
+        ));
+    };
     Ok(model
         .component_index(t)
         .map_or(Value::Null, |j| Value::Integer(j as i64 + 1)))

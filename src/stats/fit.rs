@@ -423,15 +423,27 @@ impl Parametric {
     /// use ogive::stats::fit::{Family, Parametric};
     /// let d = Parametric::new(Family::Exponential, &[2.0])?;
     /// assert_eq!(d.pdf(0.0), 2.0);
+    /// // Far in the upper tail the density underflows to 0 (statrs alone gives NaN there).
+    /// assert_eq!(Parametric::new(Family::Gamma, &[4.0, 2.0])?.pdf(1e300), 0.0);
     /// # Ok::<(), ogive::stats::fit::FitError>(())
     /// ```
     pub fn pdf(&self, t: f64) -> f64 {
+        // statrs' gamma and Weibull densities multiply a power of t by an exponential;
+        // far in the upper tail the power overflows while the exponential underflows,
+        // inf * 0 = NaN. Their log densities stay finite (or -inf) there.
+        let or_log = |v: f64, ln: &dyn Fn() -> f64| {
+            if v.is_nan() && !t.is_nan() {
+                ln().exp()
+            } else {
+                v
+            }
+        };
         match &self.law {
             Law::Normal(d) => d.pdf(t),
             Law::LogNormal(d) => d.pdf(t),
             Law::Exponential(d) => d.pdf(t),
-            Law::Gamma(d) => d.pdf(t),
-            Law::Weibull(d) => d.pdf(t),
+            Law::Gamma(d) => or_log(d.pdf(t), &|| d.ln_pdf(t)),
+            Law::Weibull(d) => or_log(d.pdf(t), &|| d.ln_pdf(t)),
             Law::Uniform(d) => d.pdf(t),
         }
     }

@@ -17,8 +17,11 @@
 //! `D (sqrt(n) - 0.01 + 0.85 / sqrt(n))` (normal) and
 //! `(D - 0.2 / n) (sqrt(n) + 0.26 + 0.5 / sqrt(n))` (exponential).
 //!
-//! The normal fit uses the mean and the standard deviation with divisor `n - 1`, the
-//! exponential fit the mean (location 0), as Lilliefors did.
+//! The exponential fit is the mean (location 0). The normal fit is the mean and a standard
+//! deviation whose divisor [`Scale`] chooses: `n - 1` as Lilliefors (1967) and statsmodels'
+//! `lilliefors` use it, or `n`, the maximum-likelihood estimate that `dist_fit` reports.
+//! The two statistics differ a little, and so do their null distributions; each is
+//! simulated with its own estimator, so a p-value always matches the fit it tests.
 
 use statrs::function::erf::erfc;
 
@@ -54,6 +57,17 @@ impl Family {
     }
 }
 
+/// How the standard deviation of a normal model was estimated (the exponential fit has no
+/// choice to make).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Scale {
+    /// Divisor `n - 1`: Lilliefors (1967), statsmodels' `lilliefors`.
+    #[default]
+    SampleSd,
+    /// Divisor `n`: the maximum-likelihood estimate (`dist_fit`'s normal `sd`).
+    MaximumLikelihood,
+}
+
 /// The result of a Lilliefors test.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct LillieforsResult {
@@ -75,7 +89,7 @@ fn normal_cdf(z: f64) -> f64 {
 }
 
 /// Fits the family to a sorted sample and returns `(location, scale, D)`.
-fn fit_and_d(sorted: &[f64], family: Family) -> Result<(f64, f64, f64), TestError> {
+fn fit_and_d(sorted: &[f64], family: Family, scale: Scale) -> Result<(f64, f64, f64), TestError> {
     let n = sorted.len();
     if n < family.min_n() {
         return Err(TestError::TooFewValues {
@@ -99,7 +113,11 @@ fn fit_and_d(sorted: &[f64], family: Family) -> Result<(f64, f64, f64), TestErro
             for &x in sorted {
                 ss.add((x - mean) * (x - mean));
             }
-            let sd = (ss.value() / (n - 1) as f64).sqrt();
+            let divisor = match scale {
+                Scale::SampleSd => n - 1,
+                Scale::MaximumLikelihood => n,
+            };
+            let sd = (ss.value() / divisor as f64).sqrt();
             if !(sd > 0.0 && sd.is_finite()) {
                 return Err(TestError::Degenerate(
                     "the values are all equal, so no normal model can be fitted".into(),
@@ -134,7 +152,8 @@ fn modified(d: f64, n: usize, family: Family) -> f64 {
     }
 }
 
-/// The Lilliefors test of a sorted sample: fit, statistic, Monte Carlo p-value.
+/// The Lilliefors test of a sorted sample: fit (the normal sd by `scale`), statistic, Monte
+/// Carlo p-value.
 ///
 /// # Errors
 /// [`TestError::NotANumber`], [`TestError::NotSorted`], [`TestError::TooFewValues`] (below
@@ -143,36 +162,41 @@ fn modified(d: f64, n: usize, family: Family) -> f64 {
 ///
 /// # Example
 /// ```
-/// use ogive::stats::lilliefors::{lilliefors, Family};
+/// use ogive::stats::lilliefors::{lilliefors, Family, Scale};
 /// // Far from normal: many equal values and one far outlier.
 /// let xs = [1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.1, 1.2, 9.0];
-/// let r = lilliefors(&xs, Family::Normal)?;
+/// let r = lilliefors(&xs, Family::Normal, Scale::SampleSd)?;
 /// assert!(r.p < 0.01);
 /// # Ok::<(), ogive::stats::ks::TestError>(())
 /// ```
-pub fn lilliefors(sorted: &[f64], family: Family) -> Result<LillieforsResult, TestError> {
-    let (location, scale, d) = fit_and_d(sorted, family)?;
+pub fn lilliefors(
+    sorted: &[f64],
+    family: Family,
+    scale: Scale,
+) -> Result<LillieforsResult, TestError> {
+    let (location, fitted_scale, d) = fit_and_d(sorted, family, scale)?;
     let n = sorted.len();
     Ok(LillieforsResult {
         d,
-        p: lilliefors_p(d, n, family),
+        p: lilliefors_p(d, n, family, scale),
         n,
         location,
-        scale,
+        scale: fitted_scale,
     })
 }
 
-/// The Monte Carlo p-value of a Lilliefors statistic `d` for sample size `n` (see the module
-/// docs).
+/// The Monte Carlo p-value of a Lilliefors statistic `d` for sample size `n`, the normal sd
+/// estimated by `scale` (see the module docs). NaN for NaN `d` or `n` below
+/// [`Family::min_n`].
 ///
 /// # Example
 /// ```
-/// use ogive::stats::lilliefors::{lilliefors_p, Family};
+/// use ogive::stats::lilliefors::{lilliefors_p, Family, Scale};
 /// // Lilliefors (1967, table; quoted from memory): the 5% critical value for n = 20 is 0.190.
-/// let p = lilliefors_p(0.19, 20, Family::Normal);
+/// let p = lilliefors_p(0.19, 20, Family::Normal, Scale::SampleSd);
 /// assert!((p - 0.05).abs() < 0.01);
 /// ```
-pub fn lilliefors_p(d: f64, n: usize, family: Family) -> f64 {
+pub fn lilliefors_p(d: f64, n: usize, family: Family, scale: Scale) -> f64 {
     if d.is_nan() || n < family.min_n() {
         return f64::NAN;
     }
@@ -190,7 +214,7 @@ pub fn lilliefors_p(d: f64, n: usize, family: Family) -> f64 {
         }
         buf.sort_unstable_by(f64::total_cmp);
         // Simulated samples are continuous and non-degenerate, so the fit cannot fail.
-        if let Ok((_, _, ds)) = fit_and_d(&buf, family)
+        if let Ok((_, _, ds)) = fit_and_d(&buf, family, scale)
             && modified(ds, n_sim, family) >= observed
         {
             at_least += 1;
@@ -222,7 +246,7 @@ mod tests {
                 "norm" => Family::Normal,
                 _ => Family::Exponential,
             };
-            let r = lilliefors(&x, family).unwrap();
+            let r = lilliefors(&x, family, Scale::SampleSd).unwrap();
             let d = case["d"].as_f64().unwrap();
             assert!((r.d - d).abs() <= 1e-9 * d, "d {} vs {d}", r.d);
             let p = case["p_mc"].as_f64().unwrap();
@@ -247,15 +271,15 @@ mod tests {
     #[test]
     fn rejects_degenerate_samples() {
         assert!(matches!(
-            lilliefors(&[2.0, 2.0, 2.0, 2.0], Family::Normal),
+            lilliefors(&[2.0, 2.0, 2.0, 2.0], Family::Normal, Scale::SampleSd),
             Err(TestError::Degenerate(_))
         ));
         assert!(matches!(
-            lilliefors(&[-1.0, 2.0, 3.0], Family::Exponential),
+            lilliefors(&[-1.0, 2.0, 3.0], Family::Exponential, Scale::SampleSd),
             Err(TestError::Degenerate(_))
         ));
         assert!(matches!(
-            lilliefors(&[1.0, 2.0, 3.0], Family::Normal),
+            lilliefors(&[1.0, 2.0, 3.0], Family::Normal, Scale::SampleSd),
             Err(TestError::TooFewValues { needed: 4, got: 3 })
         ));
     }

@@ -1,12 +1,23 @@
 //! The SQL values of ogive: distributions stored in tables and passed between functions.
 //!
 //! A distribution value is read from SQL once, at the boundary, by [`Dist::from_sql`],
-//! which checks it completely; everything after works on the checked [`Dist`]. Today a
-//! distribution is an empirical one, stored as a BLOB ([`empirical`], layout in
-//! docs/empirical-blob.md). Each variant of [`Dist`] answers the same questions (cdf,
-//! quantile, density, summaries), so a function written against [`Dist`] works for every
-//! kind of distribution; adding a kind means adding a variant, an arm in
-//! [`Dist::from_sql`] and an arm in each method here.
+//! which checks it completely; everything after works on the checked [`Dist`]. A
+//! distribution is either empirical, stored as a BLOB ([`empirical`], layout in
+//! docs/empirical-blob.md), or a model, stored as JSON text ([`model`]: a parametric
+//! family or a Gaussian mixture, as `dist_fit`, `dist_mixture` and `dist_model` write
+//! it). Each variant of [`Dist`] answers the same questions (cdf, quantile, density,
+//! summaries), so a function written against [`Dist`] works for every kind of
+//! distribution; adding a kind means adding a variant, an arm in [`Dist::from_sql`] and an
+//! arm in each method here.
+//!
+//! # Infinities and NaN
+//!
+//! SQLite's REAL holds `+inf` and `-inf` but no NaN. Infinite answers are real answers and
+//! reach SQL as they are: the quantile at `p = 0` or `p = 1` of a model with unbounded
+//! support (`-inf` for the normal and mixtures at 0, `+inf` at 1 for every family but the
+//! uniform), the density of a gamma or Weibull model with shape below 1 at its pole 0, and
+//! the quantiles of an empirical distribution that holds an infinite value. An undefined
+//! answer is `None` (SQL NULL), never NaN.
 
 pub mod empirical;
 pub mod model;
@@ -22,6 +33,7 @@ use crate::stats::moments::{Moments, Profile};
 use crate::stats::quantile::QuantileType;
 use crate::stats::sample::Sample;
 use empirical::BlobError;
+use model::{Model, ModelError};
 
 /// A distribution read from SQL.
 ///
@@ -38,6 +50,8 @@ use empirical::BlobError;
 pub enum Dist {
     /// An empirical distribution: a sorted sample with optional frequency weights.
     Empirical(Sample),
+    /// A model: a parametric distribution or a Gaussian mixture.
+    Model(Model),
 }
 
 /// Why a SQL value is not a usable distribution. The adapters add the function name.
@@ -53,7 +67,9 @@ pub enum Dist {
 pub enum ValueError {
     /// A BLOB that is not a valid empirical distribution.
     NotEmpirical { arg: usize, problem: BlobError },
-    /// A value of the wrong SQL type.
+    /// JSON text that is not a valid model (the problem names the field).
+    NotAModel { arg: usize, problem: ModelError },
+    /// A value of the wrong SQL type, or TEXT that is not JSON.
     NotADistribution { arg: usize, got: String },
 }
 
@@ -64,9 +80,13 @@ impl fmt::Display for ValueError {
                 f,
                 "argument {arg} is not an empirical distribution ({problem}); build one with dist_empirical(x)"
             ),
+            ValueError::NotAModel { arg, problem } => {
+                write!(f, "argument {arg} is not a valid model: {problem}")
+            }
             ValueError::NotADistribution { arg, got } => write!(
                 f,
-                "argument {arg} must be a distribution value (a BLOB from dist_empirical); got {got}"
+                "argument {arg} must be a distribution value (a BLOB from dist_empirical, or \
+                 model JSON from dist_fit, dist_mixture or dist_model); got {got}"
             ),
         }
     }
@@ -103,7 +123,9 @@ impl Dist {
     ///
     /// # Errors
     /// [`ValueError::NotEmpirical`] for a BLOB that fails [`empirical::decode`];
-    /// [`ValueError::NotADistribution`] for TEXT, INTEGER or REAL.
+    /// [`ValueError::NotAModel`] for JSON text that fails [`Model::parse`] (a missing,
+    /// unknown or invalid field, named); [`ValueError::NotADistribution`] for INTEGER,
+    /// REAL, and TEXT that is not JSON at all.
     ///
     /// # Example
     /// ```
@@ -111,6 +133,11 @@ impl Dist {
     /// use rusqlite::types::ValueRef;
     /// assert_eq!(Dist::from_sql(ValueRef::Null, 1), Ok(None));
     /// assert!(Dist::from_sql(ValueRef::Integer(3), 1).is_err());
+    /// let m = r#"{"family": "exponential", "rate": 2}"#;
+    /// let d = Dist::from_sql(ValueRef::Text(m.as_bytes()), 1).unwrap().unwrap();
+    /// assert_eq!(d.mean(), Some(0.5));
+    /// let e = Dist::from_sql(ValueRef::Text(br#"{"family": "exponential"}"#), 2).unwrap_err();
+    /// assert!(e.to_string().starts_with(r#"argument 2 is not a valid model: model lacks the field "rate""#));
     /// ```
     pub fn from_sql(v: ValueRef<'_>, arg: usize) -> Result<Option<Dist>, ValueError> {
         match v {
@@ -118,10 +145,41 @@ impl Dist {
             ValueRef::Blob(b) => empirical::decode(b)
                 .map(|s| Some(Dist::Empirical(s)))
                 .map_err(|problem| ValueError::NotEmpirical { arg, problem }),
+            ValueRef::Text(t) => {
+                let text = std::str::from_utf8(t).map_err(|_| ValueError::NotADistribution {
+                    arg,
+                    got: describe(v),
+                })?;
+                match Model::parse(text) {
+                    Ok(m) => Ok(Some(Dist::Model(m))),
+                    // Not JSON at all: most likely not meant as a model.
+                    Err(ModelError::NotJson { .. }) => Err(ValueError::NotADistribution {
+                        arg,
+                        got: describe(v),
+                    }),
+                    Err(problem) => Err(ValueError::NotAModel { arg, problem }),
+                }
+            }
             other => Err(ValueError::NotADistribution {
                 arg,
                 got: describe(other),
             }),
+        }
+    }
+
+    /// The kind of distribution, for messages: `"an empirical distribution"` or
+    /// `"a <family> model"`.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::{Dist, model::Model};
+    /// let m = Model::from_parameters("gamma", r#"{"shape": 2, "scale": 1}"#).unwrap();
+    /// assert_eq!(Dist::Model(m).kind(), "a gamma model");
+    /// ```
+    pub fn kind(&self) -> String {
+        match self {
+            Dist::Empirical(_) => "an empirical distribution".to_string(),
+            Dist::Model(m) => m.kind(),
         }
     }
 
@@ -136,11 +194,14 @@ impl Dist {
     pub fn cdf(&self, t: f64) -> Option<f64> {
         match self {
             Dist::Empirical(s) => s.cdf(t),
+            Dist::Model(m) => Some(m.cdf(t)).filter(|c| !c.is_nan()),
         }
     }
 
     /// The p-quantile. For an empirical distribution, `ty` picks the Hyndman-Fan
-    /// definition. `Ok(None)` when undefined.
+    /// definition. A model's quantile is the inverse of its continuous cdf, the same under
+    /// every definition, so `ty` does not apply to it; at `p = 0` and `p = 1` it is the end
+    /// of the support, infinite where the support is unbounded. `Ok(None)` when undefined.
     ///
     /// # Errors
     /// [`StatsError::ProbabilityOutOfRange`] when `p` is not in `[0, 1]`.
@@ -148,18 +209,28 @@ impl Dist {
     /// # Example
     /// ```
     /// use ogive::{stats::quantile::QuantileType, stats::sample::Sample, value::Dist};
+    /// use ogive::value::model::Model;
     /// let d = Dist::Empirical(Sample::from_values(vec![1.0, 2.0, 3.0]).unwrap());
     /// assert_eq!(d.quantile(0.5, QuantileType::DEFAULT), Ok(Some(2.0)));
+    /// let m = Dist::Model(Model::from_parameters("normal", r#"{"mean": 2, "sd": 1}"#).unwrap());
+    /// assert_eq!(m.quantile(0.5, QuantileType::DEFAULT), Ok(Some(2.0)));
+    /// assert_eq!(m.quantile(1.0, QuantileType::DEFAULT), Ok(Some(f64::INFINITY)));
     /// ```
     pub fn quantile(&self, p: f64, ty: QuantileType) -> Result<Option<f64>, StatsError> {
         match self {
             Dist::Empirical(s) => s.quantile(p, ty),
+            Dist::Model(m) => {
+                let p = crate::stats::check_probability(p)?;
+                // With p checked, a model's quantile cannot fail.
+                Ok(m.quantile(p).ok().filter(|q| !q.is_nan()))
+            }
         }
     }
 
     /// A density evaluator. For an empirical distribution, the Gaussian kernel density
-    /// estimate with the given bandwidth. `None` when the density is undefined (for
-    /// example, a bandwidth rule on fewer than two distinct values).
+    /// estimate with the given bandwidth; for a model, its own density (the bandwidth does
+    /// not apply). `None` when the density is undefined (for example, a bandwidth rule on
+    /// fewer than two distinct values).
     ///
     /// # Example
     /// ```
@@ -172,25 +243,32 @@ impl Dist {
     pub fn density(&self, bandwidth: Bandwidth) -> Option<Density<'_>> {
         match self {
             Dist::Empirical(s) => Kde::new(s, bandwidth).map(Density::Kernel),
+            Dist::Model(m) => Some(Density::Model(m)),
         }
     }
 
-    /// The number of observations: n of an unweighted sample, or the total weight.
+    /// The number of observations: n of an unweighted sample, or the total weight; for a
+    /// fitted model, the number of values it was fitted to (its `n`), and `None` for a
+    /// model built from known parameters.
     ///
     /// # Example
     /// ```
-    /// use ogive::{stats::sample::Sample, value::{Dist, Size}};
+    /// use ogive::{stats::sample::Sample, value::{Dist, Size}, value::model::Model};
     /// let d = Dist::Empirical(Sample::from_pairs(vec![(1.0, 2.5)]).unwrap());
-    /// assert_eq!(d.size(), Size::Weight(2.5));
+    /// assert_eq!(d.size(), Some(Size::Weight(2.5)));
+    /// let m = Model::parse(r#"{"family": "exponential", "rate": 2, "n": 40}"#).unwrap();
+    /// assert_eq!(Dist::Model(m).size(), Some(Size::Count(40)));
     /// ```
-    pub fn size(&self) -> Size {
+    pub fn size(&self) -> Option<Size> {
         match self {
-            Dist::Empirical(s) if s.is_weighted() => Size::Weight(s.total_weight()),
-            Dist::Empirical(s) => Size::Count(s.len() as u64),
+            Dist::Empirical(s) if s.is_weighted() => Some(Size::Weight(s.total_weight())),
+            Dist::Empirical(s) => Some(Size::Count(s.len() as u64)),
+            Dist::Model(m) => m.n().map(Size::Count),
         }
     }
 
-    /// The mean. `None` when undefined (an infinite value, an overflow).
+    /// The mean (of a model, the mean of the distribution). `None` when undefined (an
+    /// infinite value, an overflow).
     ///
     /// # Example
     /// ```
@@ -201,12 +279,13 @@ impl Dist {
     pub fn mean(&self) -> Option<f64> {
         match self {
             Dist::Empirical(s) => Moments::of(s.values(), s.weights()).map(|m| m.mean),
+            Dist::Model(m) => m.mean(),
         }
     }
 
     /// The standard deviation; for an empirical distribution the sample one (divisor
-    /// n - 1, or W - 1 with weights). `None` when undefined (one observation, an infinite
-    /// value).
+    /// n - 1, or W - 1 with weights), for a model that of the distribution. `None` when
+    /// undefined (one observation, an infinite value, an overflow).
     ///
     /// # Example
     /// ```
@@ -217,10 +296,13 @@ impl Dist {
     pub fn sd(&self) -> Option<f64> {
         match self {
             Dist::Empirical(s) => Moments::of(s.values(), s.weights())?.sample_sd(),
+            Dist::Model(m) => m.sd(),
         }
     }
 
-    /// The numeric summary (mean, sd, quartiles, ...). `None` when undefined.
+    /// The numeric summary of a sample (mean, sd, quartiles, ...). `None` when undefined,
+    /// and for a model, which is not a sample (its moments and quantiles are
+    /// [`Dist::mean`], [`Dist::sd`] and [`Dist::quantile`]).
     ///
     /// # Example
     /// ```
@@ -231,6 +313,7 @@ impl Dist {
     pub fn profile(&self) -> Option<Profile> {
         match self {
             Dist::Empirical(s) => s.profile(),
+            Dist::Model(_) => None,
         }
     }
 }
@@ -249,13 +332,17 @@ pub enum Size {
 pub enum Density<'a> {
     /// A kernel density estimate of an empirical distribution.
     Kernel(Kde<'a>),
+    /// The density of a model.
+    Model(&'a Model),
 }
 
 impl Density<'_> {
-    /// The density at `t`.
+    /// The density at `t`: finite, or `+inf` at the pole of a gamma or Weibull model with
+    /// shape below 1. NaN only for NaN `t`.
     pub fn at(&self, t: f64) -> f64 {
         match self {
             Density::Kernel(k) => k.density(t),
+            Density::Model(m) => m.pdf(t),
         }
     }
 }
@@ -270,7 +357,13 @@ mod tests {
         let e = Dist::from_sql(ValueRef::Text(b"{\"family\": \"normal\"}"), 1).unwrap_err();
         assert_eq!(
             e.to_string(),
-            "argument 1 must be a distribution value (a BLOB from dist_empirical); got TEXT '{\"family\": \"normal\"}'"
+            "argument 1 is not a valid model: model lacks the field \"mean\" (required: mean, sd)"
+        );
+        let e = Dist::from_sql(ValueRef::Text(b"warm"), 1).unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "argument 1 must be a distribution value (a BLOB from dist_empirical, or model JSON \
+             from dist_fit, dist_mixture or dist_model); got TEXT 'warm'"
         );
         let e = Dist::from_sql(ValueRef::Blob(b"\x00\xff"), 2).unwrap_err();
         assert_eq!(

@@ -35,13 +35,17 @@ use std::fmt;
 use serde_json::{Map, Value, json};
 
 use crate::stats::StatsError;
-use crate::stats::fit::{Family, FitError, Parametric, ParametricFit};
+use crate::stats::fit::{Family, FitError, Parametric, ParametricFit, fit};
 use crate::stats::mixture::{
     Candidate, Component, MAX_COMPONENTS, Mixture, MixtureError, MixtureFit,
 };
 
 /// The family name of a Gaussian mixture.
 pub const MIXTURE_FAMILY: &str = "normal_mixture";
+
+/// How closely a model's parameters must match a refit in [`Model::check_fit_of`]:
+/// relative, with locations measured against the spread.
+pub const FIT_MATCH: f64 = 1e-9;
 
 /// Fit metadata every model may carry.
 const FIT_FIELDS: [&str; 4] = ["n", "loglik", "aic", "bic"];
@@ -81,6 +85,9 @@ pub enum ModelError {
     UnknownFamily(String),
     /// A probability outside `[0, 1]`.
     Probability(f64),
+    /// A model that is not the maximum-likelihood fit of the values it is checked against
+    /// ([`Model::check_fit_of`]); says how it differs.
+    NotTheFit(String),
 }
 
 impl fmt::Display for ModelError {
@@ -117,6 +124,11 @@ impl fmt::Display for ModelError {
                 Family::names()
             ),
             ModelError::Probability(p) => write!(f, "p must be between 0 and 1, got {p}"),
+            ModelError::NotTheFit(detail) => write!(
+                f,
+                "the model is not dist_fit's fit of these values ({detail}); the correction \
+                 holds only for the maximum-likelihood fit of the same data"
+            ),
         }
     }
 }
@@ -693,6 +705,19 @@ impl Model {
         }
     }
 
+    /// The kind of model, for messages: `"a gamma model"`.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::model::Model;
+    /// let m = Model::from_parameters("uniform", r#"{"min": 0, "max": 1}"#)?;
+    /// assert_eq!(m.kind(), "a uniform model");
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn kind(&self) -> String {
+        format!("a {} model", self.family_name())
+    }
+
     /// The distribution.
     ///
     /// # Example
@@ -732,34 +757,42 @@ impl Model {
         self.loglik
     }
 
-    /// The cumulative distribution function at `t`, in `[0, 1]`; NaN `t` gives NaN (SQL
-    /// adapters never pass NaN: they read it as NULL).
+    /// The cumulative distribution function at `t`, in `[0, 1]`: 0 at `-inf`, 1 at
+    /// `+inf`; NaN `t` gives NaN (SQL adapters never pass NaN: they read it as NULL).
     ///
     /// # Example
     /// ```
     /// use ogive::value::model::Model;
     /// let m = Model::from_parameters("exponential", r#"{"rate": 1}"#)?;
     /// assert_eq!(m.cdf(0.0), 0.0);
+    /// assert_eq!(m.cdf(f64::INFINITY), 1.0);
     /// # Ok::<(), ogive::value::model::ModelError>(())
     /// ```
     pub fn cdf(&self, t: f64) -> f64 {
+        if t.is_infinite() {
+            return if t > 0.0 { 1.0 } else { 0.0 };
+        }
         match &self.law {
             Law::Parametric(p) => p.cdf(t),
             Law::Mixture(m) => m.cdf(t),
         }
     }
 
-    /// The density at `t`; `+inf` at 0 for a gamma or Weibull with shape below 1; NaN
-    /// `t` gives NaN.
+    /// The density at `t`; `+inf` at 0 for a gamma or Weibull with shape below 1; 0 at
+    /// `-inf` and `+inf`; NaN `t` gives NaN.
     ///
     /// # Example
     /// ```
     /// use ogive::value::model::Model;
     /// let m = Model::from_parameters("uniform", r#"{"min": 0, "max": 4}"#)?;
     /// assert_eq!(m.pdf(1.0), 0.25);
+    /// assert_eq!(m.pdf(f64::NEG_INFINITY), 0.0);
     /// # Ok::<(), ogive::value::model::ModelError>(())
     /// ```
     pub fn pdf(&self, t: f64) -> f64 {
+        if t.is_infinite() {
+            return 0.0;
+        }
         match &self.law {
             Law::Parametric(p) => p.pdf(t),
             Law::Mixture(m) => m.pdf(t),
@@ -867,6 +900,63 @@ impl Model {
     }
 }
 
+impl Model {
+    /// Checks that this model is the maximum-likelihood fit that `dist_fit` makes of `xs`:
+    /// a parametric model whose `n` (when it has one) is the number of values and whose
+    /// parameters equal those of `fit(xs, family)` within [`FIT_MATCH`] relative (a
+    /// location, the normal mean, lognormal mu or uniform ends, within [`FIT_MATCH`] times
+    /// its size plus the spread). Tests whose null distribution assumes the parameters
+    /// were estimated from the same data (Lilliefors) use it to refuse any other model.
+    ///
+    /// # Errors
+    /// [`ModelError::NotTheFit`] saying what differs: a mixture, another `n`, values that
+    /// admit no fit of the family, or a parameter.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::fit::{Family, fit};
+    /// use ogive::value::model::Model;
+    /// let xs = [0.5, 1.5, 2.0, 4.0];
+    /// let m = Model::from(fit(&xs, Family::Exponential).unwrap());
+    /// assert!(m.check_fit_of(&xs).is_ok());
+    /// assert!(m.check_fit_of(&[0.5, 1.5, 2.0, 5.0]).is_err());
+    /// ```
+    pub fn check_fit_of(&self, xs: &[f64]) -> Result<(), ModelError> {
+        let Law::Parametric(p) = &self.law else {
+            return Err(ModelError::NotTheFit(format!(
+                "a {MIXTURE_FAMILY} is not a maximum-likelihood fit of one family"
+            )));
+        };
+        let family = p.family();
+        if let Some(n) = self.n
+            && n != xs.len() as u64
+        {
+            return Err(ModelError::NotTheFit(format!(
+                "it was fitted to {n} values, the sample has {}",
+                xs.len()
+            )));
+        }
+        let refit = fit(xs, family)
+            .map_err(|e| ModelError::NotTheFit(format!("the values admit no {family} fit: {e}")))?;
+        let theirs = refit.distribution.parameters();
+        let spread = match family {
+            Family::Normal | Family::LogNormal => theirs[1].1,
+            Family::Uniform => theirs[1].1 - theirs[0].1,
+            _ => 0.0,
+        };
+        for ((name, mine), (_, want)) in p.parameters().into_iter().zip(theirs) {
+            let location = matches!(name, "mean" | "mu" | "min" | "max");
+            let size = want.abs() + if location { spread } else { 0.0 };
+            if (mine - want).abs() > FIT_MATCH * size {
+                return Err(ModelError::NotTheFit(format!(
+                    "its {name} is {mine}; the fit of the sample gives {want}"
+                )));
+            }
+        }
+        Ok(())
+    }
+}
+
 impl fmt::Display for Model {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         f.write_str(&self.to_json())
@@ -950,6 +1040,63 @@ mod tests {
             e.to_string(),
             "params has an unknown field \"n\"; the fields of normal params are mean, sd"
         );
+    }
+
+    #[test]
+    fn evaluation_never_gives_nan() {
+        // Every family, with shapes on both sides of 1, at the ends of the support, the
+        // poles, far in the tails and at the infinities: cdf in [0, 1], pdf >= 0 (possibly
+        // +inf), no NaN.
+        let models = [
+            ("normal", r#"{"mean": 1, "sd": 2}"#),
+            ("lognormal", r#"{"mu": 0.5, "sigma": 1.5}"#),
+            ("exponential", r#"{"rate": 3}"#),
+            ("gamma", r#"{"shape": 0.5, "scale": 2}"#),
+            ("gamma", r#"{"shape": 1, "scale": 2}"#),
+            ("gamma", r#"{"shape": 4, "scale": 2}"#),
+            ("weibull", r#"{"shape": 0.5, "scale": 2}"#),
+            ("weibull", r#"{"shape": 1, "scale": 2}"#),
+            ("weibull", r#"{"shape": 3, "scale": 2}"#),
+            ("uniform", r#"{"min": -1, "max": 2}"#),
+            (
+                "normal_mixture",
+                r#"{"components": [{"weight": 0.3, "mean": 0, "sd": 1}, {"weight": 0.7, "mean": 9, "sd": 2}]}"#,
+            ),
+        ];
+        let ts = [
+            f64::NEG_INFINITY,
+            f64::MIN,
+            -1.0,
+            -f64::MIN_POSITIVE,
+            0.0,
+            f64::MIN_POSITIVE,
+            1.0,
+            2.0,
+            1e300,
+            f64::MAX,
+            f64::INFINITY,
+        ];
+        for (family, params) in models {
+            let m = Model::from_parameters(family, params).unwrap();
+            for t in ts {
+                let (c, d) = (m.cdf(t), m.pdf(t));
+                assert!(
+                    (0.0..=1.0).contains(&c),
+                    "{family} {params} cdf({t:e}) = {c}"
+                );
+                assert!(d >= 0.0, "{family} {params} pdf({t:e}) = {d}");
+            }
+            assert_eq!((m.cdf(f64::NEG_INFINITY), m.cdf(f64::INFINITY)), (0.0, 1.0));
+            for p in [0.0, 1e-300, 0.5, 1.0 - 1e-16, 1.0] {
+                assert!(!m.quantile(p).unwrap().is_nan(), "{family} quantile({p})");
+            }
+        }
+        // The poles: shape below 1 at 0 (scipy.stats.gamma(0.5, scale=2).pdf(0) and
+        // scipy.stats.weibull_min(0.5, scale=2).pdf(0) are inf).
+        for family in ["gamma", "weibull"] {
+            let m = Model::from_parameters(family, r#"{"shape": 0.5, "scale": 2}"#).unwrap();
+            assert_eq!(m.pdf(0.0), f64::INFINITY, "{family}");
+        }
     }
 
     #[test]

@@ -332,7 +332,7 @@ W = "(SELECT dist_empirical(column1, column2) FROM (VALUES (1, 1.5), (2, 1), (3,
         (f"SELECT dist_ks({D}, {D}, 'bigger')",
          "dist_ks: alternative must be 'two-sided', 'less' or 'greater', got 'bigger'"),
         (f"SELECT dist_ks({D}, {D}, 'less', 'bootstrap')",
-         "dist_ks: method must be 'auto', 'exact' or 'asymp', got 'bootstrap'"),
+         "dist_ks: method must be 'auto', 'exact', 'asymp' or 'lilliefors', got 'bootstrap'"),
         (f"SELECT dist_ks({W}, {D})",
          "dist_ks: argument 1 has the fractional weight 1.5; this test counts a weight as that "
          "many rows, so weights must be whole numbers"),

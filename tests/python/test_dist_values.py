@@ -560,8 +560,8 @@ def test_random_corruption_never_gives_an_answer(conn):
 @pytest.mark.parametrize(
     "sql, message",
     [
-        ("SELECT dist_cdf('abc', 1)", "dist_cdf: argument 1 must be a distribution value (a BLOB from dist_empirical); got TEXT 'abc'"),
-        ("SELECT dist_mean(3)", "dist_mean: argument 1 must be a distribution value (a BLOB from dist_empirical); got 3"),
+        ("SELECT dist_cdf('abc', 1)", "dist_cdf: argument 1 must be a distribution value (a BLOB from dist_empirical, or model JSON from dist_fit, dist_mixture or dist_model); got TEXT 'abc'"),
+        ("SELECT dist_mean(3)", "dist_mean: argument 1 must be a distribution value (a BLOB from dist_empirical, or model JSON from dist_fit, dist_mixture or dist_model); got 3"),
         ("SELECT dist_cdf(dist_empirical(column1), 'warm') FROM (VALUES (1))", "dist_cdf: t must be a number"),
         ("SELECT dist_quantile(dist_empirical(column1), 1.5) FROM (VALUES (1))", "dist_quantile: p must be between 0 and 1, got 1.5"),
         ("SELECT dist_quantile(dist_empirical(column1), 0.5, 0) FROM (VALUES (1))", "dist_quantile: type must be a whole number from 1 to 9"),

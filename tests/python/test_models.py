@@ -195,9 +195,10 @@ def test_nulls_and_empty_groups(conn):
          "dist_model: params field \"components\" must have weights that sum to 1, got 0.5"),
         ("SELECT dist_model('normal', 'mean=0')", "dist_model: params must be JSON text"),
         ("SELECT dist_component('{\"family\": \"normal\", \"mean\": 0}', 1)",
-         "dist_component: model lacks the field \"sd\" (required: mean, sd)"),
+         "dist_component: argument 1 is not a valid model: model lacks the field \"sd\" (required: mean, sd)"),
         ("SELECT dist_component('{\"family\": \"normal\", \"mean\": 0, \"sd\": 1, \"extra\": 1}', 1)",
-         "dist_component: model has an unknown field \"extra\"; the fields of a normal model are family, "
+         "dist_component: argument 1 is not a valid model: model has an unknown field \"extra\"; the fields "
+         "of a normal model are family, "
          "mean, sd, n, loglik, aic, bic"),
         ("SELECT * FROM dist_components('{\"family\": \"normal_mixture\", \"components\": []}')",
          "dist_components: model field \"components\" must be an array of 1 to 16 objects"),

@@ -1,0 +1,38 @@
+-- Two temperature regimes in the fleet's readings, found by a Gaussian mixture: steady
+-- cooling near the setpoint, and the warm excursions that open doors cause (the readings
+-- while a door is open and the recovery after it shuts). k = 2 asks for the two regimes;
+-- sql/checks/regimes.sql checks that two components beat one by BIC.
+
+-- The two regimes of the whole fleet: share of readings, mean and spread (dist_mixture, dist_components)
+WITH fit AS (SELECT dist_mixture(temp_c, 2) AS m FROM readings)
+SELECT c.component,
+       CASE c.component WHEN 1 THEN 'steady cooling' ELSE 'door-open excursions' END AS regime,
+       round(c.weight, 3) AS share,
+       round(c.mean, 2) AS mean_c,
+       round(c.sd, 2) AS sd_c
+FROM fit, dist_components(fit.m) AS c
+ORDER BY c.component;
+
+-- Each reading labelled with its more probable regime, against what the logger recorded (dist_component)
+WITH fit AS (SELECT dist_mixture(temp_c, 2) AS m FROM readings)
+SELECT CASE dist_component(fit.m, r.temp_c) WHEN 1 THEN 'steady cooling'
+                                            ELSE 'door-open excursions' END AS regime,
+       count(*) AS readings,
+       round(avg(r.door_open), 3) AS share_door_open,
+       round(avg(r.route IS NOT NULL), 3) AS share_on_route,
+       round(min(r.temp_c), 1) AS min_c,
+       round(max(r.temp_c), 1) AS max_c
+FROM readings AS r, fit
+WHERE r.temp_c IS NOT NULL
+GROUP BY dist_component(fit.m, r.temp_c)
+ORDER BY 1 DESC;
+
+-- Share of each trailer's readings in the excursion regime: the failing unit stands out
+WITH fit AS (SELECT dist_mixture(temp_c, 2) AS m FROM readings)
+SELECT r.trailer,
+       t.depot,
+       round(avg(dist_component(fit.m, r.temp_c) = 2), 3) AS share_in_excursions
+FROM readings AS r JOIN trailers AS t USING (trailer), fit
+WHERE r.temp_c IS NOT NULL
+GROUP BY r.trailer
+ORDER BY share_in_excursions DESC;
