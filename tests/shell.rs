@@ -753,15 +753,21 @@ impl Tmux {
     }
 
     fn wait_for(&self, what: &str) -> String {
+        self.wait_for_count(what, 1)
+    }
+
+    /// Waits until `what` shows at least `n` times. Waiting for the n-th prompt before
+    /// typing matters: keys typed while the line editor is not in raw mode can be lost.
+    fn wait_for_count(&self, what: &str, n: usize) -> String {
         let start = Instant::now();
         loop {
             let screen = self.screen();
-            if screen.contains(what) {
+            if screen.matches(what).count() >= n {
                 return screen;
             }
             assert!(
-                start.elapsed() < Duration::from_secs(15),
-                "the screen never showed {what:?}:\n{screen}"
+                start.elapsed() < Duration::from_secs(30),
+                "the screen never showed {what:?} {n} times:\n{screen}"
             );
             std::thread::sleep(Duration::from_millis(50));
         }
@@ -802,22 +808,29 @@ fn a_session_at_the_prompt_runs_a_query_cancels_one_and_leaves() {
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
-    tmux.wait_for("ogive:memory ▸");
+    const PROMPT: &str = "ogive:memory ▸";
+    tmux.wait_for_count(PROMPT, 1);
 
     // A two-line query: the continuation prompt, then the table.
     tmux.line("SELECT quantile(column1, 0.5) AS median");
+    // Wait for the continuation prompt: keys typed before the line editor is back in raw
+    // mode can be discarded by the terminal.
+    tmux.wait_for("┆");
     tmux.line("FROM (VALUES (1), (2), (7));");
     let screen = tmux.wait_for("1 row");
     assert!(screen.contains(" median"), "{screen}");
     assert!(screen.contains("    2.0"), "{screen}");
+    tmux.wait_for_count(PROMPT, 2);
 
     // The shell's own words.
     tmux.line("functions ecdf");
     tmux.wait_for("ecdf(x, t [, w])  (window, 2 or 3 arguments)");
+    tmux.wait_for_count(PROMPT, 3);
     tmux.line("format csv");
-    tmux.wait_for("format csv");
+    tmux.wait_for_count(PROMPT, 4);
     tmux.line("SELECT 6 * 7 AS answer;");
     tmux.wait_for("answer\n42");
+    tmux.wait_for_count(PROMPT, 5);
 
     // A statement that runs until cancelled: elapsed time after a second, then Ctrl-C.
     tmux.line(
@@ -826,6 +839,7 @@ fn a_session_at_the_prompt_runs_a_query_cancels_one_and_leaves() {
     tmux.wait_for("running for");
     tmux.cmd(&["send-keys", "C-c"]);
     tmux.wait_for("cancelled after");
+    tmux.wait_for_count(PROMPT, 6);
 
     tmux.line("bye");
     let screen = tmux.wait_for("ogive exited with");
