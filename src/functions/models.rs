@@ -5,24 +5,18 @@
 //! [`crate::stats::fit`], [`crate::stats::mixture`] and [`crate::value::model`]. NULL x
 //! is skipped; a group with no non-NULL x gives NULL. Models travel as JSON text.
 
-use std::borrow::Cow;
-use std::ffi::{CStr, c_int};
-use std::marker::PhantomData;
-use std::panic::{AssertUnwindSafe, catch_unwind};
+use std::ffi::CStr;
 
-use rusqlite::ffi;
 use rusqlite::functions::{Aggregate, Context};
 use rusqlite::types::{Value, ValueRef};
-use rusqlite::vtab::{
-    Context as VTabContext, Filters, IndexConstraintOp, IndexInfo, Module, VTab, VTabConfig,
-    VTabConnection, VTabCursor,
-};
+use rusqlite::vtab::Module;
 
 use super::args::{ArgError, Constant, fail, number, text, whole};
 use super::dist::dist_arg;
+use super::table::{Table, TableFunction};
 use super::{FunctionDef, Kind, aggregate, flags};
 use crate::stats::fit::{Family, fit};
-use crate::stats::mixture::{Component, MAX_COMPONENTS, MixtureError, fit_mixture};
+use crate::stats::mixture::{MAX_COMPONENTS, MixtureError, fit_mixture};
 use crate::value::Dist;
 use crate::value::model::Model;
 
@@ -121,7 +115,10 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                   '{\"components\": [{\"weight\": 0.25, \"mean\": 0, \"sd\": 1}, {\"weight\": \
                   0.75, \"mean\": 5, \"sd\": 2}]}'))",
         example_result: "3.75",
-        register: |c, d| c.create_module(d.name, &COMPONENTS_MODULE, None),
+        register: |c, _| {
+            const M: Module<Table<Components>> = Module::eponymous_only_module();
+            c.create_module(Components::NAME, &M, None)
+        },
     },
 ];
 
@@ -278,169 +275,44 @@ fn dist_component(ctx: &rusqlite::functions::Context<'_>) -> Result<Value> {
 }
 
 // ---------------------------------------------------------------------------------------
-// dist_components(model): an eponymous virtual table
+// dist_components(model): a table-valued function on the shared virtual-table layer
 
-const NAME_COMPONENTS: &str = "dist_components";
-/// The module; `&COMPONENTS_MODULE` is promoted to a `'static` that SQLite keeps.
-const COMPONENTS_MODULE: Module<'static, ComponentsTab> = Module::eponymous_only_module();
-/// Column index of the hidden `model` argument.
-const MODEL_COLUMN: c_int = 4;
+/// `dist_components(model)`: one row per component (a parametric model is one component).
+pub(crate) struct Components;
 
-/// Runs a virtual-table method body with panics caught: rusqlite does not catch them
-/// there, and a panic must never unwind into SQLite.
-fn guarded<T>(body: impl FnOnce() -> Result<T>) -> Result<T> {
-    catch_unwind(AssertUnwindSafe(body)).unwrap_or_else(|_| {
-        Err(rusqlite::Error::ModuleError(format!(
-            "{NAME_COMPONENTS}: internal error"
-        )))
-    })
-}
+impl TableFunction for Components {
+    const NAME: &'static str = "dist_components";
+    const SCHEMA: &'static CStr =
+        c"CREATE TABLE x(component INTEGER, weight REAL, mean REAL, sd REAL, model HIDDEN)";
+    const COLUMNS: usize = 4;
+    const ARGS: &'static [&'static str] = &["model"];
+    const REQUIRED: usize = 1;
+    const SIGNATURE: &'static str = "dist_components(model)";
 
-/// The `dist_components` virtual table.
-#[repr(C)]
-pub struct ComponentsTab {
-    /// Base class; must be first.
-    base: ffi::sqlite3_vtab,
-}
-
-unsafe impl<'vtab> VTab<'vtab> for ComponentsTab {
-    type Aux = ();
-    type Cursor = ComponentsCursor<'vtab>;
-
-    fn connect(
-        db: &mut VTabConnection,
-        _aux: Option<&()>,
-        _module_name: &[u8],
-        _database_name: &[u8],
-        _table_name: &[u8],
-        _args: &[&[u8]],
-    ) -> Result<(Cow<'static, CStr>, Self)> {
-        guarded(|| {
-            db.config(VTabConfig::Innocuous)?;
-            Ok((
-                Cow::Borrowed(c"CREATE TABLE x(component INTEGER, weight REAL, mean REAL, sd REAL, model HIDDEN)"),
-                ComponentsTab {
-                    base: ffi::sqlite3_vtab::default(),
-                },
-            ))
-        })
-    }
-
-    fn best_index(&self, info: &mut IndexInfo) -> Result<bool> {
-        guarded(|| {
-            let mut usable = None;
-            let mut unusable = false;
-            for (i, c) in info.constraints().enumerate() {
-                if c.column() != MODEL_COLUMN
-                    || c.operator() != IndexConstraintOp::SQLITE_INDEX_CONSTRAINT_EQ
-                {
-                    continue;
-                }
-                if c.is_usable() {
-                    usable = Some(i);
-                } else {
-                    unusable = true;
-                }
+    fn rows(args: &[Option<ValueRef<'_>>]) -> Result<Vec<Value>> {
+        let arg = args.first().copied().flatten().unwrap_or(ValueRef::Null);
+        let Some(model) = read_model(arg).map_err(|e| fail(Self::NAME, e))? else {
+            return Ok(Vec::new());
+        };
+        let finite = |v: f64| {
+            if v.is_finite() {
+                Value::Real(v)
+            } else {
+                Value::Null
             }
-            match usable {
-                Some(i) => {
-                    let mut u = info.constraint_usage(i);
-                    u.set_argv_index(1);
-                    u.set_omit(true);
-                    info.set_idx_num(1);
-                    info.set_estimated_cost(1.0);
-                    info.set_estimated_rows(MAX_COMPONENTS as i64);
-                }
-                // The model comes from a table not yet scanned: ask SQLite for another
-                // join order.
-                None if unusable => {
-                    return Err(rusqlite::Error::SqliteFailure(
-                        ffi::Error::new(ffi::SQLITE_CONSTRAINT),
-                        None,
-                    ));
-                }
-                None => {
-                    info.set_idx_num(0);
-                    info.set_estimated_cost(1e12);
-                }
-            }
-            Ok(true)
-        })
-    }
-
-    fn open(&'vtab mut self) -> Result<ComponentsCursor<'vtab>> {
-        guarded(|| {
-            Ok(ComponentsCursor {
-                base: ffi::sqlite3_vtab_cursor::default(),
-                rows: Vec::new(),
-                at: 0,
-                phantom: PhantomData,
+        };
+        Ok(model
+            .components()
+            .into_iter()
+            .enumerate()
+            .flat_map(|(i, c)| {
+                [
+                    Value::Integer(i as i64 + 1),
+                    Value::Real(c.weight),
+                    finite(c.mean),
+                    finite(c.sd),
+                ]
             })
-        })
-    }
-}
-
-/// A cursor over one model's components.
-#[repr(C)]
-pub struct ComponentsCursor<'vtab> {
-    /// Base class; must be first.
-    base: ffi::sqlite3_vtab_cursor,
-    rows: Vec<Component>,
-    at: usize,
-    phantom: PhantomData<&'vtab ComponentsTab>,
-}
-
-unsafe impl VTabCursor for ComponentsCursor<'_> {
-    fn filter(&mut self, idx_num: c_int, _idx_str: Option<&str>, args: &Filters<'_>) -> Result<()> {
-        guarded(|| {
-            self.rows.clear();
-            self.at = 0;
-            if idx_num != 1 || args.is_empty() {
-                return Err(fail(
-                    NAME_COMPONENTS,
-                    ArgError::BadJson {
-                        what: "model",
-                        detail: "is required, as in SELECT * FROM dist_components(dist_mixture(x))"
-                            .to_string(),
-                    },
-                ));
-            }
-            let model = read_model(args[0].get_raw()).map_err(|e| fail(NAME_COMPONENTS, e))?;
-            if let Some(m) = model {
-                self.rows = m.components();
-            }
-            Ok(())
-        })
-    }
-
-    fn next(&mut self) -> Result<()> {
-        guarded(|| {
-            self.at = self.at.saturating_add(1);
-            Ok(())
-        })
-    }
-
-    fn eof(&self) -> bool {
-        catch_unwind(AssertUnwindSafe(|| self.at >= self.rows.len())).unwrap_or(true)
-    }
-
-    fn column(&self, ctx: &mut VTabContext, i: c_int) -> Result<()> {
-        guarded(|| {
-            let Some(c) = self.rows.get(self.at) else {
-                return ctx.set_result(rusqlite::types::Null);
-            };
-            let finite = |v: f64| v.is_finite().then_some(v);
-            match i {
-                0 => ctx.set_result(self.at as i64 + 1),
-                1 => ctx.set_result(c.weight),
-                2 => ctx.set_result(finite(c.mean)),
-                3 => ctx.set_result(finite(c.sd)),
-                _ => ctx.set_result(rusqlite::types::Null),
-            }
-        })
-    }
-
-    fn rowid(&self) -> Result<i64> {
-        guarded(|| Ok(self.at as i64 + 1))
+            .collect())
     }
 }

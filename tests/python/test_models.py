@@ -202,7 +202,7 @@ def test_nulls_and_empty_groups(conn):
          "mean, sd, n, loglik, aic, bic"),
         ("SELECT * FROM dist_components('{\"family\": \"normal_mixture\", \"components\": []}')",
          "dist_components: model field \"components\" must be an array of 1 to 16 objects"),
-        ("SELECT * FROM dist_components", "dist_components: model is required"),
+        ("SELECT * FROM dist_components", "dist_components: give the arguments, as in dist_components(model)"),
     ],
 )
 def test_bad_input_gives_named_errors(conn, sql, message):
