@@ -56,7 +56,10 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                bic}]}. Without k, every k from 1 to 6 (at most the number of distinct values, \
                and with n >= 3k - 1) is fitted and the least BIC wins; k_candidates lists them \
                all. Ten seeded starts per k: the same data always gives the same fit. Component \
-               variances are floored at 1e-6 times the data's variance. k must be the same on \
+               variances are floored at 1e-6 times the data's variance. On values rounded to a \
+               coarse grid (0.1 degC readings, whole milliseconds) the likelihood of a continuous \
+               density rewards narrow components sitting on single grid values, so BIC can pick \
+               a k with such spikes: give k explicitly there. k must be the same on \
                every row of a group; NULL x is skipped; NULL k or no rows gives NULL. Errors: k \
                outside 1..16; fewer than 3k - 1 values; fewer than k distinct values; all values \
                equal; an infinite value.",
