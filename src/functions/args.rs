@@ -186,6 +186,27 @@ pub fn fail(function: &'static str, error: impl Into<ArgError>) -> rusqlite::Err
     }))
 }
 
+/// [`fail`] for the callbacks that SQLite calls directly (`functions::raw`): sets the
+/// context's result to the same error, with the same message and code, that rusqlite
+/// reports for the error [`fail`] returns.
+///
+/// # Safety
+/// `ctx` must be the context of the running SQLite callback.
+pub unsafe fn fail_raw(
+    ctx: *mut rusqlite::ffi::sqlite3_context,
+    function: &'static str,
+    error: impl Into<ArgError>,
+) {
+    let message = fail(function, error).to_string();
+    let len = std::ffi::c_int::try_from(message.len()).unwrap_or(std::ffi::c_int::MAX);
+    // SAFETY: per the contract; SQLite copies the message (it is not NUL-terminated, so
+    // its length is given).
+    unsafe {
+        rusqlite::ffi::sqlite3_result_error_code(ctx, rusqlite::ffi::SQLITE_CONSTRAINT_FUNCTION);
+        rusqlite::ffi::sqlite3_result_error(ctx, message.as_ptr().cast(), len);
+    }
+}
+
 /// A numeric argument: NULL gives `None`; INTEGER and REAL convert to `f64`; TEXT that
 /// reads as a number in full (surrounding spaces allowed) is accepted, as SQLite's numeric
 /// affinity would; other TEXT and any BLOB are errors. SQLite has no NaN, so a NaN REAL
