@@ -192,6 +192,8 @@ pub fn fail(function: &'static str, error: impl Into<ArgError>) -> rusqlite::Err
 ///
 /// # Safety
 /// `ctx` must be the context of the running SQLite callback.
+#[cold]
+#[inline(never)]
 pub unsafe fn fail_raw(
     ctx: *mut rusqlite::ffi::sqlite3_context,
     function: &'static str,
@@ -217,19 +219,26 @@ pub fn number(v: ValueRef<'_>, what: &'static str) -> Result<Option<f64>, ArgErr
         ValueRef::Real(r) => Ok((!r.is_nan()).then_some(r)),
         ValueRef::Integer(i) => Ok(Some(i as f64)),
         ValueRef::Null => Ok(None),
+        ValueRef::Text(_) | ValueRef::Blob(_) => number_from_text(v, what),
+    }
+}
+
+/// The rare branch of [`number`], kept out of line so the per-row path stays small.
+#[cold]
+#[inline(never)]
+fn number_from_text(v: ValueRef<'_>, what: &'static str) -> Result<Option<f64>, ArgError> {
+    let shown = || ArgError::NotNumeric {
+        what,
+        shown: show(v),
+    };
+    match v {
         ValueRef::Text(t) => std::str::from_utf8(t)
             .ok()
             .and_then(|s| s.trim().parse::<f64>().ok())
             .filter(|x| !x.is_nan())
             .map(Some)
-            .ok_or_else(|| ArgError::NotNumeric {
-                what,
-                shown: show(v),
-            }),
-        ValueRef::Blob(_) => Err(ArgError::NotNumeric {
-            what,
-            shown: show(v),
-        }),
+            .ok_or_else(shown),
+        _ => Err(shown()),
     }
 }
 

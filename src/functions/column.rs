@@ -142,7 +142,7 @@ fn chosen_type(ctx_len_had_type: bool, seen: &Constant<i64>) -> Option<QuantileT
 }
 
 /// Reads a probability argument that must be constant per group.
-#[inline]
+#[inline(always)]
 fn read_p(v: ValueRef<'_>, seen: &mut Constant<f64>) -> std::result::Result<(), ArgError> {
     let p = number(v, "p")?;
     if seen.observe(p, "p")?

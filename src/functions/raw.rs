@@ -42,7 +42,7 @@ impl Args<'_> {
     }
 
     /// Argument `i` as a [`ValueRef`]; a missing argument reads as NULL.
-    #[inline]
+    #[inline(always)]
     pub(crate) fn get(&self, i: usize) -> ValueRef<'_> {
         let Some(&v) = self.argv.get(i) else {
             return ValueRef::Null;
@@ -61,7 +61,7 @@ impl Args<'_> {
     }
 
     /// Argument `i` as a number, by [`args::number`].
-    #[inline]
+    #[inline(always)]
     pub(crate) fn number(&self, i: usize, what: &'static str) -> Result<Option<f64>, ArgError> {
         args::number(self.get(i), what)
     }
@@ -137,6 +137,7 @@ pub(crate) fn window<S: RawWindow>(
 ///
 /// # Safety
 /// `ctx` must be the context of an aggregate or window callback.
+#[inline(always)]
 unsafe fn slot<S: RawWindow>(ctx: *mut sqlite3_context, create: bool) -> Option<*mut *mut S> {
     let size = if create {
         size_of::<*mut S>() as c_int
@@ -161,19 +162,25 @@ unsafe fn slot<S: RawWindow>(ctx: *mut sqlite3_context, create: bool) -> Option<
 ///
 /// # Safety
 /// `ctx` must be the context of the running callback.
+#[inline(always)]
 unsafe fn report<T>(
     ctx: *mut sqlite3_context,
     name: &'static str,
     r: std::thread::Result<Result<T, ArgError>>,
 ) -> Option<T> {
-    let e = match r {
-        Ok(Ok(v)) => return Some(v),
-        Ok(Err(e)) => e,
-        Err(_) => ArgError::Internal("a panic was caught".to_string()),
-    };
-    // SAFETY: per the contract.
-    unsafe { args::fail_raw(ctx, name, e) };
-    None
+    match r {
+        Ok(Ok(v)) => Some(v),
+        Ok(Err(e)) => {
+            // SAFETY: per the contract.
+            unsafe { args::fail_raw(ctx, name, e) };
+            None
+        }
+        Err(_) => {
+            // SAFETY: per the contract.
+            unsafe { args::fail_raw(ctx, name, ArgError::Internal("a panic was caught".into())) };
+            None
+        }
+    }
 }
 
 /// Sets the result to `x`, NULL for `None`.
@@ -194,12 +201,12 @@ unsafe fn answer(ctx: *mut sqlite3_context, x: Option<f64>) {
 ///
 /// # Safety
 /// SQLite's contract for xStep/xInverse: `argv` holds `argc` values.
-#[inline]
+#[inline(always)]
 unsafe fn on_row<S: RawWindow>(
     ctx: *mut sqlite3_context,
     argc: c_int,
     argv: *mut *mut sqlite3_value,
-    body: fn(&mut S, &Args<'_>) -> Result<(), ArgError>,
+    body: impl FnOnce(&mut S, &Args<'_>) -> Result<(), ArgError>,
 ) {
     // SAFETY: per the contract.
     unsafe {
