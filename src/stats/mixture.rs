@@ -618,6 +618,10 @@ struct Data {
     x: Vec<f64>,
     /// Their counts.
     count: Vec<f64>,
+    /// `prefix_count[i]`: the count of points before `i` (length m + 1).
+    prefix_count: Vec<f64>,
+    /// `prefix_sum[i]`: the sum of count times value of the points before `i`.
+    prefix_sum: Vec<f64>,
     /// Total count n.
     total: f64,
     /// Mean and standard deviation used to standardise.
@@ -658,9 +662,22 @@ impl Data {
         for v in &mut x {
             *v = (*v - centre) / scale;
         }
+        let mut prefix_count = Vec::with_capacity(x.len() + 1);
+        let mut prefix_sum = Vec::with_capacity(x.len() + 1);
+        let (mut pc, mut ps) = (0.0, NeumaierSum::default());
+        prefix_count.push(0.0);
+        prefix_sum.push(0.0);
+        for (&v, &c) in x.iter().zip(&count) {
+            pc += c;
+            ps.add(c * v);
+            prefix_count.push(pc);
+            prefix_sum.push(ps.value());
+        }
         Ok(Data {
             x,
             count,
+            prefix_count,
+            prefix_sum,
             total,
             centre,
             scale,
@@ -824,47 +841,55 @@ impl Data {
         let mut s0 = [NeumaierSum::default(); MAX_COMPONENTS];
         let mut s1 = [NeumaierSum::default(); MAX_COMPONENTS];
         let mut s2 = [NeumaierSum::default(); MAX_COMPONENTS];
-        let mut a = [0.0; MAX_COMPONENTS];
+        // The block is worked component by component over arrays, so that the compiler
+        // can run the exponentials of several points at once.
+        let mut e = [[0.0; BLOCK]; MAX_COMPONENTS];
         for (xs, cs) in self.x.chunks(BLOCK).zip(self.count.chunks(BLOCK)) {
+            let len = xs.len();
+            let mut top = [f64::NEG_INFINITY; BLOCK];
+            for j in 0..k {
+                let (mean, norm, prec) = (p.mean[j], log_norm[j], precision[j]);
+                for ((ej, t), &x) in e[j][..len].iter_mut().zip(&mut top).zip(xs) {
+                    let d = x - mean;
+                    *ej = norm - 0.5 * d * d * prec;
+                    *t = t.max(*ej);
+                }
+            }
+            let mut total = [0.0; BLOCK];
+            for ej in e.iter_mut().take(k) {
+                for ((v, t), sum) in ej[..len].iter_mut().zip(&top).zip(&mut total) {
+                    *v = exp_nonpositive(*v - t);
+                    *sum += *v;
+                }
+            }
             let mut b_ll = 0.0;
             // The product of the normalisers of single points: one logarithm per block
             // instead of one per point.
             let mut product = 1.0;
-            let mut b0 = [0.0; MAX_COMPONENTS];
-            let mut b1 = [0.0; MAX_COMPONENTS];
-            let mut b2 = [0.0; MAX_COMPONENTS];
-            for (&x, &c) in xs.iter().zip(cs) {
-                let mut top = f64::NEG_INFINITY;
-                for j in 0..k {
-                    let d = x - p.mean[j];
-                    a[j] = log_norm[j] - 0.5 * d * d * precision[j];
-                    top = top.max(a[j]);
-                }
-                let mut total = 0.0;
-                for aj in a.iter_mut().take(k) {
-                    *aj = (*aj - top).exp();
-                    total += *aj;
-                }
+            let mut share = [0.0; BLOCK];
+            for (((&c, &t), &sum), sh) in cs.iter().zip(&top).zip(&total).zip(&mut share) {
                 if c == 1.0 {
-                    b_ll += top;
-                    product *= total;
+                    b_ll += t;
+                    product *= sum;
                 } else {
-                    b_ll += c * (top + total.ln());
+                    b_ll += c * (t + sum.ln());
                 }
-                let share = c / total;
-                for j in 0..k {
-                    let r = a[j] * share;
-                    let d = x - p.mean[j];
-                    b0[j] += r;
-                    b1[j] += r * d;
-                    b2[j] += r * d * d;
-                }
+                *sh = c / sum;
             }
             loglik.add(b_ll + product.ln());
             for j in 0..k {
-                s0[j].add(b0[j]);
-                s1[j].add(b1[j]);
-                s2[j].add(b2[j]);
+                let mean = p.mean[j];
+                let (mut b0, mut b1, mut b2) = (0.0, 0.0, 0.0);
+                for ((&v, &sh), &x) in e[j][..len].iter().zip(&share).zip(xs) {
+                    let r = v * sh;
+                    let d = x - mean;
+                    b0 += r;
+                    b1 += r * d;
+                    b2 += r * d * d;
+                }
+                s0[j].add(b0);
+                s1[j].add(b1);
+                s2[j].add(b2);
             }
         }
         let mut next = *p;
@@ -964,38 +989,99 @@ impl Data {
                 *di = if di.is_infinite() { v } else { di.min(v) };
             }
         }
-        let mut label = vec![0usize; m];
+        // Lloyd's iterations. On sorted points each centre's part is a run of consecutive
+        // points, so an iteration finds the k - 1 boundaries by binary search and the
+        // parts' sums from prefix sums: O(k log m) instead of O(k m).
+        let mut bounds = [0usize; MAX_COMPONENTS + 1];
+        let mut order = [0usize; MAX_COMPONENTS];
+        let mut previous: Option<[usize; MAX_COMPONENTS + 1]> = None;
         for _ in 0..100 {
-            let mut changed = false;
-            for (i, &x) in self.x.iter().enumerate() {
-                let mut best = 0;
-                for j in 1..k {
-                    if (x - centres[j]).abs() < (x - centres[best]).abs() {
-                        best = j;
-                    }
-                }
-                if label[i] != best {
-                    label[i] = best;
-                    changed = true;
+            self.lloyd_parts(&centres[..k], &mut order[..k], &mut bounds[..=k]);
+            for (s, &j) in order[..k].iter().enumerate() {
+                let (lo, hi) = (bounds[s], bounds[s + 1]);
+                let s0 = self.prefix_count[hi] - self.prefix_count[lo];
+                if s0 > 0.0 {
+                    centres[j] = (self.prefix_sum[hi] - self.prefix_sum[lo]) / s0;
                 }
             }
-            let mut s0 = [0.0; MAX_COMPONENTS];
-            let mut s1 = [0.0; MAX_COMPONENTS];
-            for ((&x, &c), &j) in self.x.iter().zip(&self.count).zip(&label) {
-                s0[j] += c;
-                s1[j] += c * x;
-            }
-            for j in 0..k {
-                if s0[j] > 0.0 {
-                    centres[j] = s1[j] / s0[j];
-                }
-            }
-            if !changed {
+            if previous == Some(bounds) {
                 break;
             }
+            previous = Some(bounds);
+        }
+        let mut label = vec![0usize; m];
+        for (s, &j) in order[..k].iter().enumerate() {
+            label[bounds[s]..bounds[s + 1]].fill(j);
         }
         self.partition_params(k, &label)
     }
+
+    /// The parts of one Lloyd step: each point goes to its nearest centre (the first by
+    /// index among equally near ones), so on sorted points, with the centres in increasing
+    /// order (`order`, ties by index), part `s` is `bounds[s]..bounds[s + 1]`.
+    fn lloyd_parts(&self, centres: &[f64], order: &mut [usize], bounds: &mut [usize]) {
+        for (s, o) in order.iter_mut().enumerate() {
+            *o = s;
+        }
+        order.sort_by(|&a, &b| centres[a].total_cmp(&centres[b]).then(a.cmp(&b)));
+        bounds[0] = 0;
+        for s in 1..order.len() {
+            let (a, b) = (order[s - 1], order[s]);
+            let (ca, cb) = (centres[a], centres[b]);
+            // Moving right, a point turns from nearer to a to nearer to b once; the
+            // comparison is the one a direct scan makes.
+            let prefers_b = |x: f64| {
+                let (da, db) = ((x - ca).abs(), (x - cb).abs());
+                db < da || (db == da && b < a)
+            };
+            let start = bounds[s - 1];
+            bounds[s] = start + self.x[start..].partition_point(|&x| !prefers_b(x));
+        }
+        bounds[order.len()] = self.x.len();
+    }
+}
+
+/// `exp(x)` for `x <= 0`, inlined so that loops over arrays vectorise: `x = n ln 2 + r`
+/// with `|r| <= ln 2 / 2` (Cody and Waite's two-part ln 2), `exp(r)` by its Taylor
+/// series to degree 13 (truncation below 4e-18 relative), scaled by `2^n` through the
+/// exponent bits. Within a few units in the last place of the exact value; below
+/// `-708` (where `exp` nears the smallest normal number) it returns `exp(-708)`, which
+/// next to the term `exp(0) = 1` that every use adds is nothing.
+#[inline(always)]
+fn exp_nonpositive(x: f64) -> f64 {
+    const LN2_HI: f64 = 6.931_471_803_691_238_2e-1;
+    const LN2_LO: f64 = 1.908_214_929_270_587_7e-10;
+    // 1.5 * 2^52: adding it rounds to an integer held in the low bits of the mantissa.
+    const SHIFTER: f64 = 6_755_399_441_055_744.0;
+    let x = x.max(-708.0);
+    let t = x * std::f64::consts::LOG2_E + SHIFTER;
+    let n = t - SHIFTER;
+    let r = (x - n * LN2_HI) - n * LN2_LO;
+    let mut poly = 1.0 / 6_227_020_800.0;
+    for d in [
+        479_001_600.0,
+        39_916_800.0,
+        3_628_800.0,
+        362_880.0,
+        40_320.0,
+        5_040.0,
+        720.0,
+        120.0,
+        24.0,
+        6.0,
+        2.0,
+        1.0,
+        1.0,
+    ] {
+        poly = poly * r + 1.0 / d;
+    }
+    let scale = f64::from_bits(
+        (t.to_bits()
+            .wrapping_sub(SHIFTER.to_bits())
+            .wrapping_add(1023))
+            << 52,
+    );
+    poly * scale
 }
 
 /// `sum count_i f(x_i)`, compensated.
@@ -1055,6 +1141,20 @@ mod tests {
         assert!((c.sd - p[1].1).abs() < 1e-12 * p[1].1);
         assert!((m.loglik - f.loglik).abs() < 1e-12 * f.loglik.abs());
         assert_eq!(c.weight, 1.0);
+    }
+
+    #[test]
+    fn fast_exp_is_within_a_few_ulps_of_libm() {
+        // Reference: Rust's f64::exp (the platform libm), over [-745, 0].
+        let mut worst = 0.0f64;
+        for i in 0..=200_000 {
+            let x = -708.0 * f64::from(i) / 200_000.0;
+            let (got, want) = (exp_nonpositive(x), x.exp());
+            worst = worst.max(((got - want) / want).abs());
+        }
+        assert!(worst <= 4.0 * f64::EPSILON, "{worst:e}");
+        assert_eq!(exp_nonpositive(0.0), 1.0);
+        assert!(exp_nonpositive(f64::NEG_INFINITY) <= 1e-307);
     }
 
     #[test]
