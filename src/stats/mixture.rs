@@ -38,7 +38,14 @@
 //!   same input always gives the same fit; identical starts run once. Every start runs
 //!   12 passes; the two best continue to the comparison tolerance and the better one
 //!   wins (the "short EM" strategy of Biernacki, Celeux and Govaert 2003, "Choosing starting values
-//!   for the EM algorithm", CSDA 41).
+//!   for the EM algorithm", CSDA 41). Above 65,536 distinct values the starts are ranked
+//!   and the finalists compared on a thinned copy (consecutive sorted values merged into
+//!   their mean, at most 65,536 of them, total count kept), and the winner then runs on
+//!   all the values (for a given k; with k chosen by BIC, each candidate's winner does).
+//! - **Cost.** Lloyd's iterations on sorted values find each part's boundaries by binary
+//!   search and its sums from prefix sums; an EM pass works a block of values one
+//!   component at a time over arrays, with an inlined exponential the compiler can
+//!   vectorise.
 //! - Components are reported sorted by mean.
 //!
 //! # Errors and NaN policy
@@ -81,6 +88,9 @@ const MAX_ITERATIONS: u32 = 10_000;
 /// Number of k-means++ starts (besides the quantile start) and of finalists.
 const KMEANS_STARTS: u64 = 9;
 const FINALISTS: usize = 2;
+/// Above this many distinct points the short runs rank the starts on a thinned copy of
+/// the data (`Data::thinned`).
+const THIN_TO: usize = 1 << 16;
 /// A component whose weighted count falls below this share of n is lost.
 const LOST_WEIGHT: f64 = 1e-12;
 
@@ -462,10 +472,11 @@ pub fn fit_mixture(xs: &[f64], k: Option<usize>) -> Result<MixtureFit, MixtureEr
             .filter(|&k| k <= distinct && need(k) as u64 <= n)
             .collect(),
     };
+    let thin = data.thinned();
     let mut candidates = Vec::with_capacity(ks.len());
     let mut best: Option<(f64, usize, Run)> = None;
     for &k in &ks {
-        let run = data.best_run(k);
+        let run = data.best_run(k, thin.as_ref());
         let scored = run.map(|r| {
             let loglik = data.loglik_in_x(r.loglik);
             let (_, bic) = information_criteria(loglik, need(k), n);
@@ -684,6 +695,35 @@ impl Data {
         })
     }
 
+    /// For many distinct points, a thinned copy on which the short runs rank the starts:
+    /// the sorted points in consecutive runs of `g` (so that at most [`THIN_TO`] remain),
+    /// each replaced by its count-weighted mean carrying the run's total count. The total
+    /// count, and so the scale of the log-likelihood, is unchanged. `None` when there are
+    /// at most [`THIN_TO`] distinct points (then the starts are ranked on the data).
+    fn thinned(&self) -> Option<Data> {
+        let m = self.x.len();
+        if m <= THIN_TO {
+            return None;
+        }
+        let g = m.div_ceil(THIN_TO);
+        let (mut x, mut count) = (Vec::with_capacity(THIN_TO), Vec::with_capacity(THIN_TO));
+        for (xs, cs) in self.x.chunks(g).zip(self.count.chunks(g)) {
+            let c: f64 = cs.iter().sum();
+            let weighted: f64 = xs.iter().zip(cs).map(|(&v, &w)| v * w).sum();
+            x.push(weighted / c);
+            count.push(c);
+        }
+        Some(Data {
+            x,
+            count,
+            prefix_count: Vec::new(),
+            prefix_sum: Vec::new(),
+            total: self.total,
+            centre: self.centre,
+            scale: self.scale,
+        })
+    }
+
     /// The log-likelihood in the data's units from a standardised one.
     fn loglik_in_x(&self, standardised: f64) -> f64 {
         standardised - self.total * (0.5 * (2.0 * std::f64::consts::PI).ln() + self.scale.ln())
@@ -707,8 +747,9 @@ impl Data {
     }
 
     /// The best EM run for k components over all starts, converged to the selection
-    /// tolerance.
-    fn best_run(&self, k: usize) -> Option<Run> {
+    /// tolerance. When `thin` is given (see [`Data::thinned`]) the starts are ranked and
+    /// the finalists compared on it, and the winner then continues on these data.
+    fn best_run(&self, k: usize, thin: Option<&Data>) -> Option<Run> {
         let tolerance = SELECTION_TOLERANCE;
         let mut starts: Vec<Params> = Vec::new();
         if let Some(p) = self.quantile_start(k) {
@@ -725,16 +766,22 @@ impl Data {
                 }
             }
         }
+        let ranking = thin.unwrap_or(self);
         let mut short: Vec<Run> = starts
             .into_iter()
-            .filter_map(|p| self.em(p, 0, SHORT_ITERATIONS, tolerance))
+            .filter_map(|p| ranking.em(p, 0, SHORT_ITERATIONS, tolerance))
             .collect();
         short.sort_by(|a, b| b.loglik.total_cmp(&a.loglik));
-        short
+        let best = short
             .into_iter()
             .take(FINALISTS)
-            .filter_map(|r| self.resume(r, tolerance))
-            .max_by(|a, b| a.loglik.total_cmp(&b.loglik))
+            .filter_map(|r| ranking.resume(r, tolerance))
+            .max_by(|a, b| a.loglik.total_cmp(&b.loglik))?;
+        match thin {
+            // The winner on the thinned points continues here, on all of them.
+            Some(_) => self.em(best.params, best.iterations, MAX_ITERATIONS, tolerance),
+            None => Some(best),
+        }
     }
 
     /// Continues a run to `tolerance` (at most [`MAX_ITERATIONS`] passes in all).
