@@ -194,7 +194,7 @@ pub fn fail(function: &'static str, error: impl Into<ArgError>) -> rusqlite::Err
 /// `ctx` must be the context of the running SQLite callback.
 #[cold]
 #[inline(never)]
-pub unsafe fn fail_raw(
+pub(crate) unsafe fn fail_raw(
     ctx: *mut rusqlite::ffi::sqlite3_context,
     function: &'static str,
     error: impl Into<ArgError>,

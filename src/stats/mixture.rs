@@ -1096,8 +1096,10 @@ impl Data {
 /// next to the term `exp(0) = 1` that every use adds is nothing.
 #[inline(always)]
 fn exp_nonpositive(x: f64) -> f64 {
-    const LN2_HI: f64 = 6.931_471_803_691_238_2e-1;
-    const LN2_LO: f64 = 1.908_214_929_270_587_7e-10;
+    // ln 2 split as in fdlibm's e_exp.c: the high part has trailing zero bits, so
+    // n * LN2_HI is exact for the n that occur here.
+    const LN2_HI: f64 = f64::from_bits(0x3fe6_2e42_fee0_0000);
+    const LN2_LO: f64 = f64::from_bits(0x3dea_39ef_3579_3c76);
     // 1.5 * 2^52: adding it rounds to an integer held in the low bits of the mantissa.
     const SHIFTER: f64 = 6_755_399_441_055_744.0;
     let x = x.max(-708.0);
