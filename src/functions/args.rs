@@ -306,25 +306,32 @@ impl<T: PartialEq + Clone + fmt::Debug> Constant<T> {
     ///
     /// # Errors
     /// [`ArgError::Changed`] when `v` differs from the first row's value.
-    #[inline]
+    #[inline(always)]
     pub fn observe(&mut self, v: Option<T>, what: &'static str) -> Result<bool, ArgError> {
         match &self.first {
+            Some(first) if *first == v => Ok(false),
             None => {
                 self.first = Some(v);
                 Ok(true)
             }
-            Some(first) if *first == v => Ok(false),
-            Some(first) => Err(ArgError::Changed {
-                what,
-                first: shown_option(first),
-                now: shown_option(&v),
-            }),
+            Some(first) => Err(changed(first, &v, what)),
         }
     }
 
     /// The value seen, `None` when no row came or the value was NULL.
     pub fn get(&self) -> Option<&T> {
         self.first.as_ref().and_then(Option::as_ref)
+    }
+}
+
+/// The error of [`Constant::observe`], kept out of the per-row path.
+#[cold]
+#[inline(never)]
+fn changed<T: fmt::Debug>(first: &Option<T>, now: &Option<T>, what: &'static str) -> ArgError {
+    ArgError::Changed {
+        what,
+        first: shown_option(first),
+        now: shown_option(now),
     }
 }
 
