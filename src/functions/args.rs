@@ -191,6 +191,29 @@ pub fn fail(function: &'static str, error: impl Into<ArgError>) -> rusqlite::Err
     }))
 }
 
+/// [`fail`] for the callbacks that SQLite calls directly (`functions::raw`): sets the
+/// context's result to the same error, with the same message and code, that rusqlite
+/// reports for the error [`fail`] returns.
+///
+/// # Safety
+/// `ctx` must be the context of the running SQLite callback.
+#[cold]
+#[inline(never)]
+pub(crate) unsafe fn fail_raw(
+    ctx: *mut rusqlite::ffi::sqlite3_context,
+    function: &'static str,
+    error: impl Into<ArgError>,
+) {
+    let message = fail(function, error).to_string();
+    let len = std::ffi::c_int::try_from(message.len()).unwrap_or(std::ffi::c_int::MAX);
+    // SAFETY: per the contract; SQLite copies the message (it is not NUL-terminated, so
+    // its length is given).
+    unsafe {
+        rusqlite::ffi::sqlite3_result_error_code(ctx, rusqlite::ffi::SQLITE_CONSTRAINT_FUNCTION);
+        rusqlite::ffi::sqlite3_result_error(ctx, message.as_ptr().cast(), len);
+    }
+}
+
 /// A numeric argument: NULL gives `None`; INTEGER and REAL convert to `f64`; TEXT that
 /// reads as a number in full (surrounding spaces allowed) is accepted, as SQLite's numeric
 /// affinity would; other TEXT and any BLOB are errors. SQLite has no NaN, so a NaN REAL
@@ -201,19 +224,26 @@ pub fn number(v: ValueRef<'_>, what: &'static str) -> Result<Option<f64>, ArgErr
         ValueRef::Real(r) => Ok((!r.is_nan()).then_some(r)),
         ValueRef::Integer(i) => Ok(Some(i as f64)),
         ValueRef::Null => Ok(None),
+        ValueRef::Text(_) | ValueRef::Blob(_) => number_from_text(v, what),
+    }
+}
+
+/// The rare branch of [`number`], kept out of line so the per-row path stays small.
+#[cold]
+#[inline(never)]
+fn number_from_text(v: ValueRef<'_>, what: &'static str) -> Result<Option<f64>, ArgError> {
+    let shown = || ArgError::NotNumeric {
+        what,
+        shown: show(v),
+    };
+    match v {
         ValueRef::Text(t) => std::str::from_utf8(t)
             .ok()
             .and_then(|s| s.trim().parse::<f64>().ok())
             .filter(|x| !x.is_nan())
             .map(Some)
-            .ok_or_else(|| ArgError::NotNumeric {
-                what,
-                shown: show(v),
-            }),
-        ValueRef::Blob(_) => Err(ArgError::NotNumeric {
-            what,
-            shown: show(v),
-        }),
+            .ok_or_else(shown),
+        _ => Err(shown()),
     }
 }
 
@@ -281,25 +311,32 @@ impl<T: PartialEq + Clone + fmt::Debug> Constant<T> {
     ///
     /// # Errors
     /// [`ArgError::Changed`] when `v` differs from the first row's value.
-    #[inline]
+    #[inline(always)]
     pub fn observe(&mut self, v: Option<T>, what: &'static str) -> Result<bool, ArgError> {
         match &self.first {
+            Some(first) if *first == v => Ok(false),
             None => {
                 self.first = Some(v);
                 Ok(true)
             }
-            Some(first) if *first == v => Ok(false),
-            Some(first) => Err(ArgError::Changed {
-                what,
-                first: shown_option(first),
-                now: shown_option(&v),
-            }),
+            Some(first) => Err(changed(first, &v, what)),
         }
     }
 
     /// The value seen, `None` when no row came or the value was NULL.
     pub fn get(&self) -> Option<&T> {
         self.first.as_ref().and_then(Option::as_ref)
+    }
+}
+
+/// The error of [`Constant::observe`], kept out of the per-row path.
+#[cold]
+#[inline(never)]
+fn changed<T: fmt::Debug>(first: &Option<T>, now: &Option<T>, what: &'static str) -> ArgError {
+    ArgError::Changed {
+        what,
+        first: shown_option(first),
+        now: shown_option(now),
     }
 }
 

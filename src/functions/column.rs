@@ -12,12 +12,13 @@
 //! selection: the values are collected in a vector and moved into the tree only when
 //! SQLite first calls `value` or `inverse`, which it does only in window use.
 
-use rusqlite::functions::{Aggregate, Context, WindowAggregate};
-use rusqlite::types::Value;
+use rusqlite::functions::{Aggregate, Context};
+use rusqlite::types::{Value, ValueRef};
 use serde_json::json;
 
 use super::args::{ArgError, Constant, fail, number, text, whole};
-use super::{FunctionDef, Kind, aggregate, window};
+use super::raw::{self, Args, RawWindow};
+use super::{FunctionDef, Kind, aggregate};
 use crate::stats::ecdf::{EcdfCounter, WeightedEcdfCounter};
 use crate::stats::moments::Profile;
 use crate::stats::order::OrderStatistics;
@@ -45,7 +46,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                NULL. Errors: non-numeric x, t or w; a negative or infinite weight.",
         example: "SELECT ecdf(column1, 2.5) FROM (VALUES (1), (2), (3), (4))",
         example_result: "0.5",
-        register: |c, d| window(c, d, || Ecdf),
+        register: raw::window::<EcdfState>,
     },
     FunctionDef {
         name: "quantile",
@@ -63,7 +64,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                outside [0, 1], type outside 1..9, non-numeric x.",
         example: "SELECT quantile(column1, 0.9) FROM (VALUES (1), (2), (3), (4), (5))",
         example_result: "4.6",
-        register: |c, d| window(c, d, || Quantile),
+        register: raw::window::<QuantileState>,
     },
     FunctionDef {
         name: "weighted_quantile",
@@ -110,22 +111,26 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     },
 ];
 
-/// Reads the optional `type` argument at `idx` (constant per group), default 7.
+/// Reads the optional `type` argument (`None` when the call has none; constant per
+/// group), default 7.
 fn read_type(
-    name: &'static str,
-    ctx: &Context<'_>,
-    idx: usize,
+    v: Option<ValueRef<'_>>,
     seen: &mut Constant<i64>,
-) -> Result<()> {
-    if ctx.len() > idx {
-        let t = whole(ctx.get_raw(idx), "type").map_err(|e| fail(name, e))?;
-        if seen.observe(t, "type").map_err(|e| fail(name, e))?
+) -> std::result::Result<(), ArgError> {
+    if let Some(v) = v {
+        let t = whole(v, "type")?;
+        if seen.observe(t, "type")?
             && let Some(t) = t
         {
-            QuantileType::new(t).map_err(|e| fail(name, e))?;
+            QuantileType::new(t)?;
         }
     }
     Ok(())
+}
+
+/// Argument `idx` of a rusqlite call, if the call has it.
+fn optional<'a>(ctx: &'a Context<'_>, idx: usize) -> Option<ValueRef<'a>> {
+    (ctx.len() > idx).then(|| ctx.get_raw(idx))
 }
 
 /// The group's quantile type; `None` when the type argument was NULL.
@@ -137,17 +142,13 @@ fn chosen_type(ctx_len_had_type: bool, seen: &Constant<i64>) -> Option<QuantileT
 }
 
 /// Reads a probability argument that must be constant per group.
-fn read_p(
-    name: &'static str,
-    ctx: &Context<'_>,
-    idx: usize,
-    seen: &mut Constant<f64>,
-) -> Result<()> {
-    let p = number(ctx.get_raw(idx), "p").map_err(|e| fail(name, e))?;
-    if seen.observe(p, "p").map_err(|e| fail(name, e))?
+#[inline(always)]
+fn read_p(v: ValueRef<'_>, seen: &mut Constant<f64>) -> std::result::Result<(), ArgError> {
+    let p = number(v, "p")?;
+    if seen.observe(p, "p")?
         && let Some(p) = p
     {
-        check_probability(p).map_err(|e| fail(name, e))?;
+        check_probability(p)?;
     }
     Ok(())
 }
@@ -159,47 +160,13 @@ fn real(x: Option<f64>) -> Value {
 // ---------------------------------------------------------------------------------------
 // ecdf(x, t [, w])
 
-/// State of `ecdf`: a running count, O(1) memory.
+/// State of `ecdf(x, t)` and `ecdf(x, t, w)`: a running count, O(1) memory. Registered on
+/// the lean path ([`raw`]).
 #[derive(Debug, Default)]
 pub struct EcdfState {
     t: Constant<f64>,
     plain: Option<EcdfCounter>,
     weighted: Option<WeightedEcdfCounter>,
-}
-
-/// `ecdf(x, t)` and `ecdf(x, t, w)`.
-pub struct Ecdf;
-
-impl Aggregate<EcdfState, Value> for Ecdf {
-    fn init(&self, _: &mut Context<'_>) -> Result<EcdfState> {
-        Ok(EcdfState::default())
-    }
-
-    fn step(&self, ctx: &mut Context<'_>, s: &mut EcdfState) -> Result<()> {
-        const NAME: &str = "ecdf";
-        let t = number(ctx.get_raw(1), "t").map_err(|e| fail(NAME, e))?;
-        s.t.observe(t, "t").map_err(|e| fail(NAME, e))?;
-        let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? else {
-            return Ok(());
-        };
-        let Some(t) = t else { return Ok(()) };
-        if ctx.len() > 2 {
-            let Some(w) = number(ctx.get_raw(2), "w").map_err(|e| fail(NAME, e))? else {
-                return Ok(());
-            };
-            s.weighted
-                .get_or_insert_with(|| WeightedEcdfCounter::new(t))
-                .add(x, w)
-                .map_err(|e| fail(NAME, e))
-        } else {
-            s.plain.get_or_insert_with(|| EcdfCounter::new(t)).add(x);
-            Ok(())
-        }
-    }
-
-    fn finalize(&self, _: &mut Context<'_>, s: Option<EcdfState>) -> Result<Value> {
-        Ok(s.map_or(Value::Null, |s| real(s.current())))
-    }
 }
 
 impl EcdfState {
@@ -213,38 +180,66 @@ impl EcdfState {
     }
 }
 
-impl WindowAggregate<EcdfState, Value> for Ecdf {
-    fn value(&self, s: Option<&mut EcdfState>) -> Result<Value> {
-        Ok(s.map_or(Value::Null, |s| real(s.current())))
-    }
+impl RawWindow for EcdfState {
+    const NAME: &'static str = "ecdf";
 
-    fn inverse(&self, ctx: &mut Context<'_>, s: &mut EcdfState) -> Result<()> {
-        const NAME: &str = "ecdf";
-        let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? else {
+    #[inline]
+    fn step(&mut self, args: &Args<'_>) -> std::result::Result<(), ArgError> {
+        let t = args.number(1, "t")?;
+        self.t.observe(t, "t")?;
+        let Some(x) = args.number(0, "x")? else {
             return Ok(());
         };
-        if ctx.len() > 2 {
-            let Some(w) = number(ctx.get_raw(2), "w").map_err(|e| fail(NAME, e))? else {
+        let Some(t) = t else { return Ok(()) };
+        if args.len() > 2 {
+            let Some(w) = args.number(2, "w")? else {
                 return Ok(());
             };
-            if let Some(c) = s.weighted.as_mut() {
-                c.remove(x, w).map_err(|e| fail(NAME, e))?;
+            Ok(self
+                .weighted
+                .get_or_insert_with(|| WeightedEcdfCounter::new(t))
+                .add(x, w)?)
+        } else {
+            self.plain.get_or_insert_with(|| EcdfCounter::new(t)).add(x);
+            Ok(())
+        }
+    }
+
+    fn inverse(&mut self, args: &Args<'_>) -> std::result::Result<(), ArgError> {
+        let Some(x) = args.number(0, "x")? else {
+            return Ok(());
+        };
+        if args.len() > 2 {
+            let Some(w) = args.number(2, "w")? else {
+                return Ok(());
+            };
+            if let Some(c) = self.weighted.as_mut() {
+                c.remove(x, w)?;
             }
-        } else if let Some(c) = s.plain.as_mut() {
+        } else if let Some(c) = self.plain.as_mut() {
             if c.count() == 0 {
-                return Err(fail(NAME, StatsError::LeftFrameUnseen));
+                return Err(StatsError::LeftFrameUnseen.into());
             }
             c.remove(x);
         }
         Ok(())
+    }
+
+    fn value(&mut self) -> std::result::Result<Option<f64>, ArgError> {
+        Ok(self.current())
+    }
+
+    fn finalize(&mut self) -> std::result::Result<Option<f64>, ArgError> {
+        Ok(self.current())
     }
 }
 
 // ---------------------------------------------------------------------------------------
 // quantile(x, p [, type])
 
-/// State of `quantile`: the non-NULL values of the group (or frame), in a vector for the
-/// plain aggregate and in an order-statistic tree once SQLite uses it as a window.
+/// State of `quantile(x, p [, type])`: the non-NULL values of the group (or frame), in a
+/// vector for the plain aggregate and in an order-statistic tree once SQLite uses it as a
+/// window. Registered on the lean path ([`raw`]).
 #[derive(Debug, Default)]
 pub struct QuantileState {
     xs: Vec<f64>,
@@ -278,53 +273,41 @@ impl QuantileState {
     }
 }
 
-/// `quantile(x, p [, type])`.
-pub struct Quantile;
+impl RawWindow for QuantileState {
+    const NAME: &'static str = "quantile";
 
-impl Aggregate<QuantileState, Value> for Quantile {
-    fn init(&self, _: &mut Context<'_>) -> Result<QuantileState> {
-        Ok(QuantileState::default())
-    }
-
-    fn step(&self, ctx: &mut Context<'_>, s: &mut QuantileState) -> Result<()> {
-        const NAME: &str = "quantile";
-        read_p(NAME, ctx, 1, &mut s.p)?;
-        read_type(NAME, ctx, 2, &mut s.ty)?;
-        s.has_type = ctx.len() > 2;
-        if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? {
-            match s.tree.as_mut() {
-                Some(tree) => tree.insert(x).map_err(|e| fail(NAME, e))?,
-                None => s.xs.push(x),
+    #[inline]
+    fn step(&mut self, args: &Args<'_>) -> std::result::Result<(), ArgError> {
+        read_p(args.get(1), &mut self.p)?;
+        self.has_type = args.len() > 2;
+        if self.has_type {
+            read_type(Some(args.get(2)), &mut self.ty)?;
+        }
+        if let Some(x) = args.number(0, "x")? {
+            match self.tree.as_mut() {
+                Some(tree) => tree.insert(x)?,
+                None => self.xs.push(x),
             }
         }
         Ok(())
     }
 
-    fn finalize(&self, _: &mut Context<'_>, s: Option<QuantileState>) -> Result<Value> {
-        let Some(mut s) = s else {
-            return Ok(Value::Null);
-        };
-        Ok(real(s.current().map_err(|e| fail("quantile", e))?))
-    }
-}
-
-impl WindowAggregate<QuantileState, Value> for Quantile {
-    fn value(&self, s: Option<&mut QuantileState>) -> Result<Value> {
-        const NAME: &str = "quantile";
-        let Some(s) = s else { return Ok(Value::Null) };
-        s.tree().map_err(|e| fail(NAME, e))?;
-        Ok(real(s.current().map_err(|e| fail(NAME, e))?))
-    }
-
-    fn inverse(&self, ctx: &mut Context<'_>, s: &mut QuantileState) -> Result<()> {
-        const NAME: &str = "quantile";
-        if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? {
-            s.tree()
-                .map_err(|e| fail(NAME, e))?
+    fn inverse(&mut self, args: &Args<'_>) -> std::result::Result<(), ArgError> {
+        if let Some(x) = args.number(0, "x")? {
+            self.tree()?
                 .remove(x)
-                .map_err(|_| fail(NAME, StatsError::LeftFrameUnseen))?;
+                .map_err(|_| StatsError::LeftFrameUnseen)?;
         }
         Ok(())
+    }
+
+    fn value(&mut self) -> std::result::Result<Option<f64>, ArgError> {
+        self.tree()?;
+        Ok(self.current()?)
+    }
+
+    fn finalize(&mut self) -> std::result::Result<Option<f64>, ArgError> {
+        Ok(self.current()?)
     }
 }
 
@@ -350,8 +333,8 @@ impl Aggregate<WeightedQuantileState, Value> for WeightedQuantile {
 
     fn step(&self, ctx: &mut Context<'_>, s: &mut WeightedQuantileState) -> Result<()> {
         const NAME: &str = "weighted_quantile";
-        read_p(NAME, ctx, 2, &mut s.p)?;
-        read_type(NAME, ctx, 3, &mut s.ty)?;
+        read_p(ctx.get_raw(2), &mut s.p).map_err(|e| fail(NAME, e))?;
+        read_type(optional(ctx, 3), &mut s.ty).map_err(|e| fail(NAME, e))?;
         s.has_type = ctx.len() > 3;
         let x = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))?;
         let w = number(ctx.get_raw(1), "w").map_err(|e| fail(NAME, e))?;
@@ -439,7 +422,7 @@ impl Aggregate<QuantilesState, Value> for Quantiles {
         {
             s.ps = Some(parse_probabilities(ps).map_err(|e| fail(NAME, e))?);
         }
-        read_type(NAME, ctx, 2, &mut s.ty)?;
+        read_type(optional(ctx, 2), &mut s.ty).map_err(|e| fail(NAME, e))?;
         s.has_type = ctx.len() > 2;
         if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? {
             s.xs.push(x);

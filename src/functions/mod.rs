@@ -11,11 +11,12 @@ pub mod column;
 pub mod compare;
 pub mod dist;
 pub mod models;
+pub(crate) mod raw;
 pub mod sketch;
 pub(crate) mod table;
 
 use rusqlite::Connection;
-use rusqlite::functions::{Aggregate, Context, FunctionFlags, WindowAggregate};
+use rusqlite::functions::{Aggregate, Context, FunctionFlags};
 use rusqlite::types::Value;
 
 /// How a function is used in SQL.
@@ -95,23 +96,6 @@ where
 {
     for &n in def.arities {
         conn.create_aggregate_function(def.name, n, flags(), make())?;
-    }
-    Ok(())
-}
-
-/// Registers a window function (also usable as a plain aggregate) for each arity of its
-/// row.
-pub(crate) fn window<S, W>(
-    conn: &Connection,
-    def: &'static FunctionDef,
-    make: fn() -> W,
-) -> rusqlite::Result<()>
-where
-    S: std::panic::RefUnwindSafe + std::panic::UnwindSafe + Send,
-    W: WindowAggregate<S, Value> + Send + 'static,
-{
-    for &n in def.arities {
-        conn.create_window_function(def.name, n, flags(), make())?;
     }
     Ok(())
 }

@@ -1,0 +1,274 @@
+//! A lean per-row path for the hottest window functions (`ecdf`, `quantile`).
+//!
+//! rusqlite's general wrapper (`create_window_function`) builds a `Context` and converts
+//! every argument through an out-of-line `ValueRef::from_value` on every row; over 10M
+//! rows a perf profile showed that wrapper, plus the argument conversion, as most of the
+//! cost above SQLite's own scan (see bench/README.md). This module registers the same
+//! SQL functions straight through `sqlite3_create_window_function`, with `extern "C"`
+//! callbacks that read each argument's type and number directly and keep the state in
+//! SQLite's aggregate context as a pointer to a `Box`:
+//!
+//! - `x_step` and `x_inverse` create the state on first use (the aggregate context is
+//!   zero-filled, so a null pointer means "no state yet");
+//! - `x_value` answers for the current frame and keeps the state;
+//! - `x_final` takes the state out (leaving a null pointer) and drops it; SQLite calls it
+//!   once per group, also when the statement ends early on an error, so nothing leaks.
+//!
+//! Every body runs under `catch_unwind`: a panic becomes an SQLite error, never an
+//! unwind into C. Errors go through [`args::fail_raw`], so they read exactly as the
+//! errors of every other ogive function. In the loadable build `rusqlite::ffi` routes each
+//! call through the host's API table, so the same code serves both builds.
+
+use std::ffi::{c_int, c_void};
+use std::panic::{AssertUnwindSafe, catch_unwind};
+
+use rusqlite::Connection;
+use rusqlite::ffi::{self, sqlite3_context, sqlite3_value};
+use rusqlite::types::ValueRef;
+
+use super::FunctionDef;
+use super::args::{self, ArgError};
+
+/// The arguments of one call, read straight from SQLite.
+pub(crate) struct Args<'a> {
+    argv: &'a [*mut sqlite3_value],
+}
+
+impl Args<'_> {
+    /// How many arguments the call has.
+    #[inline]
+    pub(crate) fn len(&self) -> usize {
+        self.argv.len()
+    }
+
+    /// Argument `i` as a [`ValueRef`]; a missing argument reads as NULL.
+    #[inline(always)]
+    pub(crate) fn get(&self, i: usize) -> ValueRef<'_> {
+        let Some(&v) = self.argv.get(i) else {
+            return ValueRef::Null;
+        };
+        // SAFETY: `v` is one of the argument values SQLite passed to this callback; it is
+        // valid for the callback's duration, which bounds the returned borrow.
+        unsafe {
+            match ffi::sqlite3_value_type(v) {
+                ffi::SQLITE_FLOAT => ValueRef::Real(ffi::sqlite3_value_double(v)),
+                ffi::SQLITE_INTEGER => ValueRef::Integer(ffi::sqlite3_value_int64(v)),
+                ffi::SQLITE_TEXT => ValueRef::Text(bytes(ffi::sqlite3_value_text(v).cast(), v)),
+                ffi::SQLITE_BLOB => ValueRef::Blob(bytes(ffi::sqlite3_value_blob(v).cast(), v)),
+                _ => ValueRef::Null,
+            }
+        }
+    }
+
+    /// Argument `i` as a number, by [`args::number`].
+    #[inline(always)]
+    pub(crate) fn number(&self, i: usize, what: &'static str) -> Result<Option<f64>, ArgError> {
+        args::number(self.get(i), what)
+    }
+}
+
+/// The bytes of a TEXT or BLOB value whose data pointer is `p`.
+///
+/// # Safety
+/// `p` must be the pointer SQLite just returned for `v`, before any other call on `v`.
+unsafe fn bytes<'a>(p: *const u8, v: *mut sqlite3_value) -> &'a [u8] {
+    // SAFETY: per the contract, `p` points at `sqlite3_value_bytes(v)` bytes.
+    unsafe {
+        let n = ffi::sqlite3_value_bytes(v);
+        if p.is_null() || n <= 0 {
+            &[]
+        } else {
+            std::slice::from_raw_parts(p, n as usize)
+        }
+    }
+}
+
+/// The state of a window function on the lean path: what one group or frame keeps.
+pub(crate) trait RawWindow: Default {
+    /// The SQL name, for error messages.
+    const NAME: &'static str;
+
+    /// Adds a row (entering the group or the frame).
+    fn step(&mut self, args: &Args<'_>) -> Result<(), ArgError>;
+
+    /// Removes a row leaving the frame.
+    fn inverse(&mut self, args: &Args<'_>) -> Result<(), ArgError>;
+
+    /// The answer for the current frame; the state lives on.
+    fn value(&mut self) -> Result<Option<f64>, ArgError>;
+
+    /// The answer for the whole group, after which the state is dropped.
+    fn finalize(&mut self) -> Result<Option<f64>, ArgError>;
+}
+
+/// Registers `S` as a window function (also a plain aggregate) for each arity of `def`.
+pub(crate) fn window<S: RawWindow>(
+    conn: &Connection,
+    def: &'static FunctionDef,
+) -> rusqlite::Result<()> {
+    let name = std::ffi::CString::new(def.name)?;
+    for &n in def.arities {
+        // SAFETY: `conn.handle()` is the open connection; the name is copied by SQLite;
+        // the callbacks match the signatures SQLite expects and take no user data.
+        let rc = unsafe {
+            ffi::sqlite3_create_window_function(
+                conn.handle(),
+                name.as_ptr(),
+                n,
+                super::flags().bits(),
+                std::ptr::null_mut::<c_void>(),
+                Some(x_step::<S>),
+                Some(x_final::<S>),
+                Some(x_value::<S>),
+                Some(x_inverse::<S>),
+                None,
+            )
+        };
+        if rc != ffi::SQLITE_OK {
+            return Err(rusqlite::Error::SqliteFailure(ffi::Error::new(rc), None));
+        }
+    }
+    Ok(())
+}
+
+/// The slot in SQLite's aggregate context that holds the state's pointer; with `create`,
+/// the context (and a state) is made if missing. `None` when SQLite is out of memory, or
+/// without `create` when no row has come.
+///
+/// # Safety
+/// `ctx` must be the context of an aggregate or window callback.
+#[inline(always)]
+unsafe fn slot<S: RawWindow>(ctx: *mut sqlite3_context, create: bool) -> Option<*mut *mut S> {
+    let size = if create {
+        size_of::<*mut S>() as c_int
+    } else {
+        0
+    };
+    // SAFETY: per the contract; SQLite zero-fills a new context, a null state pointer.
+    unsafe {
+        let slot = ffi::sqlite3_aggregate_context(ctx, size).cast::<*mut S>();
+        if slot.is_null() {
+            return None;
+        }
+        if create && (*slot).is_null() {
+            *slot = Box::into_raw(Box::<S>::default());
+        }
+        (!(*slot).is_null()).then_some(slot)
+    }
+}
+
+/// A callback's outcome: `Some` on success; otherwise the error is reported through
+/// [`args::fail_raw`] (a caught panic as an internal error) and the result is `None`.
+///
+/// # Safety
+/// `ctx` must be the context of the running callback.
+#[inline(always)]
+unsafe fn report<T>(
+    ctx: *mut sqlite3_context,
+    name: &'static str,
+    r: std::thread::Result<Result<T, ArgError>>,
+) -> Option<T> {
+    match r {
+        Ok(Ok(v)) => Some(v),
+        Ok(Err(e)) => {
+            // SAFETY: per the contract.
+            unsafe { args::fail_raw(ctx, name, e) };
+            None
+        }
+        Err(_) => {
+            // SAFETY: per the contract.
+            unsafe { args::fail_raw(ctx, name, ArgError::Internal("a panic was caught".into())) };
+            None
+        }
+    }
+}
+
+/// Sets the result to `x`, NULL for `None`.
+///
+/// # Safety
+/// `ctx` must be the context of the running callback.
+unsafe fn answer(ctx: *mut sqlite3_context, x: Option<f64>) {
+    // SAFETY: per the contract. SQLite itself turns a NaN double into NULL.
+    unsafe {
+        match x {
+            Some(x) => ffi::sqlite3_result_double(ctx, x),
+            None => ffi::sqlite3_result_null(ctx),
+        }
+    }
+}
+
+/// Runs `body` on a row's arguments and the group's state (made on first use).
+///
+/// # Safety
+/// SQLite's contract for xStep/xInverse: `argv` holds `argc` values.
+#[inline(always)]
+unsafe fn on_row<S: RawWindow>(
+    ctx: *mut sqlite3_context,
+    argc: c_int,
+    argv: *mut *mut sqlite3_value,
+    body: impl FnOnce(&mut S, &Args<'_>) -> Result<(), ArgError>,
+) {
+    // SAFETY: per the contract.
+    unsafe {
+        let Some(slot) = slot::<S>(ctx, true) else {
+            ffi::sqlite3_result_error_nomem(ctx);
+            return;
+        };
+        let argv: &[*mut sqlite3_value] = if argv.is_null() || argc <= 0 {
+            &[]
+        } else {
+            std::slice::from_raw_parts(argv, argc as usize)
+        };
+        let r = catch_unwind(AssertUnwindSafe(|| body(&mut **slot, &Args { argv })));
+        report(ctx, S::NAME, r);
+    }
+}
+
+unsafe extern "C" fn x_step<S: RawWindow>(
+    ctx: *mut sqlite3_context,
+    argc: c_int,
+    argv: *mut *mut sqlite3_value,
+) {
+    // SAFETY: called by SQLite as xStep.
+    unsafe { on_row::<S>(ctx, argc, argv, S::step) }
+}
+
+unsafe extern "C" fn x_inverse<S: RawWindow>(
+    ctx: *mut sqlite3_context,
+    argc: c_int,
+    argv: *mut *mut sqlite3_value,
+) {
+    // SAFETY: called by SQLite as xInverse.
+    unsafe { on_row::<S>(ctx, argc, argv, S::inverse) }
+}
+
+unsafe extern "C" fn x_value<S: RawWindow>(ctx: *mut sqlite3_context) {
+    // SAFETY: called by SQLite as xValue; the state stays in the context.
+    unsafe {
+        let Some(slot) = slot::<S>(ctx, false) else {
+            return answer(ctx, None);
+        };
+        let r = catch_unwind(AssertUnwindSafe(|| (**slot).value()));
+        if let Some(x) = report(ctx, S::NAME, r) {
+            answer(ctx, x);
+        }
+    }
+}
+
+unsafe extern "C" fn x_final<S: RawWindow>(ctx: *mut sqlite3_context) {
+    // SAFETY: called by SQLite as xFinal; the state is taken out and dropped here, once.
+    unsafe {
+        let Some(slot) = slot::<S>(ctx, false) else {
+            return answer(ctx, None);
+        };
+        let state = Box::from_raw(*slot);
+        *slot = std::ptr::null_mut();
+        let r = catch_unwind(AssertUnwindSafe(move || {
+            let mut state = state;
+            state.finalize()
+        }));
+        if let Some(x) = report(ctx, S::NAME, r) {
+            answer(ctx, x);
+        }
+    }
+}
