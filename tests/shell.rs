@@ -83,15 +83,15 @@ fn ogive(args: &[&str], stdin: Option<&str>) -> Output {
     child.wait_with_output().unwrap()
 }
 
-/// Compares a run's transcript with tests/golden/NAME.txt (or rewrites it when blessing).
-/// `tmp` is replaced by `$TMP` in the command line shown in the transcript.
+/// Compares a run's recorded output with tests/golden/NAME.txt (or rewrites it when blessing).
+/// `tmp` is replaced by `$TMP` in the command line shown in the recorded output.
 fn golden(name: &str, args: &[&str], stdin: Option<&str>, tmp: Option<&Path>) {
     let out = ogive(args, stdin);
     let mut shown = args.join(" ");
     if let Some(t) = tmp {
         shown = shown.replace(&t.display().to_string(), "$TMP");
     }
-    let transcript = format!(
+    let recorded = format!(
         "$ ogive {shown}\n{}exit: {}\n--- stdout\n{}--- stderr\n{}",
         stdin.map_or(String::new(), |s| format!("--- stdin\n{s}")),
         out.status.code().map_or("signal".into(), |c| c.to_string()),
@@ -101,7 +101,7 @@ fn golden(name: &str, args: &[&str], stdin: Option<&str>, tmp: Option<&Path>) {
     let path = root().join("tests/golden").join(format!("{name}.txt"));
     if std::env::var_os("OGIVE_BLESS").is_some() {
         std::fs::create_dir_all(path.parent().unwrap()).unwrap();
-        std::fs::write(&path, &transcript).unwrap();
+        std::fs::write(&path, &recorded).unwrap();
         return;
     }
     let want = std::fs::read_to_string(&path).unwrap_or_else(|_| {
@@ -111,8 +111,8 @@ fn golden(name: &str, args: &[&str], stdin: Option<&str>, tmp: Option<&Path>) {
         )
     });
     assert!(
-        want == transcript,
-        "output of `ogive {shown}` differs from {}\n--- want\n{want}\n--- got\n{transcript}\n\
+        want == recorded,
+        "output of `ogive {shown}` differs from {}\n--- want\n{want}\n--- got\n{recorded}\n\
          (after an intended change: OGIVE_BLESS=1 cargo test --test shell)",
         path.display()
     );
