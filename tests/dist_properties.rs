@@ -4,12 +4,14 @@
 //! - type-1 quantiles and the cdf form a Galois connection: `Q(p) <= t` exactly when
 //!   `p <= F(t)`, so `F(Q(p)) >= p` and `Q(F(t)) <= t` (the definition of the inverse of
 //!   a step cdf, Hyndman and Fan 1996, definition 1);
-//! - `dist_merge` is associative and commutative, bit for bit, through SQL.
+//! - `dist_merge` is associative and commutative, bit for bit, through SQL;
+//! - selection (`quantile_select`, sampled above 32,768 values) picks exactly what a full
+//!   sort picks, for every type and any order of the values.
 //!
 //! Values come from a small grid (many ties) or anywhere in the finite doubles, with and
 //! without frequency weights.
 
-use ogive::stats::quantile::QuantileType;
+use ogive::stats::quantile::{QuantileType, quantile_select, quantile_sorted};
 use ogive::stats::sample::Sample;
 use ogive::value::{Dist, empirical};
 use proptest::prelude::*;
@@ -139,5 +141,29 @@ proptest! {
             )
             .unwrap();
         prop_assert_eq!(&left, &all);
+    }
+
+    #[test]
+    fn large_selection_equals_sorting(
+        pattern in prop::collection::vec(value(), 1..300),
+        n in 32_768usize..45_000,
+        order in 0u8..3,
+        p in 0.0f64..=1.0,
+        ty in 1i64..=9,
+    ) {
+        // Many copies of a short pattern: heavy ties, and sorted, reversed or cycled
+        // orders, where a sample taken at fixed positions could be misled.
+        let mut data: Vec<f64> = pattern.iter().copied().cycle().take(n).collect();
+        match order {
+            0 => data.sort_by(f64::total_cmp),
+            1 => data.sort_by(|a, b| b.total_cmp(a)),
+            _ => {}
+        }
+        let mut sorted = data.clone();
+        sorted.sort_by(f64::total_cmp);
+        let ty = QuantileType::new(ty).unwrap();
+        let want = quantile_sorted(&sorted, p, ty).unwrap().map(f64::to_bits);
+        let got = quantile_select(&mut data, p, ty).unwrap().map(f64::to_bits);
+        prop_assert_eq!(got, want);
     }
 }

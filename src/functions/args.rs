@@ -68,6 +68,8 @@ pub enum ArgError {
     Model(ModelError),
     /// An error from the quantile sketch or its BLOB.
     Sketch(SketchError),
+    /// Memory ran out while holding a group's values (`held` of them so far).
+    OutOfMemory { held: usize },
 }
 
 impl fmt::Display for ArgError {
@@ -120,6 +122,12 @@ impl fmt::Display for ArgError {
             ArgError::Mixture(e) => e.fmt(f),
             ArgError::Model(e) => e.fmt(f),
             ArgError::Sketch(e) => e.fmt(f),
+            ArgError::OutOfMemory { held } => write!(
+                f,
+                "ran out of memory holding {held} values of one group; an exact quantile keeps \
+                 every value, so group more finely or use sketch_quantile(quantile_sketch(x), p), which \
+                 needs 64 KB per group"
+            ),
         }
     }
 }

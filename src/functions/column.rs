@@ -232,6 +232,22 @@ impl RawWindow for EcdfState {
     fn finalize(&mut self) -> std::result::Result<Option<f64>, ArgError> {
         Ok(self.current())
     }
+
+    #[inline(always)]
+    fn lane(&self) -> Option<u64> {
+        self.plain.as_ref().map(|c| c.threshold().to_bits())
+    }
+
+    #[inline(always)]
+    fn push(&mut self, x: f64) -> bool {
+        match self.plain.as_mut() {
+            Some(c) => {
+                c.add(x);
+                true
+            }
+            None => false,
+        }
+    }
 }
 
 // ---------------------------------------------------------------------------------------
@@ -286,7 +302,13 @@ impl RawWindow for QuantileState {
         if let Some(x) = args.number(0, "x")? {
             match self.tree.as_mut() {
                 Some(tree) => tree.insert(x)?,
-                None => self.xs.push(x),
+                None => {
+                    if !raw::try_push(&mut self.xs, x) {
+                        return Err(ArgError::OutOfMemory {
+                            held: self.xs.len(),
+                        });
+                    }
+                }
             }
         }
         Ok(())
@@ -308,6 +330,19 @@ impl RawWindow for QuantileState {
 
     fn finalize(&mut self) -> std::result::Result<Option<f64>, ArgError> {
         Ok(self.current()?)
+    }
+
+    #[inline(always)]
+    fn lane(&self) -> Option<u64> {
+        match (self.tree.is_none() && !self.has_type, self.p.get()) {
+            (true, Some(p)) => Some(p.to_bits()),
+            _ => None,
+        }
+    }
+
+    #[inline(always)]
+    fn push(&mut self, x: f64) -> bool {
+        raw::try_push(&mut self.xs, x)
     }
 }
 

@@ -99,6 +99,28 @@ pub(crate) trait RawWindow: Default {
 
     /// The answer for the whole group, after which the state is dropped.
     fn finalize(&mut self) -> Result<Option<f64>, ArgError>;
+
+    /// The fast lane's key: for a state whose calls have two arguments, `(x, c)` with `c`
+    /// constant per group, the bits of `c` as the first row fixed it, once [`step`] has
+    /// accepted that row and a row whose `c` has these bits and whose `x` is a number needs
+    /// nothing but [`push`]. `None` (the default) sends every row through [`step`].
+    ///
+    /// [`step`]: RawWindow::step
+    /// [`push`]: RawWindow::push
+    #[inline(always)]
+    fn lane(&self) -> Option<u64> {
+        None
+    }
+
+    /// Adds the number `x` of a row the fast lane checked (never NaN, never NULL);
+    /// `false` when it could not (memory ran out), and the row goes to [`step`] instead,
+    /// which reports the error.
+    ///
+    /// [`step`]: RawWindow::step
+    #[inline(always)]
+    fn push(&mut self, _x: f64) -> bool {
+        false
+    }
 }
 
 /// Registers `S` as a window function (also a plain aggregate) for each arity of `def`.
@@ -224,13 +246,119 @@ unsafe fn on_row<S: RawWindow>(
     }
 }
 
+/// Whether SQLite's type code is INTEGER or REAL: a value `sqlite3_value_double` reads
+/// exactly as ogive's own conversion does (`i as f64`).
+#[inline(always)]
+fn numeric(ty: c_int) -> bool {
+    ty == ffi::SQLITE_FLOAT || ty == ffi::SQLITE_INTEGER
+}
+
+/// The fast lane of `x_step`: with the state's constant fixed (see [`RawWindow::lane`]),
+/// a two-argument row whose constant is that same number and whose `x` is a number or NULL
+/// is taken here with five calls into SQLite and no other checks. Returns `false` for any
+/// other row (and for the first row of a group), which then goes through
+/// [`RawWindow::step`] and its full checks and errors.
+///
+/// # Safety
+/// SQLite's contract for xStep: `argv` holds `argc` values.
+#[inline(always)]
+unsafe fn fast_row<S: RawWindow>(
+    ctx: *mut sqlite3_context,
+    argc: c_int,
+    argv: *mut *mut sqlite3_value,
+) -> bool {
+    if argc != 2 || argv.is_null() {
+        return false;
+    }
+    // SAFETY: per the contract, `argv` holds two valid values; a context of this callback
+    // that has a state holds a pointer to it (see `slot`).
+    unsafe {
+        let Some(slot) = slot::<S>(ctx, false) else {
+            return false;
+        };
+        let state = &mut **slot;
+        let Some(bits) = state.lane() else {
+            return false;
+        };
+        let (x, c) = (*argv, *argv.add(1));
+        if !numeric(ffi::sqlite3_value_type(c)) || ffi::sqlite3_value_double(c).to_bits() != bits {
+            return false;
+        }
+        match ffi::sqlite3_value_type(x) {
+            ffi::SQLITE_NULL => true,
+            ty if numeric(ty) => {
+                let v = ffi::sqlite3_value_double(x);
+                v.is_nan() || state.push(v)
+            }
+            _ => false,
+        }
+    }
+}
+
 unsafe extern "C" fn x_step<S: RawWindow>(
     ctx: *mut sqlite3_context,
     argc: c_int,
     argv: *mut *mut sqlite3_value,
 ) {
-    // SAFETY: called by SQLite as xStep.
+    // SAFETY: called by SQLite as xStep. The lane is small and inlined here; every other
+    // row takes the out-of-line general path.
+    unsafe {
+        match catch_unwind(AssertUnwindSafe(|| fast_row::<S>(ctx, argc, argv))) {
+            Ok(true) => {}
+            Ok(false) => general_step::<S>(ctx, argc, argv),
+            Err(_) => panicked::<S>(ctx),
+        }
+    }
+}
+
+/// `x_step` for the rows the fast lane does not take.
+///
+/// # Safety
+/// SQLite's contract for xStep: `argv` holds `argc` values.
+#[inline(never)]
+unsafe fn general_step<S: RawWindow>(
+    ctx: *mut sqlite3_context,
+    argc: c_int,
+    argv: *mut *mut sqlite3_value,
+) {
+    // SAFETY: per the contract.
     unsafe { on_row::<S>(ctx, argc, argv, S::step) }
+}
+
+/// Reports a panic caught in the fast lane.
+///
+/// # Safety
+/// `ctx` must be the context of the running callback.
+#[cold]
+#[inline(never)]
+unsafe fn panicked<S: RawWindow>(ctx: *mut sqlite3_context) {
+    // SAFETY: per the contract.
+    unsafe {
+        args::fail_raw(
+            ctx,
+            S::NAME,
+            ArgError::Internal("a panic was caught".into()),
+        )
+    }
+}
+
+/// Appends `x` to `xs`, asking the allocator instead of aborting: `false` when memory ran
+/// out (the vector is unchanged), so that the caller can report an error to SQLite and the
+/// host process lives on.
+#[inline(always)]
+pub(crate) fn try_push(xs: &mut Vec<f64>, x: f64) -> bool {
+    if xs.len() == xs.capacity() && !grow(xs) {
+        return false;
+    }
+    xs.push(x);
+    true
+}
+
+/// Grows a full vector (amortised doubling); `false` when memory ran out.
+#[cold]
+#[inline(never)]
+fn grow(xs: &mut Vec<f64>) -> bool {
+    xs.try_reserve(1).is_ok()
 }
 
 unsafe extern "C" fn x_inverse<S: RawWindow>(

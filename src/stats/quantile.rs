@@ -279,9 +279,6 @@ pub fn quantile_select(
     ty: QuantileType,
 ) -> Result<Option<f64>, StatsError> {
     check_probability(p)?;
-    if xs.iter().any(|x| x.is_nan()) {
-        return Err(StatsError::NotANumber);
-    }
     if xs.is_empty() {
         return Ok(None);
     }
@@ -290,13 +287,118 @@ pub fn quantile_select(
     let first = match plan {
         Plan::At(k) | Plan::Lerp { lo: k, .. } => index_of(k, n),
     };
+    let (a, next) = select_adjacent(xs, first)?;
+    Ok(evaluate(plan, |k| {
+        if index_of(k, n) == first { a } else { next }
+    }))
+}
+
+/// Below this many values [`select_adjacent`] goes straight to the standard library's
+/// selection: sampling would not pay for itself.
+const SAMPLED_SELECTION_FROM: usize = 1 << 15;
+
+/// The order-preserving integer key of a double: `key(a) < key(b)` exactly when
+/// `a.total_cmp(&b)` is `Less` (the transformation `f64::total_cmp` itself uses).
+#[inline(always)]
+fn order_key(x: f64) -> i64 {
+    let b = x.to_bits() as i64;
+    b ^ ((((b >> 63) as u64) >> 1) as i64)
+}
+
+/// The order statistics `x(first)` and `x(first + 1)` (0-based, by `f64::total_cmp`;
+/// the second is the first again when `first` is the last index), reordering `xs`.
+///
+/// Above [`SAMPLED_SELECTION_FROM`] values this is the sampling step of Floyd and Rivest
+/// (R. W. Floyd and R. L. Rivest, "Expected time bounds for selection", *Communications
+/// of the ACM* 18(3), 165-172, 1975): a sorted sample of about `n^(2/3)` values names two
+/// bounds that bracket the wanted rank with high probability; one pass counts the values
+/// below the lower bound and moves those between the bounds (a few percent) to the front,
+/// and the standard library's selection finishes on that short front part. The sample is
+/// drawn at fixed, scattered positions, so the result never depends on chance: when the
+/// bounds miss (possible only for unlucky orderings), the whole slice is selected as
+/// below, which is only slower. The same pass checks for NaN.
+///
+/// # Errors
+/// [`StatsError::NotANumber`] when the values contain NaN.
+fn select_adjacent(xs: &mut [f64], first: usize) -> Result<(f64, f64), StatsError> {
+    let n = xs.len();
+    if n >= SAMPLED_SELECTION_FROM
+        && let Some(pair) = select_sampled(xs, first)?
+    {
+        return Ok(pair);
+    }
+    if xs.iter().any(|x| x.is_nan()) {
+        return Err(StatsError::NotANumber);
+    }
     let (_, nth, right) = xs.select_nth_unstable_by(first, f64::total_cmp);
     let a = *nth;
     // The next order statistic is the smallest value to the right of the selected one.
     let next = right.iter().copied().min_by(f64::total_cmp).unwrap_or(a);
-    Ok(evaluate(plan, |k| {
-        if index_of(k, n) == first { a } else { next }
-    }))
+    Ok((a, next))
+}
+
+/// Where the `i`-th sample value of [`select_sampled`] is taken: in the `i`-th stride,
+/// at an offset scattered by a fixed multiplicative hash.
+#[inline]
+fn sample_position(i: usize, stride: usize) -> usize {
+    let jitter = (i as u64).wrapping_mul(0x9E37_79B9_7F4A_7C15) >> 32;
+    i * stride + (jitter as usize % stride)
+}
+
+/// The sampled path of [`select_adjacent`]; `Ok(None)` when the bounds missed (the slice
+/// holds the same values, in another order).
+fn select_sampled(xs: &mut [f64], first: usize) -> Result<Option<(f64, f64)>, StatsError> {
+    let n = xs.len();
+    let s = ((n as f64).powf(2.0 / 3.0) as usize).clamp(1024, n);
+    // A period in the data should not line up with the sample: see `sample_position`.
+    let stride = n / s;
+    let mut sample: Vec<i64> = (0..s)
+        .map(|i| order_key(xs[sample_position(i, stride)]))
+        .collect();
+    sample.sort_unstable();
+    // Floyd and Rivest's gap: sqrt(s ln n) sample ranks each side of the expected rank
+    // (the rank's binomial sd is at most sqrt(s) / 2, so the gap is over 8 sds at n = 1e6).
+    let gap = ((s as f64) * (n as f64).ln()).sqrt() as usize + 1;
+    let centre = ((first as f64 + 0.5) / n as f64 * s as f64) as usize;
+    let lo = if centre > gap {
+        sample[centre - gap]
+    } else {
+        i64::MIN
+    };
+    let hi = sample.get(centre + gap + 1).copied().unwrap_or(i64::MAX);
+    drop(sample);
+
+    // One pass: count the values below `lo`, move those in [lo, hi] to the front.
+    // `lo <= k <= hi` as one unsigned comparison: the branch is taken for a few percent of
+    // the values and predicts well, while a branch on `k < lo` would miss half the time.
+    let span = hi.wrapping_sub(lo) as u64;
+    let mut below = 0usize;
+    let mut middle = 0usize;
+    let mut nan = false;
+    for i in 0..n {
+        let x = xs[i];
+        nan |= x.is_nan();
+        let k = order_key(x);
+        below += usize::from(k < lo);
+        if k.wrapping_sub(lo) as u64 <= span {
+            xs.swap(middle, i);
+            middle += 1;
+        }
+    }
+    if nan {
+        return Err(StatsError::NotANumber);
+    }
+    // Both wanted ranks must fall inside the middle part (the second one only when it
+    // exists).
+    let last = (first + 1).min(n - 1);
+    if first < below || last >= below + middle {
+        return Ok(None);
+    }
+    let part = &mut xs[..middle];
+    let (_, nth, right) = part.select_nth_unstable_by(first - below, f64::total_cmp);
+    let a = *nth;
+    let next = right.iter().copied().min_by(f64::total_cmp).unwrap_or(a);
+    Ok(Some((a, next)))
 }
 
 /// Values sorted ascending with their cumulative frequency weights, ready for repeated
@@ -455,6 +557,91 @@ mod tests {
                 );
             }
         }
+    }
+
+    /// A small xorshift generator for test data (not a statistical claim).
+    fn scrambled(n: usize, seed: u64, f: impl Fn(u64) -> f64) -> Vec<f64> {
+        let mut s = seed;
+        (0..n)
+            .map(|_| {
+                s ^= s << 13;
+                s ^= s >> 7;
+                s ^= s << 17;
+                f(s)
+            })
+            .collect()
+    }
+
+    /// `select_adjacent` against a full sort by `total_cmp` (exhaustive over the checked
+    /// ranks; exact equality of bits required).
+    fn check_adjacent(data: &[f64], firsts: &[usize]) {
+        let mut sorted = data.to_vec();
+        sorted.sort_by(f64::total_cmp);
+        let n = data.len();
+        for &first in firsts {
+            let mut scratch = data.to_vec();
+            let (a, b) = select_adjacent(&mut scratch, first).unwrap();
+            let want_b = sorted[(first + 1).min(n - 1)];
+            assert_eq!(
+                (a.to_bits(), b.to_bits()),
+                (sorted[first].to_bits(), want_b.to_bits()),
+                "n {n} first {first}"
+            );
+            let mut kept = scratch;
+            kept.sort_by(f64::total_cmp);
+            assert_eq!(kept, sorted, "the slice keeps its values");
+        }
+    }
+
+    #[test]
+    fn sampled_selection_equals_sorting() {
+        let n = SAMPLED_SELECTION_FROM * 3 + 17;
+        let firsts = [0, 1, 2, n / 3, n / 2, n / 2 + 1, n - 3, n - 2, n - 1];
+        let unit = |s: u64| (s >> 11) as f64 / (1u64 << 53) as f64;
+        let random = scrambled(n, 1, unit);
+        check_adjacent(&random, &firsts);
+        let mut ascending = random.clone();
+        ascending.sort_by(f64::total_cmp);
+        check_adjacent(&ascending, &firsts);
+        ascending.reverse();
+        check_adjacent(&ascending, &firsts);
+        // Heavy ties, signed zeros and infinities: total_cmp puts -0.0 before 0.0.
+        let tied = scrambled(n, 2, |s| match s % 7 {
+            0 => -0.0,
+            1 => 0.0,
+            2 => f64::INFINITY,
+            3 => f64::NEG_INFINITY,
+            k => k as f64,
+        });
+        check_adjacent(&tied, &firsts);
+        check_adjacent(&vec![4.25; n], &firsts);
+    }
+
+    #[test]
+    fn sampled_selection_survives_a_missed_bracket() {
+        // Adversarial order: every sampled position holds a huge value, so the bounds
+        // bracket the wrong ranks and the sampled path must report a miss, after which
+        // the full selection still gives the exact answer.
+        let n = SAMPLED_SELECTION_FROM * 2;
+        let s = ((n as f64).powf(2.0 / 3.0) as usize).clamp(1024, n);
+        let stride = n / s;
+        let mut data = scrambled(n, 3, |x| (x % 1000) as f64);
+        for i in 0..s {
+            data[sample_position(i, stride)] = 1e9 + i as f64;
+        }
+        let mut scratch = data.clone();
+        assert_eq!(select_sampled(&mut scratch, n / 2).unwrap(), None);
+        check_adjacent(&data, &[n / 2, 0, n - 1]);
+    }
+
+    #[test]
+    fn sampled_selection_rejects_nan() {
+        let mut data = vec![1.0; SAMPLED_SELECTION_FROM + 5];
+        data[SAMPLED_SELECTION_FROM] = f64::NAN;
+        assert_eq!(
+            quantile_select(&mut data, 0.5, QuantileType::DEFAULT),
+            Err(StatsError::NotANumber)
+        );
     }
 
     #[test]

@@ -18,7 +18,7 @@ import numpy as np
 import pytest
 import scipy.stats
 
-from conftest import load_column, rows, scalar
+from conftest import expect_error, load_column, rows, scalar
 
 METHODS = [
     "inverted_cdf",
@@ -187,3 +187,38 @@ def test_bad_input_gives_named_errors(conn, sql, message):
 def test_numeric_text_is_accepted(conn):
     # TEXT columns from CSV imports hold numbers as text; they count as numbers.
     assert scalar(conn, "SELECT quantile(column1, 0.5) FROM (VALUES ('1'), (' 2.5 '), ('4'))") == 2.5
+
+
+# The lean per-row path (src/functions/raw.rs) takes every row after the first whose
+# constant argument reads as the same number with the same bits; anything else goes
+# through the full checks. These cases put the odd row after several ordinary ones, so
+# that it meets the lean path. Expected values: numpy.quantile(x, 0.5) (linear) and
+# numpy.mean(x <= t) on the rows that count.
+LANE_ROWS = "(1.0, 0.5), (2.0, 0.5), (3, 0.5), (4.0, 0.5)"
+
+
+@pytest.mark.parametrize(
+    "odd_row, message",
+    [
+        ("(5.0, 0.25)", "quantile: p must be the same on every row of a group, got 0.5 and then 0.25"),
+        ("(5.0, NULL)", "quantile: p must be the same on every row of a group, got 0.5 and then NULL"),
+        ("(5.0, '0.5 or so')", "quantile: p must be a number (INTEGER or REAL), got TEXT '0.5 or so'"),
+        ("(5.0, x'00')", "quantile: p must be a number (INTEGER or REAL), got a BLOB of 1 bytes"),
+        ("('warm', 0.5)", "quantile: x must be a number (INTEGER or REAL), got TEXT 'warm'"),
+    ],
+)
+def test_lean_path_still_rejects_a_late_odd_row(conn, odd_row, message):
+    expect_error(conn, f"SELECT quantile(column1, column2) FROM (VALUES {LANE_ROWS}, {odd_row})", message)
+
+
+def test_lean_path_counts_what_the_full_path_counts(conn):
+    # A late NULL x is skipped, numeric TEXT x counts, an INTEGER constant equals its REAL.
+    values = f"VALUES {LANE_ROWS}, (NULL, 0.5), (' 2.5 ', 0.5), (10, 0.5)"
+    want = float(np.quantile([1.0, 2.0, 3.0, 4.0, 2.5, 10.0], 0.5))
+    assert scalar(conn, f"SELECT quantile(column1, column2) FROM ({values})") == want
+    t_rows = "VALUES (1.0, 3), (2.0, 3.0), (3.0, 3), (4.0, 3.0), (NULL, 3), (2.5, 3)"
+    want = float(np.mean(np.array([1.0, 2.0, 3.0, 4.0, 2.5]) <= 3.0))
+    assert scalar(conn, f"SELECT ecdf(column1, column2) FROM ({t_rows})") == want
+    # 0.0 and -0.0 are the same threshold (their bits differ, so the full path decides).
+    zeros = "VALUES (-1.0, 0.0), (0.0, -0.0), (1.0, 0.0), (-0.0, -0.0)"
+    assert scalar(conn, f"SELECT ecdf(column1, column2) FROM ({zeros})") == 0.75
