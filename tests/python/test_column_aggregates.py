@@ -202,7 +202,8 @@ LANE_ROWS = "(1.0, 0.5), (2.0, 0.5), (3, 0.5), (4.0, 0.5)"
     [
         ("(5.0, 0.25)", "quantile: p must be the same on every row of a group, got 0.5 and then 0.25"),
         ("(5.0, NULL)", "quantile: p must be the same on every row of a group, got 0.5 and then NULL"),
-        ("(5.0, '0.5 or so')", "quantile: p must be a number (INTEGER or REAL), got TEXT '0.5 or so'"),
+        ("(5.0, 'half')", "quantile: p must be a number (INTEGER or REAL), got TEXT 'half'"),
+        ("(5.0, '0.25 or so')", "quantile: p must be a number (INTEGER or REAL), got TEXT '0.25 or so'"),
         ("(5.0, x'00')", "quantile: p must be a number (INTEGER or REAL), got a BLOB of 1 bytes"),
         ("('warm', 0.5)", "quantile: x must be a number (INTEGER or REAL), got TEXT 'warm'"),
     ],
@@ -222,3 +223,14 @@ def test_lean_path_counts_what_the_full_path_counts(conn):
     # 0.0 and -0.0 are the same threshold (their bits differ, so the full path decides).
     zeros = "VALUES (-1.0, 0.0), (0.0, -0.0), (1.0, 0.0), (-0.0, -0.0)"
     assert scalar(conn, f"SELECT ecdf(column1, column2) FROM ({zeros})") == 0.75
+    # A zero constant always takes the full path, so a late NULL or word is still caught.
+    expect_error(
+        conn,
+        "SELECT ecdf(column1, column2) FROM (VALUES (1.0, 0), (2.0, 0.0), (3.0, 'zero'))",
+        "ecdf: t must be a number (INTEGER or REAL), got TEXT 'zero'",
+    )
+    expect_error(
+        conn,
+        "SELECT ecdf(column1, column2) FROM (VALUES (1.0, 0), (2.0, 0.0), (3.0, NULL))",
+        "ecdf: t must be the same on every row of a group, got 0.0 and then NULL",
+    )
