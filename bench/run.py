@@ -227,6 +227,12 @@ def bench_ks(ext, rows, reps, report):
     c.close()
 
 
+# The mixture case: scikit-learn's tolerances tried, loosest first, and how close to
+# ogive's log-likelihood (per row) counts as equal.
+MIXTURE_TOLERANCES = (1e-3, 1e-4, 1e-5, 1e-6, 1e-7, 1e-8, 1e-9, 1e-10, 1e-11, 1e-12)
+MIXTURE_SLACK = 1e-7
+
+
 def bench_mixture(ext, rows, reps, report):
     def make(rng, n):
         comp = rng.choice(3, size=n, p=[0.5, 0.3, 0.2])
@@ -242,28 +248,63 @@ def bench_mixture(ext, rows, reps, report):
 
     from sklearn.mixture import GaussianMixture
 
-    xs = np.array([r[0] for r in c.execute("SELECT x FROM t")]).reshape(-1, 1)
-    sk_time, gm = timed(lambda: GaussianMixture(3, random_state=0).fit(xs), reps)
-    sk_ll = float(gm.score(xs) * len(xs))
-    og_time, out = timed(sql_case(c, "SELECT dist_mixture(x, 3) FROM t"), reps)
-    floor = timed(sql_case(c, "SELECT sum(x) FROM t"), 5)[0]
+    og_time, out = timed(sql_case(c, "SELECT dist_mixture(x, 3) FROM t"), max(3, reps // 2))
     model = json.loads(out[0][0])
+    og_ll = float(model["loglik"])
+    floor = timed(sql_case(c, "SELECT sum(x) FROM t"), 5)[0]
+
+    xs = np.array([r[0] for r in c.execute("SELECT x FROM t")]).reshape(-1, 1)
+    n = len(xs)
+
+    def sklearn(tol):
+        gm = GaussianMixture(3, tol=tol, max_iter=100_000, random_state=0).fit(xs)
+        return gm, float(gm.score(xs) * n)
+
+    # scikit-learn's defaults (one k-means start, tol 1e-3) stop early, at a lower
+    # log-likelihood. The target compares at equal quality: the first tolerance on this
+    # ladder at which scikit-learn's log-likelihood comes within MIXTURE_SLACK per row of
+    # ogive's (or above it) is timed. The search's own runs are that time (one run each).
+    slack = MIXTURE_SLACK * n
+    default_time, (gm, default_ll) = timed(lambda: sklearn(1e-3), max(1, reps // 2))
+    default_iter = gm.n_iter_
+    ladder = []
+    matched = None
+    for tol in MIXTURE_TOLERANCES:
+        start = time.perf_counter()
+        gm, ll = sklearn(tol)
+        took = Seconds(time.perf_counter() - start, 1)
+        ladder.append(f"tol {tol:g}: {ll:.4f} in {gm.n_iter_} iterations, {took:.2f} s")
+        if ll >= og_ll - slack:
+            matched = (tol, took, ll, gm.n_iter_)
+            break
+    rows = [
+        ("dist_mixture(x, 3)", og_time),
+        ("sum(x) over the same rows (SQLite's scan alone)", floor),
+        ("sklearn GaussianMixture(3).fit, its defaults (tol 1e-3; lower log-likelihood)", default_time),
+    ]
+    if matched:
+        tol, took, ll, iters = matched
+        rows.append((f"sklearn GaussianMixture(3, tol={tol:g}).fit: equal log-likelihood", took))
     note = (
-        f"log-likelihood: ogive {model['loglik']:.3f} in {model.get('iterations')} iterations; "
-        f"scikit-learn {sk_ll:.3f} in {gm.n_iter_} iterations (its defaults: one k-means start, tol 1e-3). "
-        "Target: >= 50x faster at equal or better log-likelihood."
+        f"log-likelihood: ogive {og_ll:.4f} in {model.get('iterations')} iterations over all rows "
+        f"(10 starts ranked on a thinned copy; converged: {model.get('converged')}); scikit-learn "
+        f"with its defaults {default_ll:.4f} in {default_iter} iterations. Equal quality means "
+        f"within {MIXTURE_SLACK:g} per row ({slack:.2f} in all) of ogive's log-likelihood or above it; "
+        "scikit-learn's tolerance ladder (one k-means start, max_iter 100000): "
+        + "; ".join(ladder)
+        + ". Target: scikit-learn's time at equal log-likelihood >= 50x dist_mixture's."
     )
-    report.section(
-        f"Gaussian mixture, k = 3, {rows:,} rows",
-        [
-            ("sklearn GaussianMixture(3).fit", sk_time),
-            ("dist_mixture(x, 3)", og_time),
-            ("sum(x) over the same rows (SQLite's scan alone)", floor),
-        ],
-        note,
-    )
-    report.target("scikit-learn time / dist_mixture time", sk_time / og_time, 50, better="higher")
-    report.target("dist_mixture log-likelihood minus scikit-learn's", model["loglik"] - sk_ll, 0, unit="", better="higher")
+    report.section(f"Gaussian mixture, k = 3, {n:,} rows", rows, note)
+    if matched:
+        report.target(
+            "scikit-learn time at equal log-likelihood / dist_mixture time",
+            matched[1] / og_time,
+            50,
+            better="higher",
+        )
+    else:
+        report.target("scikit-learn time at equal log-likelihood / dist_mixture time", None, 50, better="higher")
+    report.target("dist_mixture log-likelihood minus scikit-learn's defaults'", og_ll - default_ll, 0, unit="", better="higher")
     c.close()
 
 
