@@ -29,8 +29,12 @@
 //!   its maximum, as estimated from the rise of one EM step and the rate at which EM
 //!   steps shrink (`rise / (1 - rate^2)`, Aitken's reasoning as in Bohning et al. 1994),
 //!   so that slowly converging runs go on; or after 10 000 passes (then `converged` is
-//!   false). Starts and candidate k are compared at `1e-8` per value; only the winner
-//!   continues to `1e-12`. `iterations` counts passes over the data.
+//!   false). The estimate needs two passes (from `p0`, EM gives `p1` and `p2`); when it
+//!   is met the run ends at once with `p1`, which is at least as good as `p0`, so a run
+//!   that starts next to its maximum costs two passes. Starts and candidate k are
+//!   compared at `1e-8` per value; only the winner continues to `1e-12` (and none does
+//!   when its last estimate already met that). `iterations` counts passes over the data
+//!   (and over the thinned copy below).
 //! - **Several starts.** Each k starts from the equal-count blocks of the sorted data (a
 //!   quantile start) and from nine k-means++ seedings (Arthur and Vassilvitskii 2007,
 //!   "k-means++: the advantages of careful seeding") refined by Lloyd iterations, drawn
@@ -38,14 +42,26 @@
 //!   same input always gives the same fit; identical starts run once. Every start runs
 //!   12 passes; the two best continue to the comparison tolerance and the better one
 //!   wins (the "short EM" strategy of Biernacki, Celeux and Govaert 2003, "Choosing starting values
-//!   for the EM algorithm", CSDA 41). Above 16,384 distinct values the starts are ranked
-//!   and the finalists compared on a thinned copy (consecutive sorted values merged into
-//!   their mean, at most 16,384 of them, total count kept), and the winner then runs on
-//!   all the values (for a given k; with k chosen by BIC, each candidate's winner does).
+//!   for the EM algorithm", CSDA 41).
+//! - **Thinned copy.** Above 16,384 distinct values the starts are drawn, ranked and the
+//!   finalists compared on a thinned copy: consecutive sorted values merged into their
+//!   count-weighted mean with the total count kept, a merged run holding at most
+//!   `ceil(m / 16,384)` values and spanning at most `2e-3` standardised units (or the
+//!   range over 16,384 when that is wider), so at most 32,769 points. Merging a run
+//!   loses only its inner spread, at most `span^2 / 4` in variance, so the thinned
+//!   copy's maximum lies next to the data's: the span bound keeps the sparse tails,
+//!   where runs of equal count are wide, from biasing the variances. The winner is
+//!   taken on the thinned copy to `1e-15` per value (at most 100 more passes, which cost
+//!   a sixtieth of a pass over a million values each), and only then runs on all the
+//!   values (for a given k; with k chosen by BIC, each candidate's winner does). There
+//!   it typically meets the convergence rule in the first two passes; every pass on all
+//!   the values is a plain EM step or an accepted SQUAREM step, and the reported
+//!   log-likelihood is that of the reported parameters on all the values.
 //! - **Cost.** Lloyd's iterations on sorted values find each part's boundaries by binary
 //!   search and its sums from prefix sums; an EM pass works a block of values one
 //!   component at a time over arrays, with an inlined exponential the compiler can
-//!   vectorise.
+//!   vectorise. On a million distinct values the sort and the passes over all values
+//!   dominate; everything on the thinned copy costs about as much as three such passes.
 //! - Components are reported sorted by mean.
 //!
 //! # Errors and NaN policy
@@ -76,6 +92,10 @@ const VARIANCE_FLOOR: f64 = 1e-6;
 /// continues to the strict one).
 const TOLERANCE: f64 = 1e-12;
 const SELECTION_TOLERANCE: f64 = 1e-8;
+/// The winner of the starts on the thinned copy is taken closer to the thinned copy's
+/// maximum (this tolerance, at most this many passes) before it moves to all the data.
+const POLISH_TOLERANCE: f64 = 1e-15;
+const POLISH_PASSES: u32 = 100;
 /// Halvings of a SQUAREM extrapolation before falling back to plain EM.
 const MAX_BACKTRACKS: usize = 8;
 /// Points per block of plain summation inside a pass.
@@ -91,6 +111,9 @@ const FINALISTS: usize = 2;
 /// Above this many distinct points the short runs rank the starts on a thinned copy of
 /// the data (`Data::thinned`).
 const THIN_TO: usize = 1 << 14;
+/// The widest run of standardised values the thinned copy merges into one point
+/// (unless the data's range over `THIN_TO` is wider).
+const THIN_SPAN: f64 = 2e-3;
 /// A component whose weighted count falls below this share of n is lost.
 const LOST_WEIGHT: f64 = 1e-12;
 
@@ -678,6 +701,11 @@ impl Data {
         for v in &mut x {
             *v = (*v - centre) / scale;
         }
+        Ok(Data::with_prefixes(x, count, total, centre, scale))
+    }
+
+    /// The data from merged standardised points, with their prefix sums.
+    fn with_prefixes(x: Vec<f64>, count: Vec<f64>, total: f64, centre: f64, scale: f64) -> Data {
         let mut prefix_count = Vec::with_capacity(x.len() + 1);
         let mut prefix_sum = Vec::with_capacity(x.len() + 1);
         let (mut pc, mut ps) = (0.0, NeumaierSum::default());
@@ -689,7 +717,7 @@ impl Data {
             prefix_count.push(pc);
             prefix_sum.push(ps.value());
         }
-        Ok(Data {
+        Data {
             x,
             count,
             prefix_count,
@@ -697,7 +725,7 @@ impl Data {
             total,
             centre,
             scale,
-        })
+        }
     }
 
     /// For many distinct points, a thinned copy on which the short runs rank the starts:
@@ -711,22 +739,28 @@ impl Data {
             return None;
         }
         let g = m.div_ceil(thin_to);
+        let range = self.x[m - 1] - self.x[0];
+        let span = THIN_SPAN.max(range / thin_to as f64);
         let (mut x, mut count) = (Vec::with_capacity(thin_to), Vec::with_capacity(thin_to));
-        for (xs, cs) in self.x.chunks(g).zip(self.count.chunks(g)) {
+        let mut start = 0;
+        while start < m {
+            let limit = (start + g).min(m);
+            let reach = self.x[start] + span;
+            let end = start + 1 + self.x[start + 1..limit].partition_point(|&v| v <= reach);
+            let (xs, cs) = (&self.x[start..end], &self.count[start..end]);
             let c: f64 = cs.iter().sum();
             let weighted: f64 = xs.iter().zip(cs).map(|(&v, &w)| v * w).sum();
             x.push(weighted / c);
             count.push(c);
+            start = end;
         }
-        Some(Data {
+        Some(Data::with_prefixes(
             x,
             count,
-            prefix_count: Vec::new(),
-            prefix_sum: Vec::new(),
-            total: self.total,
-            centre: self.centre,
-            scale: self.scale,
-        })
+            self.total,
+            self.centre,
+            self.scale,
+        ))
     }
 
     /// The log-likelihood in the data's units from a standardised one.
@@ -756,22 +790,22 @@ impl Data {
     /// the finalists compared on it, and the winner then continues on these data.
     fn best_run(&self, k: usize, thin: Option<&Data>) -> Option<Run> {
         let tolerance = SELECTION_TOLERANCE;
+        let ranking = thin.unwrap_or(self);
         let mut starts: Vec<Params> = Vec::new();
-        if let Some(p) = self.quantile_start(k) {
+        if let Some(p) = ranking.quantile_start(k) {
             starts.push(p);
         }
         if k > 1 {
             for seed in 0..KMEANS_STARTS {
                 // k-means often settles on the same partition from different seeds;
                 // each distinct start runs once.
-                if let Some(p) = self.kmeans_start(k, seed)
+                if let Some(p) = ranking.kmeans_start(k, seed)
                     && !starts.iter().any(|q| q.same_as(&p))
                 {
                     starts.push(p);
                 }
             }
         }
-        let ranking = thin.unwrap_or(self);
         let mut short: Vec<Run> = starts
             .into_iter()
             .filter_map(|p| ranking.em(p, 0, SHORT_ITERATIONS, tolerance))
@@ -784,7 +818,17 @@ impl Data {
             .max_by(|a, b| a.loglik.total_cmp(&b.loglik))?;
         match thin {
             // The winner on the thinned points continues here, on all of them.
-            Some(_) => self.em(best.params, best.iterations, MAX_ITERATIONS, tolerance),
+            Some(thin) => {
+                let best = thin
+                    .em(
+                        best.params,
+                        best.iterations,
+                        best.iterations + POLISH_PASSES,
+                        POLISH_TOLERANCE,
+                    )
+                    .unwrap_or(best);
+                self.em(best.params, best.iterations, MAX_ITERATIONS, tolerance)
+            }
             None => Some(best),
         }
     }
@@ -816,18 +860,18 @@ impl Data {
         let (mut ll0, mut p1) = self.em_pass(&start)?;
         passes += 1;
         let mut p0 = start;
-        let stop = |p: Params, loglik: f64, passes: u32, converged: bool| {
+        let stop = |p: Params, loglik: f64, passes: u32, converged: bool, met: f64| {
             Some(Run {
                 params: p,
                 loglik,
                 iterations: passes,
                 converged,
-                tolerance,
+                tolerance: met,
             })
         };
         loop {
             if passes + 2 > limit {
-                return stop(p0, ll0, passes, false);
+                return stop(p0, ll0, passes, false, tolerance);
             }
             let (ll1, p2) = self.em_pass(&p1)?;
             passes += 1;
@@ -846,6 +890,22 @@ impl Data {
             } else {
                 f64::INFINITY
             };
+            if gap < tolerance * self.total {
+                // p0 was within the tolerance, and p1, one EM step on, is at least as
+                // good (up to rounding). A run started near its end, as the winner
+                // coming from the thinned copy is, stops after two passes. The run is
+                // marked with the strict tolerance too when it meets that one.
+                let met = if gap < TOLERANCE * self.total {
+                    tolerance.min(TOLERANCE)
+                } else {
+                    tolerance
+                };
+                return if ll1 >= ll0 {
+                    stop(p1, ll1, passes, true, met)
+                } else {
+                    stop(p0, ll0, passes, true, met)
+                };
+            }
             let mut next = p2;
             let (r, v) = (p1.minus(&p0), p2.minus(&p1).minus(&p1.minus(&p0)));
             let (nr, nv) = (r.norm(), v.norm());
@@ -869,11 +929,7 @@ impl Data {
             passes += 1;
             if ll < ll0 {
                 // A rounding-level fall keeps the earlier point.
-                return stop(p0, ll0, passes, true);
-            }
-            if gap < tolerance * self.total {
-                // p0 was within the tolerance; the cycle's end is better still.
-                return stop(next, ll, passes, true);
+                return stop(p0, ll0, passes, true, tolerance);
             }
             (p0, ll0, p1) = (next, ll, after);
         }
