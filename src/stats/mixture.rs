@@ -738,8 +738,10 @@ impl Data {
     }
 
     /// For many distinct points, a thinned copy on which the short runs rank the starts:
-    /// the sorted points in consecutive runs of `g` (so that at most `thin_to` remain),
-    /// each replaced by its count-weighted mean carrying the run's total count. The total
+    /// the sorted points in consecutive runs of at most `g` (so that at most `thin_to`
+    /// runs are full) spanning at most `span` (so that at most `thin_to + 1` runs end
+    /// early, their starts being more than `span` apart), each replaced by its
+    /// count-weighted mean carrying the run's total count. The total
     /// count, and so the scale of the log-likelihood, is unchanged. `None` when there are
     /// at most `thin_to` distinct points (then the starts are ranked on the data).
     fn thinned(&self, thin_to: usize) -> Option<Data> {
@@ -795,8 +797,10 @@ impl Data {
     }
 
     /// The best EM run for k components over all starts, converged to the selection
-    /// tolerance. When `thin` is given (see [`Data::thinned`]) the starts are ranked and
-    /// the finalists compared on it, and the winner then continues on these data.
+    /// tolerance. When `thin` is given (see [`Data::thinned`]) the starts are drawn,
+    /// ranked and the finalists compared on it; the winner is polished there (to
+    /// [`POLISH_TOLERANCE`], at most [`POLISH_PASSES`] more passes) and then continues
+    /// on these data.
     fn best_run(&self, k: usize, thin: Option<&Data>) -> Option<Run> {
         let tolerance = SELECTION_TOLERANCE;
         let ranking = thin.unwrap_or(self);
