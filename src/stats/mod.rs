@@ -26,6 +26,8 @@
 //! - [`roots`]: the safeguarded root finder behind shape equations and mixture quantiles.
 //! - [`order`]: a multiset with order statistics in O(log n), behind the window forms of
 //!   `quantile`.
+//! - [`sorting`]: a bucket sort of doubles in `total_cmp` order, for the large sort of
+//!   [`mixture`].
 //! - [`sketch`]: a mergeable quantile sketch in bounded memory with a proven rank-error
 //!   bound (Karnin, Lang and Liberty 2016).
 //!
@@ -56,6 +58,7 @@ pub mod rng;
 pub mod roots;
 pub mod sample;
 pub mod sketch;
+pub mod sorting;
 pub mod sum;
 
 use std::fmt;
