@@ -84,6 +84,25 @@ def timed(fn, reps):
     return Seconds(statistics.median(times), len(times)), result
 
 
+def interleaved(cases, reps):
+    """Times several fast cases in turns (one run of each per round, `reps` rounds), so
+    that a slow patch of a shared machine hits all of them alike. Returns each case's
+    median and each case's list of times, round by round."""
+    times = {label: [] for label, _ in cases}
+    for _ in range(reps):
+        for label, fn in cases:
+            start = time.perf_counter()
+            fn()
+            times[label].append(time.perf_counter() - start)
+    medians = {label: Seconds(statistics.median(ts), len(ts)) for label, ts in times.items()}
+    return medians, times
+
+
+def paired_ratio(times, label, floor):
+    """The median over rounds of `label`'s time over the floor's time in the same round."""
+    return statistics.median(a / b for a, b in zip(times[label], times[floor]))
+
+
 class Seconds(float):
     """A median time that remembers how many runs it is the median of."""
 
@@ -150,19 +169,19 @@ def bench_column(ext, rows, reps, report):
     path = column_dataset(ext, rows)
     c = connect(ext, path)
     t = float(np.exp(1.0))
-    results = []
-    for label, fn in [
+    # The targets are ratios of fast cases (under a second each): they run in turns, with
+    # at least 11 rounds, and each ratio is the median of the rounds' own ratios.
+    fast = [
         ("sum(x) (floor)", sql_case(c, "SELECT sum(x) FROM t")),
         ("count(x) (floor)", sql_case(c, "SELECT count(x) FROM t")),
         ("ecdf(x, t)", sql_case(c, "SELECT ecdf(x, ?) FROM t", (t,))),
         ("plain SQL share: avg(x <= t)", sql_case(c, "SELECT avg(x <= ?) FROM t", (t,))),
         ("quantile(x, 0.5)", sql_case(c, "SELECT quantile(x, 0.5) FROM t")),
-        (
-            "plain SQL median: ORDER BY x LIMIT 1 OFFSET n/2",
-            sql_case(c, "SELECT x FROM t ORDER BY x LIMIT 1 OFFSET (SELECT count(*) FROM t) / 2"),
-        ),
-    ]:
-        results.append((label, timed(fn, reps)[0]))
+    ]
+    medians, rounds = interleaved(fast, max(reps, 11))
+    results = [(label, medians[label]) for label, _ in fast]
+    median_sql = "SELECT x FROM t ORDER BY x LIMIT 1 OFFSET (SELECT count(*) FROM t) / 2"
+    results.append(("plain SQL median: ORDER BY x LIMIT 1 OFFSET n/2", timed(sql_case(c, median_sql), reps)[0]))
 
     def numpy_end_to_end():
         xs = np.fromiter((r[0] for r in c.execute("SELECT x FROM t")), dtype=float, count=rows)
@@ -171,11 +190,18 @@ def bench_column(ext, rows, reps, report):
     results.append(("numpy end to end: read column + numpy.quantile", timed(numpy_end_to_end, reps)[0]))
     xs = np.fromiter((r[0] for r in c.execute("SELECT x FROM t")), dtype=float, count=rows)
     results.append(("numpy.quantile kernel alone (array in memory)", timed(lambda: np.quantile(xs, 0.5), reps)[0]))
-    report.section(f"One column, {rows:,} rows", results, "Targets: ecdf <= 1.1x sum(x); quantile <= 1.25x sum(x).")
-    times = dict(results)
-    floor = times["sum(x) (floor)"]
-    report.target("ecdf(x, t) / sum(x)", times["ecdf(x, t)"] / floor, 1.1)
-    report.target("quantile(x, 0.5) / sum(x)", times["quantile(x, 0.5)"] / floor, 1.25)
+    floor = "sum(x) (floor)"
+    ecdf_ratio = paired_ratio(rounds, "ecdf(x, t)", floor)
+    quantile_ratio = paired_ratio(rounds, "quantile(x, 0.5)", floor)
+    report.section(
+        f"One column, {rows:,} rows",
+        results,
+        "Targets: ecdf <= 1.1x sum(x); quantile <= 1.25x sum(x). The first five cases ran in turns "
+        f"({len(rounds[floor])} rounds); the targets use the median of each round's ratio "
+        f"(ecdf {ecdf_ratio:.3f}x, quantile {quantile_ratio:.3f}x), the table the median times.",
+    )
+    report.target("ecdf(x, t) / sum(x)", ecdf_ratio, 1.1)
+    report.target("quantile(x, 0.5) / sum(x)", quantile_ratio, 1.25)
     c.close()
     return path
 
