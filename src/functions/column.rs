@@ -161,7 +161,7 @@ fn real(x: Option<f64>) -> Value {
 // ecdf(x, t [, w])
 
 /// State of `ecdf(x, t)` and `ecdf(x, t, w)`: a running count, O(1) memory. Registered on
-/// the lean path ([`raw`]).
+/// the lean path (`functions::raw`).
 #[derive(Debug, Default)]
 pub struct EcdfState {
     t: Constant<f64>,
@@ -255,7 +255,7 @@ impl RawWindow for EcdfState {
 
 /// State of `quantile(x, p [, type])`: the non-NULL values of the group (or frame), in a
 /// vector for the plain aggregate and in an order-statistic tree once SQLite uses it as a
-/// window. Registered on the lean path ([`raw`]).
+/// window. Registered on the lean path (`functions::raw`).
 #[derive(Debug, Default)]
 pub struct QuantileState {
     xs: Vec<f64>,

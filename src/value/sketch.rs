@@ -20,7 +20,7 @@
 //! | end - 8 | 8 | FNV-1a 64-bit hash of every byte before it |
 //!
 //! Decoding checks the length, the magic, the version, the hash, and then every
-//! invariant a sketch keeps ([`QuantileSketch::from_parts`]), so a damaged, truncated or
+//! invariant a sketch keeps ([`QuantileSketch::from_state`]), so a damaged, truncated or
 //! foreign BLOB is an error, never a wrong answer.
 
 use crate::stats::sketch::{MAX_LEVELS, QuantileSketch, SketchError, SketchState};
