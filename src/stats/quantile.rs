@@ -331,11 +331,17 @@ fn select_adjacent(xs: &mut [f64], first: usize) -> Result<(f64, f64), StatsErro
     if xs.iter().any(|x| x.is_nan()) {
         return Err(StatsError::NotANumber);
     }
-    let (_, nth, right) = xs.select_nth_unstable_by(first, f64::total_cmp);
+    Ok(select_pair(xs, first))
+}
+
+/// `x(k)` and `x(k + 1)` of `xs` by the standard library's selection (the second is the
+/// first again when `k` is the last index).
+fn select_pair(xs: &mut [f64], k: usize) -> (f64, f64) {
+    let (_, nth, right) = xs.select_nth_unstable_by(k, f64::total_cmp);
     let a = *nth;
     // The next order statistic is the smallest value to the right of the selected one.
     let next = right.iter().copied().min_by(f64::total_cmp).unwrap_or(a);
-    Ok((a, next))
+    (a, next)
 }
 
 /// The sample size of [`select_sampled`]: Floyd and Rivest's `n^(2/3)`, capped at
@@ -406,11 +412,7 @@ fn select_sampled(xs: &mut [f64], first: usize) -> Result<Option<(f64, f64)>, St
     if first < below || last >= below + middle {
         return Ok(None);
     }
-    let part = &mut xs[..middle];
-    let (_, nth, right) = part.select_nth_unstable_by(first - below, f64::total_cmp);
-    let a = *nth;
-    let next = right.iter().copied().min_by(f64::total_cmp).unwrap_or(a);
-    Ok(Some((a, next)))
+    Ok(Some(select_pair(&mut xs[..middle], first - below)))
 }
 
 /// Values sorted ascending with their cumulative frequency weights, ready for repeated
@@ -571,17 +573,10 @@ mod tests {
         }
     }
 
-    /// A small xorshift generator for test data (not a statistical claim).
+    /// `n` test values made by `f` from the project's generator (not a statistical claim).
     fn scrambled(n: usize, seed: u64, f: impl Fn(u64) -> f64) -> Vec<f64> {
-        let mut s = seed;
-        (0..n)
-            .map(|_| {
-                s ^= s << 13;
-                s ^= s >> 7;
-                s ^= s << 17;
-                f(s)
-            })
-            .collect()
+        let mut rng = crate::stats::rng::Xoshiro256pp::new(seed);
+        (0..n).map(|_| f(rng.next_u64())).collect()
     }
 
     /// `select_adjacent` against a full sort by `total_cmp` (exhaustive over the checked

@@ -101,15 +101,10 @@ mod tests {
         assert_eq!(bits(&sorted_total(xs)), bits(&want));
     }
 
-    /// A fixed-seed linear congruential stream (Knuth's MMIX constants).
+    /// A fixed-seed stream of 64-bit words (the project's generator).
     fn stream(seed: u64) -> impl FnMut() -> u64 {
-        let mut state = seed;
-        move || {
-            state = state
-                .wrapping_mul(6_364_136_223_846_793_005)
-                .wrapping_add(1_442_695_040_888_963_407);
-            state
-        }
+        let mut rng = crate::stats::rng::Xoshiro256pp::new(seed);
+        move || rng.next_u64()
     }
 
     #[test]

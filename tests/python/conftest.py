@@ -41,10 +41,10 @@ def scalar(conn, sql, params=()):
     return out[0][0]
 
 
-def expect_error(conn, sql, message):
+def expect_error(conn, sql, message, params=()):
     """Runs `sql` and checks that it fails with an error containing `message`."""
     with pytest.raises(Exception) as err:
-        rows(conn, sql)
+        rows(conn, sql, params)
     assert message in str(err.value), str(err.value)
 
 

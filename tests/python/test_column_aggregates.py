@@ -179,9 +179,7 @@ def test_profile_matches_numpy_and_scipy(conn):
 def test_bad_input_gives_named_errors(conn, sql, message):
     conn.execute("CREATE TABLE t(x)")
     conn.execute("INSERT INTO t VALUES (1), (2), (3)")
-    with pytest.raises(Exception) as err:
-        rows(conn, sql)
-    assert message in str(err.value), str(err.value)
+    expect_error(conn, sql, message)
 
 
 def test_numeric_text_is_accepted(conn):

@@ -22,7 +22,7 @@ import numpy as np
 import pytest
 import scipy.stats
 
-from conftest import rows, scalar
+from conftest import expect_error, rows, scalar
 from test_compare import assert_matches_ks_2samp, close, enumerate_p
 
 ALTERNATIVES = ["two-sided", "less", "greater"]
@@ -350,9 +350,7 @@ W = "(SELECT dist_empirical(column1, column2) FROM (VALUES (1, 1.5), (2, 1), (3,
     ],
 )
 def test_bad_input_gives_named_errors(conn, sql, message):
-    with pytest.raises(Exception) as err:
-        rows(conn, sql)
-    assert message in str(err.value), str(err.value)
+    expect_error(conn, sql, message)
 
 
 def test_fractional_weights_are_fine_for_wasserstein(conn):

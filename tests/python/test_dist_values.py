@@ -36,7 +36,7 @@ import pytest
 import scipy.stats
 from statsmodels.distributions.empirical_distribution import ECDF
 
-from conftest import load_column, rows, scalar
+from conftest import expect_error, load_column, rows, scalar
 from test_column_aggregates import METHODS, PS, close, grouped_data
 
 
@@ -586,9 +586,7 @@ def test_random_corruption_never_gives_an_answer(conn):
     ],
 )
 def test_bad_arguments_give_named_errors(conn, sql, message):
-    with pytest.raises(Exception) as err:
-        rows(conn, sql)
-    assert message in str(err.value), str(err.value)
+    expect_error(conn, sql, message)
 
 
 def test_numeric_text_arguments_are_accepted(conn):

@@ -453,10 +453,13 @@ def test_one_sample_errors(conn):
     # An exact p-value whose Durbin matrix would be too large (order 2 ceil(n d) - 1 > 1000
     # here: n = 5000, d about 0.15) is refused, not approximated.
     x = np.random.default_rng(3).normal(0.4, 1.0, 5000)
-    with pytest.raises(Exception) as err:
-        rows(conn, "SELECT dist_ks(dist_empirical(value), dist_model('normal', '{\"mean\": 0, "
-                   "\"sd\": 1}'), 'two-sided', 'exact') FROM json_each(?)", (json.dumps(list(x)),))
-    assert "dist_ks: the exact p-value is out of reach here (the Durbin matrix would have order" in str(err.value)
+    expect_error(
+        conn,
+        "SELECT dist_ks(dist_empirical(value), dist_model('normal', '{\"mean\": 0, "
+        "\"sd\": 1}'), 'two-sided', 'exact') FROM json_each(?)",
+        "dist_ks: the exact p-value is out of reach here (the Durbin matrix would have order",
+        (json.dumps(list(x)),),
+    )
     assert scalar(conn, "SELECT dist_ks(d, NULL) FROM v") is None
     assert scalar(conn, "SELECT dist_ks(d, m, NULL) FROM v") is None
 
