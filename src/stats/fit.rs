@@ -29,9 +29,11 @@
 //! # Errors and NaN policy
 //!
 //! Values must be finite ([`FitError::NotFinite`]). The positive families need every value
-//! `> 0` ([`FitError::NonPositive`]). A family needs at least as many values as it has
+//! `> 0` ([`FitError::NonPositive`]), except the exponential, which takes zeros as long
+//! as not every value is 0 (its MLE only needs a positive mean). A family needs at least as many values as it has
 //! parameters ([`FitError::TooFewPoints`]). When all values are equal the likelihood of
-//! every family but the exponential grows without bound ([`FitError::AllEqual`]); when
+//! every family but the exponential grows without bound, and the exponential's too when
+//! they all equal 0 ([`FitError::AllEqual`]); when
 //! they are so nearly equal, or so large, that the estimates leave the range of doubles,
 //! [`FitError::Degenerate`]. No fit ever returns a NaN or infinite parameter.
 
@@ -44,6 +46,7 @@ use statrs::function::gamma::{digamma, ln_gamma};
 use statrs::statistics::Distribution;
 
 use super::StatsError;
+use super::incomplete_gamma::{self, LARGE_SHAPE};
 use super::roots::{invert_cdf, solve_increasing};
 use super::sum::NeumaierSum;
 
@@ -267,7 +270,9 @@ enum Law {
     LogNormal(LogNormal),
     Exponential(Exp),
     Gamma(Gamma),
-    Weibull(Weibull),
+    /// With `scale^-shape` as statrs computes it: statrs' product forms are used while it
+    /// is a normal double, the log-space forms of [`weibull_cdf`] and friends otherwise.
+    Weibull(Weibull, f64),
     Uniform(Uniform),
 }
 
@@ -342,9 +347,10 @@ impl Parametric {
                 let rate = check(family, "scale", b, (1.0 / scale).is_finite(), "> 1e-308")?;
                 Law::Gamma(Gamma::new(shape, 1.0 / rate).map_err(|_| bad(1, b))?)
             }
-            Family::Weibull => {
-                Law::Weibull(Weibull::new(positive(0, a)?, positive(1, b)?).map_err(|_| bad(1, b))?)
-            }
+            Family::Weibull => Law::Weibull(
+                Weibull::new(positive(0, a)?, positive(1, b)?).map_err(|_| bad(1, b))?,
+                b.powf(-a),
+            ),
             Family::Uniform => {
                 let min = finite(0, a)?;
                 let max = check(family, "max", b, b > min, "finite and greater than min")?;
@@ -409,9 +415,27 @@ impl Parametric {
             // statrs computes 1 - exp(-rate t), which loses all digits for small t.
             Law::Exponential(_) if t <= 0.0 => 0.0,
             Law::Exponential(_) => -(-a * t).exp_m1(),
-            Law::Gamma(d) => d.cdf(t),
-            Law::Weibull(d) => d.cdf(t),
-            Law::Uniform(d) => d.cdf(t),
+            Law::Gamma(_) if a >= LARGE_SHAPE => incomplete_gamma::regularized(a, t / b).0,
+            Law::Gamma(d) => {
+                // statrs evaluates P(shape, t / scale) and panics when t / scale
+                // underflows to 0 or overflows; those ends are 0 and 1 by definition.
+                // It also gives 0 for a subnormal t / scale (as "equal to 0 within four
+                // ulps"); there the leading term of the series, x^shape / Gamma(shape +
+                // 1), is exact to within a relative 1e-300.
+                let x = t * (1.0 / b);
+                if t.is_nan() || (x >= f64::MIN_POSITIVE && x < f64::INFINITY) {
+                    d.cdf(t)
+                } else if x > 0.0 && x < f64::MIN_POSITIVE {
+                    (a * x.ln() - ln_gamma(a + 1.0)).exp().min(1.0)
+                } else if x > 0.0 {
+                    1.0
+                } else {
+                    0.0
+                }
+            }
+            Law::Weibull(d, inverse) => weibull_cdf(d, *inverse, a, b, t),
+            Law::Uniform(d) if (b - a).is_finite() => d.cdf(t),
+            Law::Uniform(_) => wide_uniform_cdf(a, b, t),
         }
     }
 
@@ -439,12 +463,28 @@ impl Parametric {
             }
         };
         match &self.law {
-            Law::Normal(d) => d.pdf(t),
-            Law::LogNormal(d) => d.pdf(t),
+            Law::Normal(d) => or_log(d.pdf(t), &|| d.ln_pdf(t)),
+            Law::LogNormal(d) => or_log(d.pdf(t), &|| d.ln_pdf(t)),
             Law::Exponential(d) => d.pdf(t),
+            Law::Gamma(_) if self.parameters[0] >= LARGE_SHAPE => {
+                let [shape, scale] = self.parameters;
+                (incomplete_gamma::ln_density(shape, t / scale) - scale.ln()).exp()
+            }
             Law::Gamma(d) => or_log(d.pdf(t), &|| d.ln_pdf(t)),
-            Law::Weibull(d) => or_log(d.pdf(t), &|| d.ln_pdf(t)),
-            Law::Uniform(d) => d.pdf(t),
+            // At 0 the density is scale^-1 for shape 1 and 0 or +inf otherwise (the values
+            // statrs gives while scale^-shape is finite).
+            Law::Weibull(..) if t == 0.0 => match self.parameters[0] {
+                k if k == 1.0 => 1.0 / self.parameters[1],
+                k if k > 1.0 => 0.0,
+                _ => f64::INFINITY,
+            },
+            Law::Weibull(d, inverse) if weibull_products_hold(*inverse, self.parameters[0], t) => {
+                or_log(d.pdf(t), &|| d.ln_pdf(t))
+            }
+            Law::Weibull(..) => weibull_log_pdf(self.parameters[0], self.parameters[1], t).exp(),
+            Law::Uniform(d) if (self.parameters[1] - self.parameters[0]).is_finite() => d.pdf(t),
+            Law::Uniform(_) if t < self.parameters[0] || t > self.parameters[1] => 0.0,
+            Law::Uniform(_) => 0.5 / (0.5 * self.parameters[1] - 0.5 * self.parameters[0]),
         }
     }
 
@@ -481,14 +521,82 @@ impl Parametric {
         // the root of this cdf, so that quantile(cdf(t)) = t to a few ulps. The
         // exponential, Weibull and uniform quantiles are exact closed forms.
         let polish = |q: f64| invert_cdf(|t| self.cdf(t), |t| self.pdf(t), p, q, q, lower);
-        Ok(match &self.law {
-            Law::Normal(d) => polish(d.inverse_cdf(p)),
+        let q = match &self.law {
+            Law::Normal(d) => {
+                let q = d.inverse_cdf(p);
+                if q.is_finite() {
+                    polish(q)
+                } else {
+                    // sd * sqrt 2 or the sum overflowed inside statrs: the same sum in
+                    // halves, refined as above.
+                    let z = standard_normal_quantile(p);
+                    let half = 0.5 * a + 0.5 * b * z;
+                    if half.abs() < f64::MAX / 2.0 {
+                        polish(2.0 * half)
+                    } else {
+                        f64::INFINITY.copysign(half)
+                    }
+                }
+            }
             Law::LogNormal(d) => polish(d.inverse_cdf(p)),
             Law::Exponential(d) => d.inverse_cdf(p),
-            Law::Gamma(d) => polish(d.inverse_cdf(p)),
-            Law::Weibull(d) => d.inverse_cdf(p),
-            Law::Uniform(d) => d.inverse_cdf(p),
-        })
+            Law::Gamma(_) if a >= LARGE_SHAPE => {
+                // Wilson and Hilferty (1931): (x / a)^(1/3) is nearly normal with mean
+                // 1 - 1/(9a) and variance 1/(9a); refined to the root of the cdf.
+                let z = standard_normal_quantile(p);
+                let c = 1.0 / (9.0 * a);
+                let guess = a * (1.0 - c + z * c.sqrt()).powi(3) * b;
+                polish(if guess > 0.0 && guess.is_finite() {
+                    guess
+                } else {
+                    a * b
+                })
+            }
+            Law::Gamma(d) => {
+                // statrs brackets its quantile by halving from 1 and would reach a t
+                // whose t / scale underflows (and panic) when even the cdf there exceeds
+                // p; then the search below finds the quantile among the doubles.
+                let floor = 4.0 * (f64::from_bits(1) / (1.0 / b)).max(f64::from_bits(1));
+                if self.cdf(floor) > p {
+                    f64::NAN
+                } else {
+                    polish(d.inverse_cdf(p))
+                }
+            }
+            Law::Weibull(d, inverse) => {
+                let q = d.inverse_cdf(p);
+                if inverse.is_normal() && q.is_normal() {
+                    q
+                } else {
+                    // scale (-ln(1 - p))^(1/shape), in log space.
+                    b * ((-(-p).ln_1p()).ln() / a).exp()
+                }
+            }
+            Law::Uniform(d) if (b - a).is_finite() => d.inverse_cdf(p),
+            Law::Uniform(_) => 2.0 * ((0.5 * b - 0.5 * a) * p + 0.5 * a),
+        };
+        let (lowest, highest) = (lower.max(f64::MIN), upper.min(f64::MAX));
+        if q.is_finite() && self.brackets(q.clamp(lowest, highest), p, lowest, highest) {
+            return Ok(q.clamp(lower, upper));
+        }
+        // The closed form or the iteration missed (an underflow, an overflow, a bracket
+        // the refinement could not find): search the doubles themselves.
+        if self.cdf(highest) < p {
+            // For 0 < p < 1 every family's quantile is finite; here it lies beyond the
+            // largest double.
+            return Err(StatsError::QuantileOverflow(p));
+        }
+        Ok(bisect_doubles(|t| self.cdf(t) >= p, lowest, highest))
+    }
+
+    /// Whether `q` is a p-quantile to the resolution of doubles: the cdf four doubles
+    /// below it is at most p and four doubles above it at least p, each within 1e-9 of
+    /// `min(p, 1 - p)` plus four ulps of p (the resolution of a cdf near 1) plus 1e-300.
+    fn brackets(&self, q: f64, p: f64, lowest: f64, highest: f64) -> bool {
+        let below = (0..4).fold(q, |t, _| t.next_down()).max(lowest);
+        let above = (0..4).fold(q, |t, _| t.next_up()).min(highest);
+        let tol = 1e-9 * p.min(1.0 - p) + 4.0 * f64::EPSILON * p + 1e-300;
+        self.cdf(below) <= p + tol && self.cdf(above) >= p - tol
     }
 
     /// The mean, `None` when it exceeds the range of doubles (a lognormal with a large
@@ -508,7 +616,7 @@ impl Parametric {
             Law::LogNormal(d) => d.mean(),
             Law::Exponential(d) => d.mean(),
             Law::Gamma(d) => d.mean(),
-            Law::Weibull(d) => d.mean(),
+            Law::Weibull(d, _) => d.mean(),
             Law::Uniform(d) => d.mean(),
         };
         m.filter(|m| m.is_finite())
@@ -530,7 +638,7 @@ impl Parametric {
             Law::LogNormal(d) => d.variance(),
             Law::Exponential(d) => d.variance(),
             Law::Gamma(d) => d.variance(),
-            Law::Weibull(d) => d.variance(),
+            Law::Weibull(d, _) => d.variance(),
             Law::Uniform(d) => d.variance(),
         };
         v.map(f64::sqrt).filter(|s| s.is_finite())
@@ -551,7 +659,109 @@ impl Parametric {
 /// assert!((normal_cdf(-1.0, 0.0, 1.0) - 0.15865525393145707).abs() < 1e-16);
 /// ```
 pub fn normal_cdf(t: f64, mean: f64, sd: f64) -> f64 {
-    0.5 * libm::erfc((mean - t) / (sd * std::f64::consts::SQRT_2))
+    let (num, den) = (mean - t, sd * std::f64::consts::SQRT_2);
+    if num.is_finite() && den.is_normal() {
+        0.5 * libm::erfc(num / den)
+    } else if num.is_finite() && den.is_finite() {
+        // A subnormal sd: scale by 2^600 (exact) so that sd sqrt 2 keeps its digits.
+        let k = 2f64.powi(600);
+        0.5 * libm::erfc((num * k) / (sd * k * std::f64::consts::SQRT_2))
+    } else {
+        // mean - t or sd sqrt 2 overflowed: the same ratio in halves (an infinite t
+        // still gives 0 or 1).
+        let z = (0.5 * mean - 0.5 * t) / (0.5 * sd) * std::f64::consts::FRAC_1_SQRT_2;
+        0.5 * libm::erfc(z)
+    }
+}
+
+/// The order-preserving integer key of a finite double (`key(a) < key(b)` exactly when
+/// `a < b`, with -0 just below +0).
+fn order_key(x: f64) -> i64 {
+    let b = x.to_bits() as i64;
+    b ^ (((b >> 63) as u64) >> 1) as i64
+}
+
+/// The double of an [`order_key`].
+fn from_order_key(k: i64) -> f64 {
+    f64::from_bits((k ^ (((k >> 63) as u64) >> 1) as i64) as u64)
+}
+
+/// The smallest double `t` in `[lo, hi]` with `reached(t)`, for a predicate that is false
+/// then true along the doubles and true at `hi`: bisection on the doubles' order keys, at
+/// most 64 evaluations whatever the range.
+fn bisect_doubles(reached: impl Fn(f64) -> bool, lo: f64, hi: f64) -> f64 {
+    let (mut a, mut b) = (i128::from(order_key(lo)), i128::from(order_key(hi)));
+    if reached(lo) {
+        return lo;
+    }
+    // Invariant: reached(from(a)) is false, reached(from(b)) is true.
+    while b - a > 1 {
+        let m = a + (b - a) / 2;
+        if reached(from_order_key(m as i64)) {
+            b = m;
+        } else {
+            a = m;
+        }
+    }
+    from_order_key(b as i64)
+}
+
+/// The standard normal quantile (statrs' inverse of its erfc), finite for `0 < p < 1`.
+fn standard_normal_quantile(p: f64) -> f64 {
+    Normal::standard().inverse_cdf(p)
+}
+
+/// The cdf of a uniform law on `[min, max]` whose width overflows a double: the ratio
+/// taken in halves, which are exact.
+fn wide_uniform_cdf(min: f64, max: f64, t: f64) -> f64 {
+    if t <= min {
+        0.0
+    } else if t >= max {
+        1.0
+    } else {
+        ((0.5 * t - 0.5 * min) / (0.5 * max - 0.5 * min)).clamp(0.0, 1.0)
+    }
+}
+
+/// Whether statrs' Weibull product forms, `t^shape * scale^-shape`, are exact enough at
+/// `t`: both factors normal doubles (neither overflowed, underflowed nor went subnormal).
+/// `t <= 0`, infinite or NaN also go to statrs, which handles them by definition.
+fn weibull_products_hold(inverse: f64, shape: f64, t: f64) -> bool {
+    !(t > 0.0 && t.is_finite()) || (inverse.is_normal() && t.powf(shape).is_normal())
+}
+
+/// `ln(t / scale)` for `t > 0`, from the ratio when it is a normal double and from the
+/// difference of logs otherwise (the ratio overflowed, underflowed or went subnormal).
+fn ln_ratio(t: f64, scale: f64) -> f64 {
+    let r = t / scale;
+    if r.is_normal() {
+        r.ln()
+    } else {
+        t.ln() - scale.ln()
+    }
+}
+
+/// The Weibull cdf `1 - exp(-(t / scale)^shape)`: statrs' product form where
+/// [`weibull_products_hold`], else `-expm1(-exp(shape ln(t / scale)))`, which neither
+/// overflows nor underflows for any shape.
+fn weibull_cdf(d: &Weibull, inverse: f64, shape: f64, scale: f64, t: f64) -> f64 {
+    if t <= 0.0 {
+        // statrs computes 0^shape * scale^-shape, NaN when the second factor overflowed.
+        0.0
+    } else if t == f64::INFINITY {
+        1.0
+    } else if weibull_products_hold(inverse, shape, t) {
+        d.cdf(t)
+    } else {
+        -(-(shape * ln_ratio(t, scale)).exp()).exp_m1()
+    }
+}
+
+/// The Weibull log density `ln k - ln scale + (k - 1) ln(t / scale) - (t / scale)^k` for
+/// `t > 0` finite, in log space.
+fn weibull_log_pdf(shape: f64, scale: f64, t: f64) -> f64 {
+    let lr = ln_ratio(t, scale);
+    shape.ln() - scale.ln() + (shape - 1.0) * lr - (shape * lr).exp()
 }
 
 /// A maximum-likelihood fit: the fitted distribution and how well it fits.
@@ -611,8 +821,11 @@ pub fn fit(xs: &[f64], family: Family) -> Result<ParametricFit, FitError> {
             got: xs.len(),
         });
     }
+    // The exponential's MLE, rate = 1 / mean, needs only a positive mean (scipy's
+    // expon.fit(x, floc=0) takes zeros too); the other positive families take ln x.
+    let allowed = |x: f64| x > 0.0 || (family == Family::Exponential && x == 0.0);
     if family.needs_positive()
-        && let Some(&value) = xs.iter().find(|&&x| x <= 0.0)
+        && let Some(&value) = xs.iter().find(|&&x| !allowed(x))
     {
         return Err(FitError::NonPositive { family, value });
     }
@@ -621,7 +834,7 @@ pub fn fit(xs: &[f64], family: Family) -> Result<ParametricFit, FitError> {
         .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &x| {
             (lo.min(x), hi.max(x))
         });
-    if lo == hi && family != Family::Exponential {
+    if lo == hi && (family != Family::Exponential || lo == 0.0) {
         return Err(FitError::AllEqual { family, value: lo });
     }
     let n = xs.len() as f64;
@@ -776,8 +989,17 @@ fn fit_gamma(xs: &[f64]) -> ([f64; 2], f64) {
         None => f64::NAN,
     };
     let scale = m / shape;
-    let sum_ln = compensated(xs.iter().map(|x| x.ln()));
-    let loglik = (shape - 1.0) * sum_ln - n * shape - n * shape * scale.ln() - n * ln_gamma(shape);
+    let loglik = if shape >= LARGE_SHAPE {
+        // The closed form below subtracts terms of size n * shape; the log density of
+        // incomplete_gamma::ln_density has no such cancellation.
+        compensated(
+            xs.iter()
+                .map(|x| incomplete_gamma::ln_density(shape, x / scale)),
+        ) - n * scale.ln()
+    } else {
+        let sum_ln = compensated(xs.iter().map(|x| x.ln()));
+        (shape - 1.0) * sum_ln - n * shape - n * shape * scale.ln() - n * ln_gamma(shape)
+    };
     ([shape, scale], loglik)
 }
 
@@ -910,7 +1132,7 @@ mod tests {
                     Law::LogNormal(d) => d.ln_pdf(x),
                     Law::Exponential(d) => d.ln_pdf(x),
                     Law::Gamma(d) => d.ln_pdf(x),
-                    Law::Weibull(d) => d.ln_pdf(x),
+                    Law::Weibull(d, _) => d.ln_pdf(x),
                     Law::Uniform(d) => d.ln_pdf(x),
                 })
                 .sum();
@@ -973,6 +1195,27 @@ mod tests {
         // The exponential has a finite maximum even for equal values: rate = 1 / value.
         let e = fit(&[4.0, 4.0], Family::Exponential).unwrap();
         assert_eq!(e.distribution.parameters(), vec![("rate", 0.25)]);
+        // Zeros are values of an exponential sample (scipy 1.17.1:
+        // scipy.stats.expon.fit([0, 0, 1, 3], floc=0) = (0, 1.0), scale 1, rate 1);
+        // the log-likelihood n (ln rate - 1) = -4 by the closed form. Only zeros: no MLE.
+        let z = fit(&[0.0, 0.0, 1.0, 3.0], Family::Exponential).unwrap();
+        assert_eq!(z.distribution.parameters(), vec![("rate", 1.0)]);
+        assert_eq!(z.loglik, -4.0);
+        assert_eq!(
+            fit(&[0.0, 0.0], Family::Exponential),
+            Err(FitError::AllEqual {
+                family: Family::Exponential,
+                value: 0.0
+            })
+        );
+        assert!(matches!(
+            fit(&[0.0, 1.0], Family::Gamma),
+            Err(FitError::NonPositive { value: 0.0, .. })
+        ));
+        assert!(matches!(
+            fit(&[-1.0, 1.0], Family::Exponential),
+            Err(FitError::NonPositive { value: -1.0, .. })
+        ));
         assert!(
             FitError::UnknownFamily("poisson".into())
                 .to_string()
@@ -1028,5 +1271,204 @@ mod tests {
         let n = Parametric::new(Family::Normal, &[1.0, 2.0]).unwrap();
         assert_eq!(n.quantile(0.0), Ok(f64::NEG_INFINITY));
         assert_eq!(n.quantile(0.5), Ok(1.0));
+    }
+
+    /// Parameter sets at the edges of what a fit or `dist_model` can produce, per family.
+    fn extreme_models() -> Vec<Parametric> {
+        let big = 1.7e308;
+        let mut out = Vec::new();
+        let mut push = |family, params: &[f64]| {
+            out.push(Parametric::new(family, params).expect("valid parameters"))
+        };
+        for (m, s) in [
+            (0.0, 1.0),
+            (0.0, 1e-300),
+            (1e308, 1e-300),
+            (-1e308, 1e308),
+            (big, big),
+            (0.0, 5e-324),
+            (1.7e9, 29.0),
+        ] {
+            push(Family::Normal, &[m, s]);
+        }
+        for (m, s) in [
+            (0.0, 1.0),
+            (0.0, 1e-10),
+            (700.0, 1e-3),
+            (-700.0, 50.0),
+            (0.0, 1e3),
+            (4.6, 1e-4),
+        ] {
+            push(Family::LogNormal, &[m, s]);
+        }
+        for rate in [1e-300, 1e-10, 1.0, 1e10, 1e300] {
+            push(Family::Exponential, &[rate]);
+        }
+        for shape in [
+            1e-3, 0.5, 2.0, 999.9, 1000.0, 1e4, 3.4e15, 1e16, 1e100, 1e300,
+        ] {
+            for scale in [1e-300, 4.9e-7, 1.0, 1e300] {
+                if shape * scale < f64::MAX {
+                    push(Family::Gamma, &[shape, scale]);
+                }
+            }
+        }
+        for shape in [1e-2, 1.0, 3.7, 300.0, 3801.0, 1e6, 1e15] {
+            for scale in [1e-300, 1e-8, 100.0, 1e300] {
+                push(Family::Weibull, &[shape, scale]);
+            }
+        }
+        for (lo, hi) in [
+            (-big, big),
+            (0.0, 1.0),
+            (1e-300, 2e-300),
+            (1e308, big),
+            (-5e-324, 5e-324),
+        ] {
+            push(Family::Uniform, &[lo, hi]);
+        }
+        out
+    }
+
+    #[test]
+    fn every_family_is_a_distribution_at_extreme_parameters() {
+        // A property check over the parameter sets above (exact expectations by the
+        // definition of a cdf and its inverse, no outside values): the cdf is a
+        // probability and non-decreasing, the density is >= 0 and not NaN, and for p in
+        // (0, 1) the quantile is finite, inside the support, and a root of cdf(t) = p to
+        // the resolution of doubles: cdf just below it is <= p and cdf just above it is
+        // >= p, each within 1e-9 of min(p, 1 - p) plus four ulps of p plus 1e-300 (the
+        // resolution of a computed cdf near 1). A quantile beyond
+        // the largest double must be the typed error instead.
+        let ps = [
+            1e-300,
+            1e-100,
+            1e-12,
+            1e-6,
+            0.001,
+            0.1,
+            0.3,
+            0.5,
+            0.7,
+            0.9,
+            0.999,
+            1.0 - 1e-9,
+            1.0 - 1e-15,
+        ];
+        for d in extreme_models() {
+            let name = format!("{} {:?}", d.family(), d.parameters());
+            let (lower, upper) = match d.family() {
+                Family::Normal => (f64::NEG_INFINITY, f64::INFINITY),
+                Family::Uniform => (d.parameters[0], d.parameters[1]),
+                _ => (0.0, f64::INFINITY),
+            };
+            let mut last = (f64::NEG_INFINITY, 0.0);
+            for &p in &ps {
+                let q = match d.quantile(p) {
+                    Ok(q) => q,
+                    Err(StatsError::QuantileOverflow(_)) => continue,
+                    Err(e) => panic!("{name}: quantile({p}) failed: {e}"),
+                };
+                assert!(
+                    q.is_finite() && q >= lower && q <= upper,
+                    "{name}: q({p}) = {q}"
+                );
+                let (c, f) = (d.cdf(q), d.pdf(q));
+                assert!((0.0..=1.0).contains(&c), "{name}: cdf({q}) = {c}");
+                assert!(f >= 0.0, "{name}: pdf({q}) = {f}");
+                let below = (0..4).fold(q, |t, _| t.next_down()).max(lower);
+                let above = (0..4).fold(q, |t, _| t.next_up()).min(upper);
+                let tol = 1e-9 * p.min(1.0 - p) + 4.0 * f64::EPSILON * p + 1e-300;
+                assert!(
+                    d.cdf(below) <= p + tol && d.cdf(above) >= p - tol,
+                    "{name}: p = {p}, q = {q}, cdf below {} above {}",
+                    d.cdf(below),
+                    d.cdf(above)
+                );
+                assert!(
+                    q >= last.0 && c >= last.1,
+                    "{name}: not monotone at p = {p}: {last:?} then {q} {c}"
+                );
+                last = (q, c);
+            }
+            for t in [
+                -f64::MAX,
+                -1.0,
+                0.0,
+                5e-324,
+                1e-300,
+                1.0,
+                1e300,
+                f64::MAX,
+                f64::INFINITY,
+            ] {
+                let c = d.cdf(t);
+                assert!((0.0..=1.0).contains(&c), "{name}: cdf({t}) = {c}");
+                assert!(d.pdf(t) >= 0.0, "{name}: pdf({t}) = {}", d.pdf(t));
+            }
+        }
+    }
+
+    #[test]
+    fn gamma_with_a_huge_shape_is_evaluated_stably() {
+        // The fit of 1700000000 + (1..=100): shape 3.468e15. Expected values: scipy
+        // 1.17.1, scipy.stats.gamma.cdf(t, a=3468347037933996.0,
+        // scale=4.901470446603999e-07) for t = 1700000050 and 1700000000, and
+        // scipy.stats.gamma.ppf(0.5, a=..., scale=...) = 1700000050.4999998. Tolerances:
+        // 1e-8 absolute on the cdf (one ulp of t moves it by 3e-9) and 1e-6 on the
+        // quantile (4 ulps of 1.7e9).
+        let xs: Vec<f64> = (1..=100).map(|i| 1_700_000_000.0 + f64::from(i)).collect();
+        let f = fit(&xs, Family::Gamma).unwrap();
+        let d = &f.distribution;
+        assert!(d.parameters[0] > 3e15, "{:?}", d.parameters());
+        let d =
+            Parametric::new(Family::Gamma, &[3468347037933996.0, 4.901470446603999e-07]).unwrap();
+        assert!((d.cdf(1700000050.0) - 0.49309011954947835).abs() < 1e-8);
+        assert!((d.cdf(1700000000.0) - 0.040105872126969686).abs() < 1e-8);
+        let median = d.quantile(0.5).unwrap();
+        assert!((median - 1700000050.4999998).abs() < 1e-6, "{median}");
+        // Shape 1e16, scale 1: scipy.stats.gamma.cdf(1e16 + 1e8, a=1e16) =
+        // 0.8413447460685428 and scipy.stats.gamma.ppf(0.3, a=1e16) = 9999999947559948.0
+        // (ulp 2 there; tolerance 4).
+        let e = Parametric::new(Family::Gamma, &[1e16, 1.0]).unwrap();
+        assert!((e.cdf(1e16 + 1e8) - 0.8413447460685428).abs() < 1e-8);
+        assert!((e.quantile(0.3).unwrap() - 9999999947559948.0).abs() <= 4.0);
+        // The log-likelihood of a gamma this close to normal is the normal fit's to
+        // within the skewness, 2 / sqrt(shape) < 1e-7 (normal limit); before the stable
+        // form it came out as 0.
+        let normal = fit(&xs, Family::Normal).unwrap();
+        assert!(
+            (f.loglik - normal.loglik).abs() < 1e-4 * normal.loglik.abs(),
+            "{} vs {}",
+            f.loglik,
+            normal.loglik
+        );
+    }
+
+    #[test]
+    fn weibull_with_a_large_shape_is_evaluated_in_log_space() {
+        // Part sizes 100 +- 0.05 give shape ~3800. Expected: scipy 1.17.1,
+        // scipy.stats.weibull_min.cdf(100.01, 3801.0, scale=100.0) = 0.7683211268978118,
+        // .ppf(0.5, 3801.0, scale=100.0) = 99.99035792553083 and .pdf(100.01, 3801.0,
+        // scale=100.0) = 12.876800100964363. Tolerances 1e-12 relative (the cdf's
+        // condition number is shape, so one ulp of t moves it by 4e-13 relative).
+        let d = Parametric::new(Family::Weibull, &[3801.0, 100.0]).unwrap();
+        assert!(
+            rel(d.cdf(100.01), 0.7683211268978118) < 1e-12,
+            "{}",
+            d.cdf(100.01)
+        );
+        assert!(rel(d.quantile(0.5).unwrap(), 99.99035792553083) < 1e-12);
+        assert!(
+            rel(d.pdf(100.01), 12.876800100964363) < 1e-12,
+            "{}",
+            d.pdf(100.01)
+        );
+        // The fit of such parts: finite parameters and a finite, in-range median.
+        let xs: Vec<f64> = (0..=100).map(|i| 99.95 + f64::from(i) * 0.001).collect();
+        let w = fit(&xs, Family::Weibull).unwrap().distribution;
+        let m = w.quantile(0.5).unwrap();
+        assert!(m > 99.95 && m < 100.05, "{m}");
+        assert!((0.0..=1.0).contains(&w.cdf(100.0)));
     }
 }

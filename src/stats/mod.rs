@@ -22,6 +22,8 @@
 //! - [`lilliefors`]: Kolmogorov-Smirnov with estimated normal or exponential parameters.
 //! - [`rng`]: a seeded generator for repeatable simulations.
 //! - [`fit`]: parametric families and their maximum-likelihood fits.
+//! - [`incomplete_gamma`]: the regularised incomplete gamma function for large shapes
+//!   (Temme's uniform asymptotic expansion), behind the gamma family of [`fit`].
 //! - [`mixture`]: univariate Gaussian mixtures, fitted by EM.
 //! - [`roots`]: the safeguarded root finder behind shape equations and mixture quantiles.
 //! - [`order`]: a multiset with order statistics in O(log n), behind the window forms of
@@ -47,6 +49,7 @@ mod fixtures;
 pub mod gof;
 pub mod grid;
 pub mod histogram;
+pub mod incomplete_gamma;
 pub mod kde;
 pub mod ks;
 pub mod lilliefors;
@@ -103,6 +106,8 @@ pub enum StatsError {
     BadGridSize(i64),
     /// A window removed a value it never added (a broken promise of the host).
     LeftFrameUnseen,
+    /// A model's p-quantile (0 < p < 1) lies beyond the largest double.
+    QuantileOverflow(f64),
 }
 
 impl fmt::Display for StatsError {
@@ -172,6 +177,11 @@ impl fmt::Display for StatsError {
                 f,
                 "n must be a whole number from 2 to {}, got {n}",
                 grid::MAX_POINTS
+            ),
+            StatsError::QuantileOverflow(p) => write!(
+                f,
+                "the {p} quantile of this model lies beyond the largest REAL (1.8e308); \
+                 rescale the model's parameters"
             ),
             StatsError::LeftFrameUnseen => write!(
                 f,
