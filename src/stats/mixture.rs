@@ -535,9 +535,21 @@ fn fit(xs: &[f64], k: Option<usize>, thin_to: usize) -> Result<MixtureFit, Mixtu
     };
     let run = data.resume(run, TOLERANCE).unwrap_or(run);
     let k = run.params.k;
-    let mixture = data
-        .to_mixture(&run.params)
-        .ok_or(MixtureError::NoFit { k })?;
+    let mixture = if k == 1 {
+        // One component's MLE is the sample mean and the sd with divisor n: exactly the
+        // centre and scale of the standardisation (compensated sums over the values
+        // themselves). Mapping the EM's standardised mean back would add the rounding
+        // of every (x - centre) / scale, of the order of 1e-16 max |x - centre|.
+        Mixture::new(vec![Component {
+            weight: 1.0,
+            mean: data.centre,
+            sd: data.scale,
+        }])
+        .map_err(|_| MixtureError::NoFit { k })?
+    } else {
+        data.to_mixture(&run.params)
+            .ok_or(MixtureError::NoFit { k })?
+    };
     let loglik = data.loglik_in_x(run.loglik);
     let (aic, bic) = information_criteria(loglik, need(k), n);
     candidates[slot] = Candidate {
@@ -1568,5 +1580,21 @@ mod tests {
         .unwrap();
         assert_eq!(m.mean(), 1.0);
         assert!((m.sd() - 3.5f64.sqrt()).abs() < 1e-15);
+    }
+
+    #[test]
+    fn one_component_mean_is_the_compensated_mean() {
+        // Exact arithmetic: (1e16 + 1 - 1e16 + 2) / 4 = 0.75 (the standardised EM mean
+        // mapped back gave 1.5175). The sd with divisor n is sqrt(5e31 + 0.6875) =
+        // 7071067811865475.244 (by hand; the 0.6875 moves it by 5e-17), tolerance 1e-15
+        // relative.
+        let f = fit_mixture(&[1e16, 1.0, -1e16, 2.0], Some(1)).unwrap();
+        let c = f.mixture.components()[0];
+        assert_eq!(c.mean, 0.75);
+        assert!(
+            (c.sd - 7071067811865475.244).abs() / c.sd < 1e-15,
+            "{}",
+            c.sd
+        );
     }
 }

@@ -186,7 +186,14 @@ fn evaluate(plan: Plan, mut at: impl FnMut(f64) -> f64) -> Option<f64> {
                 if a == b || t == 1.0 {
                     b
                 } else if a.is_finite() && b.is_finite() {
-                    lerp(a, b, t)
+                    if (b - a).is_finite() {
+                        lerp(a, b, t)
+                    } else {
+                        // b - a overflows (ends of opposite signs beyond 8.9e307): the
+                        // same interpolation on halves, which are exact at this size,
+                        // and doubled back; the result lies between a and b.
+                        2.0 * lerp(0.5 * a, 0.5 * b, t)
+                    }
                 } else {
                     // An infinite end: the weighted mean is that infinity, or undefined
                     // (NaN, reported as None) between -inf and +inf.
@@ -713,5 +720,24 @@ mod tests {
         assert!(WeightedSorted::new(vec![(1.0, f64::INFINITY)]).is_err());
         let empty = WeightedSorted::new(vec![(1.0, 0.0)]).unwrap();
         assert_eq!(empty.quantile(0.5, ty), Ok(None));
+    }
+
+    #[test]
+    fn interpolation_between_the_largest_doubles_does_not_overflow() {
+        // Exact arithmetic: the type 7 median of [-1.7e308, 1.7e308] is 0 and the 0.75
+        // quantile is 0.85e308 (halving and doubling are exact here; tolerance 0).
+        let xs = [-1.7e308, 1.7e308];
+        assert_eq!(
+            quantile_sorted(&xs, 0.5, QuantileType::DEFAULT),
+            Ok(Some(0.0))
+        );
+        assert_eq!(
+            quantile_sorted(&xs, 0.75, QuantileType::DEFAULT),
+            Ok(Some(0.85e308))
+        );
+        assert_eq!(
+            quantile_sorted(&[-f64::MAX, f64::MAX], 0.25, QuantileType::DEFAULT),
+            Ok(Some(-f64::MAX / 2.0))
+        );
     }
 }
