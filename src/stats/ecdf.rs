@@ -91,6 +91,9 @@ pub struct WeightedEcdfCounter {
     t: f64,
     at_or_below: ExactSum,
     total: ExactSum,
+    /// A running plain sum of the weights, only to tell cheaply when the exact total
+    /// may be near the largest double.
+    rough: f64,
 }
 
 impl WeightedEcdfCounter {
@@ -100,6 +103,7 @@ impl WeightedEcdfCounter {
             t,
             at_or_below: ExactSum::default(),
             total: ExactSum::default(),
+            rough: 0.0,
         }
     }
 
@@ -111,11 +115,19 @@ impl WeightedEcdfCounter {
     /// Counts one observation with frequency weight `w`.
     ///
     /// # Errors
-    /// [`StatsError::BadWeight`] when `w` is negative or not finite.
+    /// [`StatsError::BadWeight`] when `w` is negative or not finite;
+    /// [`StatsError::WeightOverflow`] when the total weight would pass the largest double
+    /// (the observation is then not counted).
     #[inline]
     pub fn add(&mut self, x: f64, w: f64) -> Result<(), StatsError> {
         check_weight(w)?;
         self.total.add(w)?;
+        self.rough += w;
+        if self.rough > f64::MAX / 4.0 && self.total.value().is_infinite() {
+            self.total.remove(w)?;
+            self.rough -= w;
+            return Err(StatsError::WeightOverflow);
+        }
         if x <= self.t {
             self.at_or_below.add(w)?;
         }
@@ -130,6 +142,7 @@ impl WeightedEcdfCounter {
     pub fn remove(&mut self, x: f64, w: f64) -> Result<(), StatsError> {
         check_weight(w)?;
         self.total.remove(w)?;
+        self.rough -= w;
         if x <= self.t {
             self.at_or_below.remove(w)?;
         }
@@ -137,7 +150,7 @@ impl WeightedEcdfCounter {
     }
 
     /// `F(t)`, or `None` while the total weight is zero. The total can overflow `f64`
-    /// only beyond 1.8e308; the ratio is then `None` rather than a wrong number.
+    /// only beyond 1.8e308, which [`WeightedEcdfCounter::add`] refuses.
     pub fn value(&self) -> Option<f64> {
         let total = self.total.value();
         (total > 0.0 && total.is_finite())
@@ -220,5 +233,17 @@ mod tests {
         assert!(c.add(1.0, -0.5).is_err());
         assert!(c.add(1.0, f64::NAN).is_err());
         assert_eq!(c.value(), None);
+    }
+
+    #[test]
+    fn weight_total_past_the_largest_double_is_an_error() {
+        // 1e308 + 1e308 exceeds f64::MAX = 1.797e308 (exact arithmetic): the second
+        // add is refused with the typed error and leaves the counter as it was.
+        let mut e = WeightedEcdfCounter::new(0.0);
+        e.add(-1.0, 1e308).unwrap();
+        assert_eq!(e.add(1.0, 1e308), Err(StatsError::WeightOverflow));
+        assert_eq!(e.value(), Some(1.0));
+        e.add(1.0, 1e308 / 4.0).unwrap();
+        assert_eq!(e.value(), Some(0.8));
     }
 }

@@ -130,7 +130,7 @@ impl fmt::Display for StatsError {
             ),
             StatsError::WeightOverflow => write!(
                 f,
-                "the weights sum to more than the largest double; scale them down"
+                "the weights sum past the largest REAL (1.8e308); rescale them (divide every weight by the same factor)"
             ),
             StatsError::NotSorted { index } => write!(
                 f,

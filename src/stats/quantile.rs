@@ -447,7 +447,8 @@ impl WeightedSorted {
     ///
     /// # Errors
     /// [`StatsError::BadWeight`] for a negative or non-finite weight;
-    /// [`StatsError::NotANumber`] for a NaN value.
+    /// [`StatsError::NotANumber`] for a NaN value; [`StatsError::WeightOverflow`] when
+    /// the weights sum past the largest double.
     pub fn new(mut pairs: Vec<(f64, f64)>) -> Result<Self, StatsError> {
         for &(x, w) in &pairs {
             if x.is_nan() {
@@ -459,6 +460,9 @@ impl WeightedSorted {
         pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
         let (values, weights): (Vec<f64>, Vec<f64>) = pairs.into_iter().unzip();
         let cumulative = sum::cumulative(&weights);
+        if cumulative.last().is_some_and(|w| !w.is_finite()) {
+            return Err(StatsError::WeightOverflow);
+        }
         Ok(WeightedSorted { values, cumulative })
     }
 
@@ -491,7 +495,8 @@ impl WeightedSorted {
 ///
 /// # Errors
 /// [`StatsError::ProbabilityOutOfRange`] when `p` is not in `[0, 1]`;
-/// [`StatsError::LengthMismatch`] when the two slices differ in length.
+/// [`StatsError::LengthMismatch`] when the two slices differ in length;
+/// [`StatsError::WeightOverflow`] when the total weight is infinite.
 ///
 /// # Example
 /// ```
@@ -516,6 +521,9 @@ pub fn quantile_cumulative(
     let Some(&total) = cumulative.last() else {
         return Ok(None);
     };
+    if !total.is_finite() {
+        return Err(StatsError::WeightOverflow);
+    }
     if ty.0 == 1 {
         // The inverse of the weighted ECDF as ecdf_cumulative computes it: the first value
         // whose cumulative share reaches p (numpy's weighted inverted_cdf searches the
@@ -739,5 +747,20 @@ mod tests {
             quantile_sorted(&[-f64::MAX, f64::MAX], 0.25, QuantileType::DEFAULT),
             Ok(Some(-f64::MAX / 2.0))
         );
+    }
+
+    #[test]
+    fn weights_summing_past_the_largest_double_are_an_error() {
+        // 1e308 + 1e308 > f64::MAX (exact arithmetic): one typed error, not a 1.0 at
+        // every p.
+        let pairs = vec![(1.0, 1e308), (2.0, 1e308)];
+        assert_eq!(WeightedSorted::new(pairs), Err(StatsError::WeightOverflow));
+        let q = quantile_cumulative(
+            &[1.0, 2.0],
+            &[1e308, f64::INFINITY],
+            0.5,
+            QuantileType::DEFAULT,
+        );
+        assert_eq!(q, Err(StatsError::WeightOverflow));
     }
 }
