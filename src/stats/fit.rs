@@ -896,8 +896,16 @@ fn mean_and_sd(xs: impl Iterator<Item = f64> + Clone) -> (f64, f64) {
     let values: Vec<f64> = xs.collect();
     let m = mean(&values);
     let scale = values.iter().fold(0.0f64, |a, x| a.max((x - m).abs()));
-    if scale == 0.0 || !scale.is_finite() {
+    if scale == 0.0 {
         return (m, 0.0);
+    }
+    if !scale.is_finite() {
+        // x - m overflowed (values of both signs near 1.8e308): the same on halves.
+        let half = values
+            .iter()
+            .fold(0.0f64, |a, x| a.max((0.5 * x - 0.5 * m).abs()));
+        let ss = compensated(values.iter().map(|x| ((0.5 * x - 0.5 * m) / half).powi(2)));
+        return (m, 2.0 * half * (ss / values.len() as f64).sqrt());
     }
     let ss = compensated(values.iter().map(|x| ((x - m) / scale).powi(2)));
     (m, scale * (ss / values.len() as f64).sqrt())
@@ -1470,5 +1478,15 @@ mod tests {
         let m = w.quantile(0.5).unwrap();
         assert!(m > 99.95 && m < 100.05, "{m}");
         assert!((0.0..=1.0).contains(&w.cdf(100.0)));
+    }
+
+    #[test]
+    fn normal_fit_of_values_near_the_largest_double() {
+        // Exact arithmetic: [-1.7e308, 1.7e308] has mean 0 and sd (divisor n) 1.7e308;
+        // tolerance 1e-15 relative.
+        let f = fit(&[-1.7e308, 1.7e308], Family::Normal).unwrap();
+        let p = f.distribution.parameters();
+        assert_eq!(p[0].1, 0.0);
+        assert!(rel(p[1].1, 1.7e308) < 1e-15, "{p:?}");
     }
 }

@@ -107,6 +107,11 @@ pub struct Moments {
     pub m3: f64,
     /// Fourth central moment, divisor `W`.
     pub m4: f64,
+    /// The power of two the values were multiplied by before `m2`, `m3` and `m4` were
+    /// taken: 1 unless a sum or a power overflowed (values near 1.8e308), so that the
+    /// moments are those of `x * scale`. Ratios such as `m3 / m2^1.5` do not depend on
+    /// it; [`Moments::population_sd`] and [`Moments::sample_sd`] divide it out.
+    pub scale: f64,
 }
 
 impl Moments {
@@ -131,11 +136,28 @@ impl Moments {
         if !(weight > 0.0 && weight.is_finite()) || values.iter().any(|x| !x.is_finite()) {
             return None;
         }
+        let plain = Moments::scaled(values, weights, weight, 1.0);
+        if plain.is_some_and(|m| m.m2.is_finite() && m.m3.is_finite() && m.m4.is_finite()) {
+            return plain;
+        }
+        // A sum or a power overflowed: the same moments of x * 2^-e with 2^e above the
+        // largest |x|, so that every scaled value is at most 1 (exact but for values
+        // below 2^-1022 times 2^e, far below the rounding of the sums).
+        let top = values.iter().fold(0.0f64, |a, x| a.max(x.abs()));
+        let e = top.log2().ceil() as i32 + 1;
+        Moments::scaled(values, weights, weight, 2f64.powi(-e.clamp(0, 1022)))
+    }
+
+    /// The moments of `x * scale` (mean reported unscaled).
+    fn scaled(values: &[f64], weights: Option<&[f64]>, weight: f64, scale: f64) -> Option<Moments> {
         let w = |i: usize| weights.map_or(1.0, |w| w[i]);
         let mut s = NeumaierSum::default();
         match weights {
-            None => values.iter().for_each(|&x| s.add(x)),
-            Some(ws) => values.iter().zip(ws).for_each(|(&x, &w)| s.add(w * x)),
+            None => values.iter().for_each(|&x| s.add(x * scale)),
+            Some(ws) => values
+                .iter()
+                .zip(ws)
+                .for_each(|(&x, &w)| s.add(w * (x * scale))),
         }
         let mean = s.value() / weight;
         if !mean.is_finite() {
@@ -148,7 +170,7 @@ impl Moments {
         );
         for (i, &x) in values.iter().enumerate() {
             let wi = w(i);
-            let d = x - mean;
+            let d = x * scale - mean;
             let d2 = d * d;
             m2.add(wi * d2);
             m3.add(wi * (d2 * d));
@@ -156,16 +178,17 @@ impl Moments {
         }
         Some(Moments {
             weight,
-            mean,
+            mean: mean / scale,
             m2: m2.value() / weight,
             m3: m3.value() / weight,
             m4: m4.value() / weight,
+            scale,
         })
     }
 
     /// The standard deviation with divisor `W` (numpy's `std(x)`, ddof 0).
     pub fn population_sd(&self) -> f64 {
-        self.m2.sqrt()
+        self.m2.sqrt() / self.scale
     }
 
     /// The sample standard deviation with divisor `W - 1`; `None` unless `W > 1` and the
@@ -182,7 +205,7 @@ impl Moments {
     pub fn sample_sd(&self) -> Option<f64> {
         let w = self.weight;
         (w > 1.0)
-            .then(|| (self.m2 * w / (w - 1.0)).sqrt())
+            .then(|| (self.m2 * w / (w - 1.0)).sqrt() / self.scale)
             .filter(|s| s.is_finite())
     }
 }
@@ -288,5 +311,17 @@ mod tests {
         assert_eq!(inf.mean, None);
         assert_eq!(inf.max, f64::INFINITY);
         assert!(Profile::from_sorted(&[]).is_none());
+    }
+
+    #[test]
+    fn values_near_the_largest_double_have_a_mean_and_sd() {
+        // Exact arithmetic: mean of [1.7e308, 1.6e308] is 1.65e308, the sample sd is
+        // 0.1e308 / sqrt 2 = 7.0710678118654752e306; tolerance 1e-15 relative.
+        let m = Moments::of(&[1.7e308, 1.6e308], None).unwrap();
+        assert!((m.mean - 1.65e308).abs() <= 1e-15 * 1.65e308, "{}", m.mean);
+        let sd = m.sample_sd().unwrap();
+        assert!((sd - 7.0710678118654752e306).abs() <= 1e-15 * sd, "{sd}");
+        // Ordinary data keep scale 1 (so the same bits as before).
+        assert_eq!(Moments::of(&[1.0, 3.0], None).unwrap().scale, 1.0);
     }
 }
