@@ -423,7 +423,7 @@ impl Parametric {
                 // ulps"); there the leading term of the series, x^shape / Gamma(shape +
                 // 1), is exact to within a relative 1e-300.
                 let x = t * (1.0 / b);
-                if t.is_nan() || (x >= f64::MIN_POSITIVE && x < f64::INFINITY) {
+                if t.is_nan() || (f64::MIN_POSITIVE..f64::INFINITY).contains(&x) {
                     d.cdf(t)
                 } else if x > 0.0 && x < f64::MIN_POSITIVE {
                     (a * x.ln() - ln_gamma(a + 1.0)).exp().min(1.0)
@@ -474,7 +474,7 @@ impl Parametric {
             // At 0 the density is scale^-1 for shape 1 and 0 or +inf otherwise (the values
             // statrs gives while scale^-shape is finite).
             Law::Weibull(..) if t == 0.0 => match self.parameters[0] {
-                k if k == 1.0 => 1.0 / self.parameters[1],
+                1.0 => 1.0 / self.parameters[1],
                 k if k > 1.0 => 0.0,
                 _ => f64::INFINITY,
             },
