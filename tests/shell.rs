@@ -1562,3 +1562,69 @@ fn plot_refuses_what_it_cannot_draw() {
     assert!(err.contains("SVG only") && err.contains("fig.svg"), "{err}");
     assert!(!fixtures().join("fig.png").exists());
 }
+
+/// Histogram edges print as the shortest decimal that reads back as the same double, in
+/// the table, CSV and JSON formats alike (the values are those the library computes).
+#[test]
+fn histogram_edges_print_as_shortest_round_trip_decimals() {
+    let sql = "SELECT lo, hi FROM dist_histogram((SELECT dist_empirical(column1) FROM \
+               (VALUES (90.1), (90.5), (90.7), (91.4), (92.2), (93.05))), 7);";
+    let conn = rusqlite::Connection::open_in_memory().unwrap();
+    ogive::register(&conn).unwrap();
+    let want: Vec<f64> = conn
+        .prepare(sql)
+        .unwrap()
+        .query_map([], |r| Ok([r.get::<_, f64>(0)?, r.get::<_, f64>(1)?]))
+        .unwrap()
+        .flat_map(|r| r.unwrap())
+        .collect();
+    assert_eq!(want.len(), 14);
+    let tmp = TempDir::new("edges");
+    std::fs::write(tmp.path("h.sql"), sql).unwrap();
+    let csv = stdout_of(&ogive_at(
+        &tmp.0,
+        &["run", "h.sql", "--format", "csv"],
+        None,
+    ));
+    let got: Vec<&str> = csv.lines().skip(1).flat_map(|l| l.split(',')).collect();
+    let shortest: Vec<String> = want.iter().map(|v| format!("{v:?}")).collect();
+    assert_eq!(got, shortest);
+    for (text, v) in got.iter().zip(&want) {
+        assert_eq!(text.parse::<f64>().unwrap().to_bits(), v.to_bits());
+    }
+    let table = stdout_of(&ogive_at(&tmp.0, &["run", "h.sql"], None));
+    for s in &shortest {
+        assert!(table.contains(s.as_str()), "{s} missing from\n{table}");
+    }
+    let json = stdout_of(&ogive_at(
+        &tmp.0,
+        &["run", "h.sql", "--format", "json"],
+        None,
+    ));
+    let v: serde_json::Value = serde_json::from_str(json.lines().next().unwrap()).unwrap();
+    let from_json: Vec<f64> = v["rows"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .flat_map(|r| r.as_array().unwrap().iter().map(|x| x.as_f64().unwrap()))
+        .collect();
+    assert_eq!(from_json, want);
+    // The plot's tick labels are decimals of the tick step, never float noise.
+    std::fs::write(
+        tmp.path("p.sql"),
+        format!(
+            "-- kind: bars\nSELECT (lo + hi) / 2 AS x, count AS n FROM ({});",
+            sql.trim_end_matches(';').replace("lo, hi", "lo, hi, count")
+        ),
+    )
+    .unwrap();
+    let out = ogive_at(&tmp.0, &["plot", "p.sql", "--out", "p.svg"], None);
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    let svg = std::fs::read_to_string(tmp.path("p.svg")).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    for t in doc.descendants().filter_map(|n| n.text()) {
+        if let Ok(x) = t.parse::<f64>() {
+            assert!(t.len() <= 6, "tick label {t} ({x})");
+        }
+    }
+}
