@@ -56,9 +56,17 @@ impl Drop for TempDir {
 
 /// Runs the shell in the fixtures directory with a history file kept out of $HOME.
 fn ogive(args: &[&str], stdin: Option<&str>) -> Output {
+    ogive_in(args, stdin, "C.UTF-8")
+}
+
+/// Runs the shell as [`ogive`] does, under the locale `lang` (LC_ALL and LC_CTYPE unset).
+fn ogive_in(args: &[&str], stdin: Option<&str>, lang: &str) -> Output {
     let mut cmd = Command::new(BIN);
     cmd.args(args)
         .current_dir(fixtures())
+        .env("LANG", lang)
+        .env_remove("LC_ALL")
+        .env_remove("LC_CTYPE")
         .env(
             "OGIVE_HISTORY",
             std::env::temp_dir().join("ogive-shell-test-history"),
@@ -86,7 +94,19 @@ fn ogive(args: &[&str], stdin: Option<&str>) -> Output {
 /// Compares a run's recorded output with tests/golden/NAME.txt (or rewrites it when blessing).
 /// `tmp` is replaced by `$TMP` in the command line shown in the recorded output.
 fn golden(name: &str, args: &[&str], stdin: Option<&str>, tmp: Option<&Path>) {
-    let out = ogive(args, stdin);
+    record(name, args, stdin, tmp, ogive(args, stdin));
+}
+
+/// [`golden`] under the locale `lang`, which the recorded command line shows.
+fn golden_in(name: &str, args: &[&str], lang: &str) {
+    let out = ogive_in(args, None, lang);
+    let mut shown = vec![format!("LANG={lang}")];
+    shown.extend(args.iter().map(|a| a.to_string()));
+    let shown: Vec<&str> = shown.iter().map(String::as_str).collect();
+    record(name, &shown, None, None, out);
+}
+
+fn record(name: &str, args: &[&str], stdin: Option<&str>, tmp: Option<&Path>, out: Output) {
     let mut shown = args.join(" ");
     if let Some(t) = tmp {
         shown = shown.replace(&t.display().to_string(), "$TMP");
@@ -298,6 +318,24 @@ fn golden_prompt_from_a_pipe() {
         Some(
             "SELECT quantile(column1, 0.5) AS median\n  FROM (VALUES (1), (2), (7));\nformat table\ntables\nSELECT 1 AS a; SELECT quantile(1, 2);\nSELECT 'not reached';\n",
         ),
+        None,
+    );
+}
+
+/// Habits of other prompts get a hint naming ogive's word; an unknown function gets the
+/// registry's nearest names; a runtime error points at the failing call.
+#[test]
+fn golden_prompt_habits() {
+    golden(
+        "prompt_habits",
+        &[],
+        Some(".tables\n\\dt\n.mode csv\n\\q\n.frobnicate\nSELECT 2 AS two,\n  ecfd(1, 2) AS e;\n"),
+        None,
+    );
+    golden(
+        "prompt_runtime_error",
+        &[],
+        Some("SELECT 1 AS one,\n       ecdf(1, 2) AS e, dist_quantile('{}', 0.5) AS q;\n"),
         None,
     );
 }
@@ -789,7 +827,7 @@ fn a_session_at_the_prompt_runs_a_query_cancels_one_and_leaves() {
     let script = format!(
         // The shell around ogive shares its process group and would die of the Ctrl-C
         // meant for ogive; a trap keeps it alive to report ogive's exit status.
-        "trap true INT; OGIVE_HISTORY='{}' '{BIN}'; echo \"ogive exited with $?\"; sleep 60",
+        "trap true INT; LANG=C.UTF-8 LC_ALL= LC_CTYPE= OGIVE_HISTORY='{}' '{BIN}'; echo \"ogive exited with $?\"; sleep 60",
         tmp.path("history").display()
     );
     let out = tmux.cmd(&[
@@ -815,7 +853,7 @@ fn a_session_at_the_prompt_runs_a_query_cancels_one_and_leaves() {
     tmux.line("SELECT quantile(column1, 0.5) AS median");
     // Wait for the continuation prompt: keys typed before the line editor is back in raw
     // mode can be discarded by the terminal.
-    tmux.wait_for("┆");
+    tmux.wait_for("│");
     tmux.line("FROM (VALUES (1), (2), (7));");
     let screen = tmux.wait_for("1 row");
     assert!(screen.contains(" median"), "{screen}");
@@ -841,9 +879,752 @@ fn a_session_at_the_prompt_runs_a_query_cancels_one_and_leaves() {
     tmux.wait_for("cancelled after");
     tmux.wait_for_count(PROMPT, 6);
 
+    // Habits of other prompts get a hint, not a continued statement.
+    tmux.line(".tables");
+    tmux.wait_for(".tables is not a word of ogive's; type tables");
+    tmux.wait_for_count(PROMPT, 7);
+
+    // A table wider than the terminal: `tables` wraps its column list inside the cell, so
+    // its rule stays one line no wider than the terminal.
+    let cols: Vec<String> = (1..=12)
+        .map(|i| format!("measurement_channel_{i:02} REAL"))
+        .collect();
+    tmux.line("format table");
+    tmux.wait_for_count(PROMPT, 8);
+    tmux.line(&format!(
+        "CREATE TABLE wide_sensor_log ({});",
+        cols.join(", ")
+    ));
+    tmux.wait_for_count(PROMPT, 9);
+    tmux.line("tables");
+    let screen = tmux.wait_for("1 table in memory");
+    tmux.wait_for_count(PROMPT, 10);
+    let screen = tmux
+        .screen()
+        .split("1 table in memory")
+        .nth(1)
+        .map_or(screen.clone(), str::to_owned);
+    let listing: Vec<&str> = screen.lines().take_while(|l| !l.contains(PROMPT)).collect();
+    let rules: Vec<&&str> = listing.iter().filter(|l| l.contains('╌')).collect();
+    assert_eq!(rules.len(), 1, "one rule line:\n{}", listing.join("\n"));
+    assert!(rules[0].starts_with('├'), "{}", rules[0]);
+    for l in &listing {
+        assert!(
+            l.chars().count() <= 110,
+            "a line wider than the terminal: {l}"
+        );
+    }
+    assert!(
+        listing.iter().filter(|l| l.starts_with('│')).count() > 3,
+        "the column list wraps onto several lines:\n{}",
+        listing.join("\n")
+    );
+    assert!(listing.join("\n").contains("measurement_channel_12"));
+
     tmux.line("bye");
     let screen = tmux.wait_for("ogive exited with");
     assert!(screen.contains("ogive exited with 0"), "{screen}");
     let history = std::fs::read_to_string(tmp.path("history")).unwrap();
     assert!(history.contains("SELECT 6 * 7 AS answer;"), "{history}");
+}
+
+/// Runs the shell in `dir` (not the fixtures) under a UTF-8 locale.
+fn ogive_at(dir: &Path, args: &[&str], stdin: Option<&str>) -> Output {
+    let mut cmd = Command::new(BIN);
+    cmd.args(args)
+        .current_dir(dir)
+        .env("LANG", "C.UTF-8")
+        .env_remove("LC_ALL")
+        .env_remove("LC_CTYPE")
+        .stdin(if stdin.is_some() {
+            Stdio::piped()
+        } else {
+            Stdio::null()
+        })
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped());
+    let mut child = cmd.spawn().unwrap();
+    if let Some(text) = stdin {
+        use std::io::Write;
+        child
+            .stdin
+            .take()
+            .unwrap()
+            .write_all(text.as_bytes())
+            .unwrap();
+    }
+    child.wait_with_output().unwrap()
+}
+
+fn stdout_of(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+fn stderr_of(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+fn query_i64(db: &Path, sql: &str) -> i64 {
+    let conn = rusqlite::Connection::open(db).unwrap();
+    conn.query_row(sql, [], |r| r.get(0)).unwrap()
+}
+
+// --- issue 16 item 4: the look -------------------------------------------------------
+
+/// The table look is ogive's own (a rail on the left, a dashed rule leaving it, the count
+/// on its foot); in a locale that is not UTF-8 the same look is ASCII, byte for byte; the
+/// shell never colours, so NO_COLOR changes nothing.
+#[test]
+fn tables_have_a_rail_and_an_ascii_fallback() {
+    golden_in(
+        "run_table_ascii",
+        &[
+            "run",
+            "queries.sql",
+            "--param",
+            "limit=4",
+            "--param",
+            "probe=a",
+        ],
+        "C",
+    );
+    let utf8 = ogive(
+        &[
+            "run",
+            "queries.sql",
+            "--param",
+            "limit=4",
+            "--param",
+            "probe=a",
+        ],
+        None,
+    );
+    let text = stdout_of(&utf8);
+    assert!(text.contains("│ probe   n"), "{text}");
+    assert!(text.contains("├╌╌╌"), "{text}");
+    assert!(text.contains("╰ 2 rows"), "{text}");
+    for lang in ["C", "POSIX", "en_US.ISO-8859-1", ""] {
+        for args in [
+            &[
+                "run",
+                "queries.sql",
+                "--param",
+                "limit=4",
+                "--param",
+                "probe=a",
+            ][..],
+            &["check", "checks.sql"][..],
+            &["run", "runtime_error.sql"][..],
+            &["import", "readings.csv"][..],
+            &["functions", "quantile"][..],
+        ] {
+            let out = ogive_in(args, None, lang);
+            assert!(
+                out.stdout.is_ascii(),
+                "LANG={lang:?} {args:?}:\n{}",
+                stdout_of(&out)
+            );
+            assert!(
+                out.stderr.is_ascii(),
+                "LANG={lang:?} {args:?}:\n{}",
+                stderr_of(&out)
+            );
+        }
+    }
+    // LC_ALL wins over LANG.
+    let mut cmd = Command::new(BIN);
+    let out = cmd
+        .args(["run", "pass.sql"])
+        .current_dir(fixtures())
+        .env("LANG", "C.UTF-8")
+        .env("LC_ALL", "C")
+        .output()
+        .unwrap();
+    assert!(out.stdout.is_ascii(), "{}", stdout_of(&out));
+    let mut cmd = Command::new(BIN);
+    let plain = cmd
+        .args([
+            "run",
+            "queries.sql",
+            "--param",
+            "limit=4",
+            "--param",
+            "probe=a",
+        ])
+        .current_dir(fixtures())
+        .env("LANG", "C.UTF-8")
+        .env_remove("LC_ALL")
+        .env_remove("LC_CTYPE")
+        .env("NO_COLOR", "1")
+        .output()
+        .unwrap();
+    assert_eq!(plain.stdout, utf8.stdout);
+    assert!(
+        !plain.stdout.contains(&0x1b),
+        "an escape sequence in the output"
+    );
+}
+
+// --- issue 16 item 3: machine-readable output is pure ---------------------------------
+
+/// One result set: stdout is only CSV. Several: a clear error (golden run_csv), or one file
+/// per result set with --out-dir; --out-dir wants --format csv.
+#[test]
+fn csv_is_only_csv_and_several_results_go_to_files() {
+    let one = ogive(&["run", "pass.sql", "--format", "csv"], None);
+    assert_eq!(one.status.code(), Some(2), "pass.sql has two queries");
+    let tmp = TempDir::new("csv");
+    let q = tmp.path("one.sql");
+    std::fs::write(
+        &q,
+        "CREATE TEMP TABLE t (x);\nINSERT INTO t VALUES (1), (2), (3);\n-- the median\nSELECT quantile(x, 0.5) AS median, 'a, b' AS s FROM t;\n",
+    )
+    .unwrap();
+    let out = ogive_at(&tmp.0, &["run", "one.sql", "--format", "csv"], None);
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    assert_eq!(stdout_of(&out), "median,s\n2.0,\"a, b\"\n");
+
+    let dir = tmp.path("results");
+    let out = ogive(
+        &[
+            "run",
+            "queries.sql",
+            "--param",
+            "limit=4",
+            "--param",
+            "probe=a",
+            "--format",
+            "csv",
+            "--out-dir",
+            dir.to_str().unwrap(),
+        ],
+        None,
+    );
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    assert_eq!(stdout_of(&out), "", "stdout stays empty with --out-dir");
+    let mut names: Vec<String> = std::fs::read_dir(&dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    names.sort();
+    assert_eq!(names, ["queries-3.csv", "queries-4.csv", "queries-5.csv"]);
+    assert_eq!(
+        std::fs::read_to_string(dir.join("queries-4.csv")).unwrap(),
+        "note,temp,limit_type\nsteady,2.5,integer\n,3.5,integer\n\"door, \"\"open\"\"\",7.0,integer\n"
+    );
+    assert_eq!(
+        std::fs::read_to_string(dir.join("queries-5.csv")).unwrap(),
+        "none_here\n"
+    );
+    assert!(stderr_of(&out).contains("wrote"), "{}", stderr_of(&out));
+
+    let out = ogive(
+        &["run", "pass.sql", "--out-dir", dir.to_str().unwrap()],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        stderr_of(&out).contains("give --format csv"),
+        "{}",
+        stderr_of(&out)
+    );
+
+    // JSON stays one object per line; nothing else on stdout.
+    let out = ogive(&["check", "checks.sql", "--format", "json"], None);
+    for line in stdout_of(&out).lines() {
+        serde_json::from_str::<serde_json::Value>(line).expect("one JSON object per line");
+    }
+    // The demo refuses CSV rather than mixing result sets.
+    let out = ogive(&["demo", "--format", "csv"], None);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        stderr_of(&out).contains("--format csv prints one"),
+        "{}",
+        stderr_of(&out)
+    );
+}
+
+// --- issue 16 item 2: CSV as people export it -------------------------------------------
+
+#[test]
+fn import_reads_null_words_and_warns_about_them() {
+    let tmp = TempDir::new("nulls");
+    std::fs::write(
+        tmp.path("lab.csv"),
+        "sample,assay,flag\ns1,1.5,ok\ns2,NA,ok\ns3,2.25,\ns4,NA,bad\ns5,-,ok\ns6,3,ok\ns7,4.5,ok\ns8,5,ok\n",
+    )
+    .unwrap();
+    // Without --null: the column turns TEXT and the warning names the words and counts.
+    let out = ogive_at(&tmp.0, &["import", "lab.csv", "--db", "lab.db"], None);
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    assert_eq!(
+        stderr_of(&out),
+        "ogive: warning: column assay is TEXT because of 2 cells 'NA' and 1 cell '-' among 5 \
+         numbers; give --null NA --null - to read them as NULL\n"
+    );
+    assert!(
+        stdout_of(&out).contains("8 rows imported from lab.csv; created table lab"),
+        "the table is named after the file: {}",
+        stdout_of(&out)
+    );
+    let db = tmp.path("lab.db");
+    assert_eq!(
+        query_i64(&db, "SELECT count(*) FROM lab WHERE typeof(assay) = 'text'"),
+        8
+    );
+    // With --null (repeated) and --replace: REAL, NULLs, no warning, in the same table.
+    let out = ogive_at(
+        &tmp.0,
+        &[
+            "import",
+            "lab.csv",
+            "--db",
+            "lab.db",
+            "--null",
+            "NA",
+            "--null",
+            "-",
+            "--replace",
+        ],
+        None,
+    );
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    assert_eq!(stderr_of(&out), "");
+    let shown = stdout_of(&out);
+    assert!(shown.contains("replaced table lab"), "{shown}");
+    assert!(shown.contains("│ assay    REAL            3"), "{shown}");
+    assert_eq!(query_i64(&db, "SELECT count(*) FROM lab"), 8);
+    assert_eq!(
+        query_i64(&db, "SELECT count(*) FROM lab WHERE assay IS NULL"),
+        3
+    );
+    assert_eq!(
+        query_i64(&db, "SELECT count(*) FROM lab WHERE typeof(assay) = 'real'"),
+        5
+    );
+    // The empty cell stays NULL alongside the words.
+    assert_eq!(
+        query_i64(&db, "SELECT count(*) FROM lab WHERE flag IS NULL"),
+        1
+    );
+}
+
+#[test]
+fn import_separators_replace_and_one_row() {
+    let tmp = TempDir::new("tsv");
+    std::fs::write(tmp.path("w.tsv"), "k\tv\na, b\t1\n").unwrap();
+    let out = ogive_at(&tmp.0, &["import", "w.tsv", "--db", "t.db"], None);
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    assert!(
+        stdout_of(&out).contains("1 row imported from w.tsv; created table w"),
+        "{}",
+        stdout_of(&out)
+    );
+    let db = tmp.path("t.db");
+    assert_eq!(
+        query_i64(&db, "SELECT count(*) FROM w WHERE k = 'a, b' AND v = 1"),
+        1
+    );
+
+    std::fs::write(tmp.path("semi.csv"), "k;v\nx;2.5\ny;3\n").unwrap();
+    let out = ogive_at(
+        &tmp.0,
+        &[
+            "import",
+            "semi.csv",
+            "--db",
+            "t.db",
+            "--delimiter",
+            ";",
+            "--table",
+            "w",
+            "--replace",
+        ],
+        None,
+    );
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    assert_eq!(query_i64(&db, "SELECT count(*) FROM w"), 2);
+    assert_eq!(
+        query_i64(
+            &db,
+            "SELECT count(*) FROM pragma_table_info('w') WHERE type = 'REAL'"
+        ),
+        1
+    );
+    // The wrong separator: the error says which one was used and points at --delimiter.
+    let out = ogive_at(
+        &tmp.0,
+        &["import", "semi.csv", "--db", "t.db", "--table", "z"],
+        None,
+    );
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "one column k;v is a valid reading"
+    );
+    std::fs::write(tmp.path("mixed.csv"), "a,b\n1;2\n").unwrap();
+    let out = ogive_at(&tmp.0, &["import", "mixed.csv", "--db", "t.db"], None);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(
+        stderr_of(&out).contains("see --delimiter"),
+        "{}",
+        stderr_of(&out)
+    );
+    let out = ogive_at(&tmp.0, &["import", "semi.csv", "--delimiter", "ab"], None);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        stderr_of(&out).contains("one ASCII character"),
+        "{}",
+        stderr_of(&out)
+    );
+
+    // A --replace that fails keeps the old table whole: the drop is rolled back too.
+    std::fs::write(tmp.path("bad.csv"), "k,v\nx,1\ny\n").unwrap();
+    let out = ogive_at(
+        &tmp.0,
+        &[
+            "import",
+            "bad.csv",
+            "--db",
+            "t.db",
+            "--table",
+            "w",
+            "--replace",
+        ],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(1));
+    assert_eq!(query_i64(&db, "SELECT count(*) FROM w"), 2);
+    {
+        let conn = rusqlite::Connection::open(&db).unwrap();
+        conn.execute_batch("CREATE TABLE strict (k TEXT NOT NULL, v REAL)")
+            .unwrap();
+        conn.execute_batch("INSERT INTO strict VALUES ('old', 1)")
+            .unwrap();
+    }
+    std::fs::write(tmp.path("nul.csv"), "k,v\nx,1\n,2\n").unwrap();
+    let out = ogive_at(
+        &tmp.0,
+        &["import", "nul.csv", "--db", "t.db", "--table", "strict"],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(1));
+    assert_eq!(query_i64(&db, "SELECT count(*) FROM strict"), 1);
+}
+
+/// Lone-CR files (old spreadsheet exports) import with the right lines, and an error about
+/// them carries no raw control characters.
+#[test]
+fn lone_cr_files_import() {
+    let tmp = TempDir::new("cr");
+    std::fs::write(tmp.path("mac.csv"), "id,temp\r1,2.5\r2,3.5\r\r3,\"x\ry\"\r").unwrap();
+    let out = ogive_at(&tmp.0, &["import", "mac.csv", "--db", "m.db"], None);
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    let db = tmp.path("m.db");
+    assert_eq!(query_i64(&db, "SELECT count(*) FROM mac"), 3);
+    assert_eq!(
+        query_i64(
+            &db,
+            "SELECT count(*) FROM mac WHERE temp = 'x' || char(13) || 'y'"
+        ),
+        1
+    );
+    std::fs::write(tmp.path("bad.csv"), "id,temp\r1,2.5\r2\r").unwrap();
+    let out = ogive_at(&tmp.0, &["import", "bad.csv", "--db", "m.db"], None);
+    assert_eq!(out.status.code(), Some(1));
+    let err = stderr_of(&out);
+    assert!(
+        err.starts_with("ogive: bad.csv:3: expected 2 fields"),
+        "{err}"
+    );
+    assert!(
+        !err.trim_end().chars().any(|c| c.is_control() && c != '\n'),
+        "{err:?}"
+    );
+    // A header with a control character is named with it escaped.
+    std::fs::write(tmp.path("dup.csv"), "a\u{1b}[2J,a\u{1b}[2J\n1,2\n").unwrap();
+    let out = ogive_at(&tmp.0, &["import", "dup.csv"], None);
+    let err = stderr_of(&out);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(err.contains("a\\u{1b}[2J"), "{err:?}");
+    assert!(!err.contains('\u{1b}'), "{err:?}");
+}
+
+/// A file that takes more than a second shows its progress on standard error; the others
+/// (every golden import) show none.
+#[test]
+fn long_imports_show_progress() {
+    let tmp = TempDir::new("progress");
+    let mut text = String::from("id,x,label\n");
+    for i in 0..1_200_000u32 {
+        use std::fmt::Write;
+        let _ = writeln!(text, "{i},{}.25,t{}", i % 977, i % 13);
+    }
+    std::fs::write(tmp.path("big.csv"), text).unwrap();
+    let start = Instant::now();
+    let out = ogive_at(&tmp.0, &["import", "big.csv", "--db", "big.db"], None);
+    let took = start.elapsed();
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    assert!(
+        took > Duration::from_millis(1500),
+        "the import took only {took:?}: make the file larger so that progress shows"
+    );
+    let err = stderr_of(&out);
+    assert!(
+        err.lines().any(|l| l.starts_with("ogive: ")
+            && (l.contains("reading big.csv") || l.contains("importing big.csv"))
+            && l.contains("% after")),
+        "{err}"
+    );
+    assert!(stdout_of(&out).contains("1200000 rows imported"));
+}
+
+// --- issue 17 item 6: the shell must not write or half-write silently ----------------
+
+fn lots_db(tmp: &TempDir) -> PathBuf {
+    let db = tmp.path("lots.db");
+    let conn = rusqlite::Connection::open(&db).unwrap();
+    conn.execute_batch(
+        "CREATE TABLE lots (lot TEXT, temp REAL);
+         INSERT INTO lots VALUES ('L1', 3.0), ('L1', 4.0), ('L2', 6.5);",
+    )
+    .unwrap();
+    db
+}
+
+#[test]
+fn checks_are_read_only_unless_allowed() {
+    let tmp = TempDir::new("check-ro");
+    let db = lots_db(&tmp);
+    std::fs::write(
+        tmp.path("sneaky.sql"),
+        "-- a setup table may be TEMP\nCREATE TEMP TABLE hot AS SELECT * FROM lots WHERE temp > 5;\nDELETE FROM lots WHERE temp > 5;\n-- nothing too hot\nSELECT count(*) = 0 AS ok FROM lots WHERE temp > 5;\n",
+    )
+    .unwrap();
+    let before = file_bytes(&db);
+    let out = ogive_at(&tmp.0, &["check", "sneaky.sql", "--db", "lots.db"], None);
+    assert_eq!(out.status.code(), Some(1), "{}", stdout_of(&out));
+    let text = stdout_of(&out);
+    assert!(text.contains("readonly database"), "{text}");
+    assert!(text.contains("--allow-writes"), "{text}");
+    assert_eq!(file_bytes(&db), before, "the check wrote to the database");
+    let out = ogive_at(
+        &tmp.0,
+        &["check", "sneaky.sql", "--db", "lots.db", "--allow-writes"],
+        None,
+    );
+    assert!(out.status.success(), "{}", stdout_of(&out));
+    assert_eq!(query_i64(&db, "SELECT count(*) FROM lots"), 2);
+}
+
+#[test]
+fn run_keeps_a_file_whole_or_not_at_all() {
+    let tmp = TempDir::new("run-tx");
+    let db = lots_db(&tmp);
+    std::fs::write(
+        tmp.path("half.sql"),
+        "INSERT INTO lots VALUES ('L3', 1.0);\nDELETE FROM lots WHERE lot = 'L1';\nSELECT quantile(temp, 2) FROM lots;\n",
+    )
+    .unwrap();
+    let out = ogive_at(&tmp.0, &["run", "half.sql", "--db", "lots.db"], None);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(
+        stderr_of(&out).contains("half.sql rolled back: none of its changes were kept"),
+        "{}",
+        stderr_of(&out)
+    );
+    assert_eq!(query_i64(&db, "SELECT count(*) FROM lots"), 3);
+    assert_eq!(
+        query_i64(&db, "SELECT count(*) FROM lots WHERE lot = 'L1'"),
+        2
+    );
+    let out = ogive_at(
+        &tmp.0,
+        &["run", "half.sql", "--db", "lots.db", "--no-transaction"],
+        None,
+    );
+    assert_eq!(out.status.code(), Some(1));
+    assert_eq!(
+        query_i64(&db, "SELECT count(*) FROM lots"),
+        2,
+        "statements 1-2 kept"
+    );
+    // A file with its own BEGIN is refused before anything runs.
+    std::fs::write(
+        tmp.path("own.sql"),
+        "DELETE FROM lots;\nBEGIN;\nSELECT 1;\nCOMMIT;\n",
+    )
+    .unwrap();
+    let out = ogive_at(&tmp.0, &["run", "own.sql", "--db", "lots.db"], None);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        stderr_of(&out).contains("own.sql:2: BEGIN"),
+        "{}",
+        stderr_of(&out)
+    );
+    assert_eq!(query_i64(&db, "SELECT count(*) FROM lots"), 2);
+    // The help says which.
+    let help = ogive(&["run", "--help"], None);
+    let help = stdout_of(&help);
+    assert!(help.contains("one transaction"), "{help}");
+    assert!(help.contains("--no-transaction"), "{help}");
+}
+
+#[test]
+fn a_locked_database_is_reported_as_locked() {
+    let tmp = TempDir::new("locked");
+    let db = lots_db(&tmp);
+    let holder = rusqlite::Connection::open(&db).unwrap();
+    holder
+        .execute_batch("BEGIN EXCLUSIVE; INSERT INTO lots VALUES ('L9', 9);")
+        .unwrap();
+    let out = ogive_at(&tmp.0, &["run", "q.sql", "--db", "lots.db"], None);
+    // q.sql does not exist: files are read first, so this is about the file...
+    assert_eq!(out.status.code(), Some(2));
+    std::fs::write(tmp.path("q.sql"), "SELECT count(*) AS n FROM lots;\n").unwrap();
+    let out = ogive_at(&tmp.0, &["run", "q.sql", "--db", "lots.db"], None);
+    assert_eq!(out.status.code(), Some(2));
+    let err = stderr_of(&out);
+    assert!(err.contains("lots.db is locked"), "{err}");
+    assert!(!err.contains("as an SQLite database"), "{err}");
+    drop(holder);
+    let out = ogive_at(&tmp.0, &["run", "q.sql", "--db", "lots.db"], None);
+    assert!(out.status.success(), "{}", stderr_of(&out));
+}
+
+#[test]
+fn bad_parameter_names_are_usage_errors() {
+    for bad in ["na-me=a", "a b=1", "x.y=2"] {
+        let out = ogive(&["run", "pass.sql", "--param", bad], None);
+        assert_eq!(out.status.code(), Some(2), "{bad}");
+        let err = stderr_of(&out);
+        assert!(err.contains("cannot be a parameter name"), "{err}");
+    }
+    let out = ogive(&["run", "pass.sql", "--param", "na-me=a"], None);
+    assert!(
+        stderr_of(&out).contains("--param na_me="),
+        "{}",
+        stderr_of(&out)
+    );
+}
+
+#[test]
+fn piped_sql_exits_1_after_a_failure() {
+    for (input, code) in [
+        ("SELECT 1;\nSELECT quantile(1, 2);\n", 1),
+        ("SELECT quantile(1, 2)", 1),
+        ("functions nosuch\nSELECT 1;\n", 1),
+        ("format xml\nSELECT 1;\n", 1),
+        ("SELECT 1;\n", 0),
+    ] {
+        let out = ogive(&[], Some(input));
+        assert_eq!(
+            out.status.code(),
+            Some(code),
+            "{input:?}: {}",
+            stderr_of(&out)
+        );
+    }
+}
+
+/// Data whose span overflows, or a non-SVG output, is refused: no NaN in any SVG.
+#[test]
+fn plot_refuses_what_it_cannot_draw() {
+    let tmp = TempDir::new("plot-bad");
+    std::fs::write(
+        tmp.path("huge.sql"),
+        "SELECT column1 AS x, column2 AS y FROM (VALUES (-1.7e308, 1), (1.7e308, 2));\n",
+    )
+    .unwrap();
+    std::fs::write(
+        tmp.path("tall.sql"),
+        "SELECT column1 AS x, column2 AS y FROM (VALUES (1, -1.7e308), (2, 1.7e308));\n",
+    )
+    .unwrap();
+    for (file, kind) in [
+        ("huge.sql", "lines"),
+        ("tall.sql", "bars"),
+        ("tall.sql", "steps"),
+    ] {
+        let out = ogive_at(
+            &tmp.0,
+            &["plot", file, "--out", "f.svg", "--kind", kind],
+            None,
+        );
+        assert_eq!(out.status.code(), Some(1), "{file} {kind}");
+        let err = stderr_of(&out);
+        assert!(err.contains("overflows"), "{err}");
+        assert!(!tmp.path("f.svg").exists(), "{file} {kind} wrote an SVG");
+    }
+    let out = ogive(&["plot", "plot.sql", "--out", "fig.png"], None);
+    assert_eq!(out.status.code(), Some(2));
+    let err = stderr_of(&out);
+    assert!(err.contains("SVG only") && err.contains("fig.svg"), "{err}");
+    assert!(!fixtures().join("fig.png").exists());
+}
+
+/// Histogram edges print as the shortest decimal that reads back as the same double, in
+/// the table, CSV and JSON formats alike (the values are those the library computes).
+#[test]
+fn histogram_edges_print_as_shortest_round_trip_decimals() {
+    let sql = "SELECT lo, hi FROM dist_histogram((SELECT dist_empirical(column1) FROM \
+               (VALUES (90.1), (90.5), (90.7), (91.4), (92.2), (93.05))), 7);";
+    let conn = rusqlite::Connection::open_in_memory().unwrap();
+    ogive::register(&conn).unwrap();
+    let want: Vec<f64> = conn
+        .prepare(sql)
+        .unwrap()
+        .query_map([], |r| Ok([r.get::<_, f64>(0)?, r.get::<_, f64>(1)?]))
+        .unwrap()
+        .flat_map(|r| r.unwrap())
+        .collect();
+    assert_eq!(want.len(), 14);
+    let tmp = TempDir::new("edges");
+    std::fs::write(tmp.path("h.sql"), sql).unwrap();
+    let csv = stdout_of(&ogive_at(
+        &tmp.0,
+        &["run", "h.sql", "--format", "csv"],
+        None,
+    ));
+    let got: Vec<&str> = csv.lines().skip(1).flat_map(|l| l.split(',')).collect();
+    let shortest: Vec<String> = want.iter().map(|v| format!("{v:?}")).collect();
+    assert_eq!(got, shortest);
+    for (text, v) in got.iter().zip(&want) {
+        assert_eq!(text.parse::<f64>().unwrap().to_bits(), v.to_bits());
+    }
+    let table = stdout_of(&ogive_at(&tmp.0, &["run", "h.sql"], None));
+    for s in &shortest {
+        assert!(table.contains(s.as_str()), "{s} missing from\n{table}");
+    }
+    let json = stdout_of(&ogive_at(
+        &tmp.0,
+        &["run", "h.sql", "--format", "json"],
+        None,
+    ));
+    let v: serde_json::Value = serde_json::from_str(json.lines().next().unwrap()).unwrap();
+    let from_json: Vec<f64> = v["rows"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .flat_map(|r| r.as_array().unwrap().iter().map(|x| x.as_f64().unwrap()))
+        .collect();
+    assert_eq!(from_json, want);
+    // The plot's tick labels are decimals of the tick step, never float noise.
+    std::fs::write(
+        tmp.path("p.sql"),
+        format!(
+            "-- kind: bars\nSELECT (lo + hi) / 2 AS x, count AS n FROM ({});",
+            sql.trim_end_matches(';').replace("lo, hi", "lo, hi, count")
+        ),
+    )
+    .unwrap();
+    let out = ogive_at(&tmp.0, &["plot", "p.sql", "--out", "p.svg"], None);
+    assert!(out.status.success(), "{}", stderr_of(&out));
+    let svg = std::fs::read_to_string(tmp.path("p.svg")).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    for t in doc.descendants().filter_map(|n| n.text()) {
+        if let Ok(x) = t.parse::<f64>() {
+            assert!(t.len() <= 6, "tick label {t} ({x})");
+        }
+    }
 }

@@ -93,13 +93,14 @@ fn wrap(text: &str, width: usize, indent: usize) -> String {
 pub fn entry(d: &FunctionDef, format: Format) -> String {
     match format {
         Format::Table => format!(
-            "{}  ({}, {})\n\n{}\n{}\nexample\n  {}\n  ⇒ {}\n",
+            "{}  ({}, {})\n\n{}\n{}\nexample\n  {}\n  {} {}\n",
             d.signature,
             d.kind.word(),
             arg_count(d),
             wrap(d.summary, 88, 2),
             wrap(d.help, 88, 2),
             d.example,
+            crate::glyphs::get().gives,
             d.example_result
         ),
         Format::Markdown => format!(
@@ -155,16 +156,65 @@ pub fn entry(d: &FunctionDef, format: Format) -> String {
     }
 }
 
+/// Edit distance between two names (insertions, deletions, substitutions and swaps of
+/// neighbours each count one), ignoring case.
+pub fn distance(a: &str, b: &str) -> usize {
+    let a: Vec<char> = a.to_lowercase().chars().collect();
+    let b: Vec<char> = b.to_lowercase().chars().collect();
+    let mut d = vec![vec![0usize; b.len() + 1]; a.len() + 1];
+    for (i, row) in d.iter_mut().enumerate() {
+        row[0] = i;
+    }
+    for (j, cell) in d[0].iter_mut().enumerate() {
+        *cell = j;
+    }
+    for i in 1..=a.len() {
+        for j in 1..=b.len() {
+            let cost = usize::from(a[i - 1] != b[j - 1]);
+            let mut v = (d[i - 1][j] + 1)
+                .min(d[i][j - 1] + 1)
+                .min(d[i - 1][j - 1] + cost);
+            if i > 1 && j > 1 && a[i - 1] == b[j - 2] && a[i - 2] == b[j - 1] {
+                v = v.min(d[i - 2][j - 2] + 1);
+            }
+            d[i][j] = v;
+        }
+    }
+    d[a.len()][b.len()]
+}
+
+/// The registry's names closest to `name` (up to three, closest first): within one edit for
+/// short names, two up to eight letters, three beyond.
+pub fn nearest(name: &str) -> Vec<&'static str> {
+    let len = name.chars().count();
+    let limit = match len {
+        0..=4 => 1,
+        5..=8 => 2,
+        _ => 3,
+    };
+    let mut near: Vec<(usize, &'static str)> = functions::all()
+        .map(|d| (distance(name, d.name), d.name))
+        .filter(|(k, _)| *k <= limit && *k > 0)
+        .collect();
+    near.sort();
+    near.into_iter().take(3).map(|(_, n)| n).collect()
+}
+
 /// The page for `functions NAME`, or a usage error naming close matches.
 pub fn lookup(name: &str, format: Format) -> Result<String, Failure> {
     match functions::find(name) {
         Some(d) => Ok(entry(d, format)),
         None => {
             let lower = name.to_ascii_lowercase();
-            let near: Vec<&str> = functions::all()
+            let mut near: Vec<&str> = functions::all()
                 .map(|d| d.name)
                 .filter(|n| n.contains(&lower) || lower.contains(n))
                 .collect();
+            for n in nearest(name) {
+                if !near.contains(&n) {
+                    near.push(n);
+                }
+            }
             let hint = if near.is_empty() {
                 "; `ogive functions` lists them all".to_string()
             } else {

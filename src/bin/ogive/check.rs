@@ -5,8 +5,15 @@
 //! names its check; without one, the check is named by its file and line.
 //!
 //! Output: the failing rows of each failed check, each error, the summary table (check,
-//! rows, failed rows, status) and a tally line. Exit status 0 when every check passes, 1
-//! otherwise, 2 for usage and file problems; `--report` also writes JUnit XML.
+//! rows, failed rows, status) and a tally line. With `--format csv` standard output holds
+//! the summary only (the failing rows are in the JSON format and the JUnit report), and
+//! the rest goes to standard error. Exit status 0 when every check passes, 1 otherwise, 2
+//! for usage and file problems; `--report` also writes JUnit XML.
+//!
+//! Checks read: a database file is opened read-only, so a check file that writes to it
+//! (a `DELETE` left in by mistake) is an error, not a pass. TEMP tables and views still
+//! work, as setup. `--allow-writes` opens the file read-write. An in-memory database (no
+//! `--db`) holds only what the check file itself makes, so it stays writable.
 
 use std::path::Path;
 
@@ -14,7 +21,7 @@ use rusqlite::types::Value;
 use serde_json::{Map, json};
 
 use crate::Failure;
-use crate::db::{self, Outcome, Params, ResultSet};
+use crate::db::{self, Access, Outcome, Params, ResultSet};
 use crate::output::{Block, Format, Printer, origin};
 use crate::run::{Source, Step, step, warn_unused};
 
@@ -151,7 +158,8 @@ pub fn tally(results: &[CheckResult]) -> String {
 pub fn report(
     results: &[CheckResult],
     printer: &mut Printer<impl std::io::Write>,
-) -> std::io::Result<()> {
+) -> Result<(), Failure> {
+    let csv = printer.format == Format::Csv;
     for r in results {
         let mut meta = origin(&r.file, 0, r.line);
         meta.remove("statement");
@@ -159,6 +167,7 @@ pub fn report(
         meta.insert("status".into(), json!(r.status.word().to_ascii_lowercase()));
         match r.status {
             Status::Pass => {}
+            Status::Fail if csv => {}
             Status::Fail => {
                 let n = r.failing.rows.len();
                 let mut shown = r.failing.clone();
@@ -211,6 +220,12 @@ pub fn report(
     };
     let mut meta = Map::new();
     meta.insert("summary".into(), json!(true));
+    if csv {
+        // CSV's one result set: the summary, without a title.
+        printer.print(&Block::rows(None, meta, summary))?;
+        eprintln!("{}", tally(results));
+        return Ok(());
+    }
     printer.print(&Block::Rows {
         title: Some("checks".into()),
         meta,
@@ -303,6 +318,7 @@ pub fn check(
     params: &[String],
     format: Format,
     report_path: Option<&Path>,
+    allow_writes: bool,
 ) -> Result<i32, Failure> {
     let mut params = Params::parse(params)?;
     let sources = Source::load_all(files)?;
@@ -314,7 +330,12 @@ pub fn check(
             )));
         }
     }
-    let conn = db::open(db_path, false)?;
+    let access = if allow_writes {
+        Access::Existing
+    } else {
+        Access::ReadOnly
+    };
+    let conn = db::open(db_path, access)?;
     let results = run_checks(&conn, &sources, &mut params)?;
     let names: Vec<String> = sources.iter().map(|s| s.name.clone()).collect();
     if results.is_empty() {
@@ -324,7 +345,7 @@ pub fn check(
         )));
     }
     let mut printer = Printer::new(format, std::io::stdout().lock());
-    report(&results, &mut printer).map_err(Failure::output)?;
+    report(&results, &mut printer)?;
     if let Some(path) = report_path {
         std::fs::write(path, junit(&results, &names)).map_err(|e| {
             Failure::usage(format!("cannot write the report {}: {e}", path.display()))

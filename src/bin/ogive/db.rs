@@ -10,6 +10,20 @@ use rusqlite::{Connection, OpenFlags};
 use crate::Failure;
 use crate::infer;
 use crate::interrupt;
+use crate::script;
+
+/// SQLite's "no such function: X", with the registry's nearest names when there are any.
+pub fn with_suggestion(message: String) -> String {
+    let Some(name) = message.strip_prefix("no such function: ") else {
+        return message;
+    };
+    let near = crate::catalogue::nearest(name.trim());
+    if near.is_empty() {
+        message
+    } else {
+        format!("{message}; did you mean {}?", near.join(" or "))
+    }
+}
 
 /// A statement's rows, with its column names.
 #[derive(Debug, Clone, Default)]
@@ -63,6 +77,18 @@ impl Params {
                     "--param wants NAME=VALUE with a name, got '{pair}'"
                 )));
             }
+            if let Some(bad) = name.chars().find(|c| !is_name_char(*c)) {
+                let fixed: String = name
+                    .chars()
+                    .map(|c| if is_name_char(c) { c } else { '_' })
+                    .collect();
+                return Err(Failure::usage(format!(
+                    "--param {}: '{name}' cannot be a parameter name ({} is not allowed): a name \
+                     is letters, digits and _, for example --param {fixed}=... for :{fixed}",
+                    crate::shown(pair),
+                    crate::shown(&bad.to_string()),
+                )));
+            }
             values.insert(name.to_string(), infer::value(value));
         }
         Ok(Params {
@@ -81,11 +107,39 @@ impl Params {
     }
 }
 
-/// Opens the database a verb works on: in memory when `path` is None. An existing file is
-/// opened read-write; a missing one is created only when `create` is set (the `import` and
-/// `demo` verbs and the prompt's `open`), so `run` and `check` never leave a file behind
-/// that their statements did not ask for. Every ogive function is registered.
-pub fn open(path: Option<&Path>, create: bool) -> Result<Connection, Failure> {
+/// A character SQLite accepts in a parameter's name after its `:`, `@` or `$`.
+fn is_name_char(c: char) -> bool {
+    c.is_ascii_alphanumeric() || c == '_' || !c.is_ascii()
+}
+
+/// How a verb opens its database file.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Access {
+    /// An existing file, read-write (`run`, `plot`, `check --allow-writes`).
+    Existing,
+    /// An existing file, read-only (`check`).
+    ReadOnly,
+    /// Read-write, created when missing (`import`, `demo`, the prompt).
+    Create,
+}
+
+/// How long a statement waits for another connection's lock before it reports one.
+const BUSY_WAIT: std::time::Duration = std::time::Duration::from_secs(2);
+
+/// Whether an error is another connection's lock.
+pub fn is_locked(e: &rusqlite::Error) -> bool {
+    matches!(
+        e.sqlite_error_code(),
+        Some(rusqlite::ErrorCode::DatabaseBusy | rusqlite::ErrorCode::DatabaseLocked)
+    )
+}
+
+/// Opens the database a verb works on: in memory when `path` is None. A missing file is
+/// created only with [`Access::Create`] (the `import` and `demo` verbs and the prompt's
+/// `open`), so `run` and `check` never leave a file behind that their statements did not
+/// ask for. Every ogive function is registered.
+pub fn open(path: Option<&Path>, access: Access) -> Result<Connection, Failure> {
+    let create = access == Access::Create;
     let conn = match path {
         None => Connection::open_in_memory(),
         Some(p) => {
@@ -96,12 +150,12 @@ pub fn open(path: Option<&Path>, create: bool) -> Result<Connection, Failure> {
                     p.display()
                 )));
             }
-            let mut flags = OpenFlags::SQLITE_OPEN_READ_WRITE
-                | OpenFlags::SQLITE_OPEN_URI
-                | OpenFlags::SQLITE_OPEN_NO_MUTEX;
-            if create {
-                flags |= OpenFlags::SQLITE_OPEN_CREATE;
-            }
+            let mut flags = OpenFlags::SQLITE_OPEN_URI | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+            flags |= match access {
+                Access::ReadOnly => OpenFlags::SQLITE_OPEN_READ_ONLY,
+                Access::Existing => OpenFlags::SQLITE_OPEN_READ_WRITE,
+                Access::Create => OpenFlags::SQLITE_OPEN_READ_WRITE | OpenFlags::SQLITE_OPEN_CREATE,
+            };
             Connection::open_with_flags(p, flags)
         }
     };
@@ -109,9 +163,22 @@ pub fn open(path: Option<&Path>, create: bool) -> Result<Connection, Failure> {
         p.display().to_string()
     });
     let conn = conn.map_err(|e| Failure::usage(format!("cannot open {where_}: {e}")))?;
-    // Reading the schema is the first real access: a file that is not a database fails here.
+    conn.busy_timeout(BUSY_WAIT)
+        .map_err(|e| Failure::usage(format!("cannot open {where_}: {e}")))?;
+    // Reading the schema is the first real access: a file that is not a database fails here,
+    // and so does one that another connection holds locked.
     conn.query_row("SELECT count(*) FROM sqlite_schema", [], |_| Ok(()))
-        .map_err(|e| Failure::usage(format!("cannot read {where_} as an SQLite database: {e}")))?;
+        .map_err(|e| {
+            if is_locked(&e) {
+                Failure::usage(format!(
+                    "{where_} is locked: another connection is writing to it (waited {} s); \
+                     try again when it has finished",
+                    BUSY_WAIT.as_secs()
+                ))
+            } else {
+                Failure::usage(format!("cannot read {where_} as an SQLite database: {e}"))
+            }
+        })?;
     ogive::register(&conn)
         .map_err(|e| Failure::usage(format!("cannot register ogive's functions: {e}")))?;
     Ok(conn)
@@ -131,13 +198,25 @@ pub fn execute(
             StatementError::Interrupted
         }
         rusqlite::Error::SqlInputError { msg, offset, .. } => StatementError::Sql {
-            message: msg,
+            message: with_suggestion(msg),
             offset: usize::try_from(offset).ok(),
         },
-        rusqlite::Error::SqliteFailure(_, Some(msg)) => StatementError::Sql {
-            message: msg,
-            offset: None,
-        },
+        rusqlite::Error::SqliteFailure(f, Some(msg)) => {
+            let message = if f.code == rusqlite::ErrorCode::ReadOnly
+                && conn.is_readonly("main").unwrap_or(false)
+            {
+                format!(
+                    "{msg}: ogive check opens the database read-only; give --allow-writes to let \
+                     its statements change it, or make setup tables TEMP"
+                )
+            } else {
+                with_suggestion(msg)
+            };
+            // SQLite gives no position for errors raised while a statement runs; ogive's
+            // functions name themselves first, so the call can be found in the text.
+            let offset = script::failing_call(sql, &message);
+            StatementError::Sql { message, offset }
+        }
         other => StatementError::Sql {
             message: other.to_string(),
             offset: None,

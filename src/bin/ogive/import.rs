@@ -1,16 +1,25 @@
-//! `ogive import FILE.csv --table NAME [--db PATH]`.
+//! `ogive import FILE.csv [--table NAME] [--db PATH] [--null TEXT]... [--delimiter C] [--replace]`.
 //!
 //! The file is read whole and parsed twice. The first pass checks the shape (every record
 //! has the header's number of fields, every quote is closed) and infers each column's type
-//! with [`crate::infer`]: INTEGER when every non-empty cell is an integer, REAL when every
+//! with [`crate::infer`]: INTEGER when every non-NULL cell is an integer, REAL when every
 //! one is a number, TEXT otherwise. Only then does the second pass write, in one
-//! transaction: a bad file writes nothing, and its error names the line. Empty cells are
-//! NULL; blank lines are skipped. The CSV dialect is RFC 4180: comma-separated, fields may
-//! be double-quoted, a quote inside one is doubled, and quoted fields may span lines. A
+//! transaction: a bad file writes nothing, and its error names the line. The empty cell is
+//! NULL, and so is every `--null` token (compared without surrounding spaces); blank lines
+//! are skipped. When a column would be numeric but for a few cells of one to three other
+//! words (`NA`, `-`), a warning names them and their counts and the `--null` that reads
+//! them as NULL.
+//!
+//! The dialect is RFC 4180 with a chosen separator (`--delimiter`; a tab for `.tsv` files,
+//! else a comma): fields may be double-quoted, a quote inside one is doubled, and quoted
+//! fields may span lines. Lines may end in LF, CRLF or a lone CR (old Mac exports). A
 //! UTF-8 byte-order mark is ignored.
 //!
-//! When the table exists, rows are appended to it (each header name must be one of its
-//! columns); otherwise it is created with the inferred types.
+//! The table is named by `--table`, else by the file's name without its extension. When it
+//! exists, rows are appended to it (each header name must be one of its columns), or with
+//! `--replace` it is dropped and created anew in the same transaction; otherwise it is
+//! created with the inferred types. A file that takes more than a second shows its
+//! progress on standard error.
 
 use std::borrow::Cow;
 use std::io::{IsTerminal, Write};
@@ -21,11 +30,10 @@ use rusqlite::Connection;
 use rusqlite::types::{ToSqlOutput, Value, ValueRef};
 use serde_json::{Map, json};
 
-use crate::Failure;
-use crate::db::{self, ResultSet, quote_ident};
+use crate::db::{self, Access, ResultSet, quote_ident};
 use crate::infer::{Class, classify, trim_spaces};
-use crate::interrupt;
 use crate::output::{Block, Format, Printer};
+use crate::{Failure, glyphs, interrupt, shown};
 
 /// A CSV shape error, with the 1-based line where it was found.
 #[derive(Debug, PartialEq, Eq)]
@@ -39,15 +47,35 @@ pub struct Reader<'a> {
     text: &'a str,
     pos: usize,
     line: usize,
+    delim: u8,
+}
+
+/// The separator's name in messages.
+pub fn delimiter_name(d: u8) -> String {
+    match d {
+        b',' => "comma".into(),
+        b'\t' => "tab".into(),
+        b';' => "semicolon".into(),
+        b'|' => "'|'".into(),
+        b' ' => "space".into(),
+        other => format!("'{}'", other as char),
+    }
 }
 
 impl<'a> Reader<'a> {
+    /// A comma-separated reader.
+    #[cfg(test)]
     pub fn new(text: &'a str) -> Self {
+        Reader::with_delimiter(text, b',')
+    }
+
+    pub fn with_delimiter(text: &'a str, delim: u8) -> Self {
         let text = text.strip_prefix('\u{feff}').unwrap_or(text);
         Reader {
             text,
             pos: 0,
             line: 1,
+            delim,
         }
     }
 
@@ -61,7 +89,8 @@ impl<'a> Reader<'a> {
     pub fn record(&mut self, fields: &mut Vec<Cow<'a, str>>) -> Result<Option<usize>, CsvError> {
         fields.clear();
         let b = self.text.as_bytes();
-        // Skip blank lines.
+        let d = self.delim;
+        // Skip blank lines (LF, CRLF or a lone CR).
         loop {
             match b.get(self.pos) {
                 None => return Ok(None),
@@ -69,8 +98,11 @@ impl<'a> Reader<'a> {
                     self.pos += 1;
                     self.line += 1;
                 }
-                Some(b'\r') if b.get(self.pos + 1) == Some(&b'\n') => {
-                    self.pos += 2;
+                Some(b'\r') => {
+                    self.pos += 1;
+                    if b.get(self.pos) == Some(&b'\n') {
+                        self.pos += 1;
+                    }
                     self.line += 1;
                 }
                 Some(_) => break,
@@ -102,6 +134,10 @@ impl<'a> Reader<'a> {
                             self.line += 1;
                             i += 1;
                         }
+                        Some(b'\r') if b.get(i + 1) != Some(&b'\n') => {
+                            self.line += 1;
+                            i += 1;
+                        }
                         Some(_) => i += 1,
                     }
                 }
@@ -113,12 +149,16 @@ impl<'a> Reader<'a> {
                 });
                 self.pos = i + 1;
                 match b.get(self.pos) {
-                    None | Some(b',' | b'\n') => {}
-                    Some(b'\r') if matches!(b.get(self.pos + 1), None | Some(b'\n')) => {}
+                    None | Some(b'\n' | b'\r') => {}
+                    Some(&c) if c == d => {}
                     Some(_) => {
                         return Err(CsvError {
                             line: self.line,
-                            message: "a quoted field must end at its closing quote, before the next comma or line end".into(),
+                            message: format!(
+                                "a quoted field must end at its closing quote, before the next \
+                                 {} or the line end",
+                                delimiter_name(d)
+                            ),
                         });
                     }
                 }
@@ -126,21 +166,17 @@ impl<'a> Reader<'a> {
                 let from = self.pos;
                 let mut i = from;
                 while let Some(&c) = b.get(i) {
-                    if c == b',' || c == b'\n' {
+                    if c == d || c == b'\n' || c == b'\r' {
                         break;
                     }
                     i += 1;
                 }
-                let mut end = i;
-                if end > from && b[end - 1] == b'\r' {
-                    end -= 1;
-                }
-                fields.push(Cow::Borrowed(&self.text[from..end]));
+                fields.push(Cow::Borrowed(&self.text[from..i]));
                 self.pos = i;
             }
-            // After a field: a comma goes on, a line end or the end of the text finishes.
+            // After a field: a separator goes on, a line end or the end of the text finishes.
             match b.get(self.pos) {
-                Some(b',') => self.pos += 1,
+                Some(&c) if c == d => self.pos += 1,
                 Some(b'\r') => {
                     self.pos += 1;
                     if b.get(self.pos) == Some(&b'\n') {
@@ -160,13 +196,150 @@ impl<'a> Reader<'a> {
     }
 }
 
+/// What the import was asked to do.
+pub struct Options<'a> {
+    pub file: &'a str,
+    pub table: Option<&'a str>,
+    pub db: Option<&'a Path>,
+    pub nulls: &'a [String],
+    pub delimiter: Option<&'a str>,
+    pub replace: bool,
+    pub format: Format,
+}
+
+/// How cells are read: the separator and the words that mean NULL.
+pub struct Dialect<'a> {
+    pub delim: u8,
+    pub nulls: &'a [String],
+}
+
+impl Dialect<'_> {
+    /// A comma-separated dialect whose only NULL is the empty cell.
+    #[cfg(test)]
+    pub fn csv() -> Dialect<'static> {
+        Dialect {
+            delim: b',',
+            nulls: &[],
+        }
+    }
+
+    fn is_null(&self, cell: &str) -> bool {
+        cell.is_empty()
+            || (!self.nulls.is_empty() && self.nulls.iter().any(|t| trim_spaces(cell) == t))
+    }
+}
+
+/// The separator: `--delimiter`, else a tab for a `.tsv` file, else a comma.
+pub fn delimiter(given: Option<&str>, file: &str) -> Result<u8, Failure> {
+    let Some(given) = given else {
+        let tsv = Path::new(file)
+            .extension()
+            .is_some_and(|e| e.eq_ignore_ascii_case("tsv"));
+        return Ok(if tsv { b'\t' } else { b',' });
+    };
+    if given.eq_ignore_ascii_case("tab") || given == "\\t" {
+        return Ok(b'\t');
+    }
+    let mut chars = given.chars();
+    match (chars.next(), chars.next()) {
+        (Some(c), None) if c.is_ascii() && !matches!(c, '"' | '\n' | '\r') => Ok(c as u8),
+        (Some('"' | '\n' | '\r'), None) => Err(Failure::usage(format!(
+            "--delimiter {} cannot separate fields (it quotes or ends them): give another character",
+            shown(given)
+        ))),
+        _ => Err(Failure::usage(format!(
+            "--delimiter wants one ASCII character (or the word tab), got '{}'",
+            shown(given)
+        ))),
+    }
+}
+
+/// The first few words that kept a numeric column from being numeric.
+#[derive(Debug, Default)]
+pub struct Stray {
+    /// Cells that read as numbers.
+    pub numbers: u64,
+    /// Other words and how many cells held each, in order of first appearance.
+    pub words: Vec<(String, u64)>,
+    /// Whether there were more than [`STRAY_WORDS`] different ones.
+    pub many: bool,
+}
+
+/// At most this many different words count as "a few" for the warning.
+const STRAY_WORDS: usize = 3;
+
+impl Stray {
+    fn note(&mut self, word: &str) {
+        if self.many {
+            return;
+        }
+        let word = trim_spaces(word);
+        match self.words.iter().position(|(w, _)| w == word) {
+            Some(i) => self.words[i].1 += 1,
+            None if self.words.len() < STRAY_WORDS => self.words.push((word.to_string(), 1)),
+            None => self.many = true,
+        }
+    }
+
+    /// The warning for a TEXT column that numbers dominate, if it is one.
+    fn warning(&self, column: &str) -> Option<String> {
+        let odd: u64 = self.words.iter().map(|(_, n)| n).sum();
+        if self.many || self.words.is_empty() || self.numbers == 0 || odd >= self.numbers {
+            return None;
+        }
+        let cells = |n: u64| if n == 1 { "cell" } else { "cells" };
+        let list: Vec<String> = self
+            .words
+            .iter()
+            .map(|(w, n)| format!("{n} {} '{}'", cells(*n), shown(w)))
+            .collect();
+        let flags: Vec<String> = self
+            .words
+            .iter()
+            .map(|(w, _)| format!("--null {}", shell_word(w)))
+            .collect();
+        Some(format!(
+            "column {} is TEXT because of {} among {} number{}; give {} to read {} as NULL",
+            shown(column),
+            join_and(&list),
+            self.numbers,
+            if self.numbers == 1 { "" } else { "s" },
+            flags.join(" "),
+            if odd == 1 { "it" } else { "them" }
+        ))
+    }
+}
+
+/// A word as it can be typed in a shell.
+fn shell_word(w: &str) -> String {
+    if !w.is_empty()
+        && w.chars()
+            .all(|c| c.is_ascii_alphanumeric() || "-_./:+".contains(c))
+    {
+        w.to_string()
+    } else {
+        format!("'{}'", shown(&w.replace('\'', "'\\''")))
+    }
+}
+
+fn join_and(items: &[String]) -> String {
+    match items {
+        [] => String::new(),
+        [one] => one.clone(),
+        [init @ .., last] => format!("{} and {last}", init.join(", ")),
+    }
+}
+
 /// What the first pass learned.
 #[derive(Debug)]
 pub struct Shape {
     pub header: Vec<String>,
     pub classes: Vec<Class>,
-    pub empty: Vec<u64>,
+    /// NULL cells per column: empty ones and `--null` words.
+    pub nulls: Vec<u64>,
     pub rows: u64,
+    /// Per column: the numbers and the other words seen.
+    pub strays: Vec<Stray>,
 }
 
 impl Shape {
@@ -181,55 +354,92 @@ impl Shape {
             })
             .collect()
     }
+
+    /// Warnings for columns that a few words turned TEXT.
+    pub fn warnings(&self) -> Vec<String> {
+        self.header
+            .iter()
+            .zip(&self.classes)
+            .zip(&self.strays)
+            .filter(|((_, c), _)| **c == Class::Text)
+            .filter_map(|((h, _), s)| s.warning(h))
+            .collect()
+    }
 }
 
-/// Draws a progress line on standard error for long imports (only on a terminal).
-struct Progress {
+/// "1 row", "2 rows".
+fn rows_word(n: u64) -> String {
+    format!("{n} row{}", if n == 1 { "" } else { "s" })
+}
+
+/// Shows how far an import has got, on standard error, once it has taken a second: a
+/// redrawn bar on a terminal, a plain line every ten seconds elsewhere.
+pub struct Progress {
     label: String,
     total: usize,
     start: Instant,
     last: Option<Instant>,
-    enabled: bool,
+    terminal: bool,
 }
 
+/// How long an import runs before it shows progress.
+const PROGRESS_AFTER: Duration = Duration::from_secs(1);
+
 impl Progress {
-    fn new(label: String, total: usize) -> Self {
+    fn new(label: String, total: usize, start: Instant) -> Self {
         Progress {
             label,
             total: total.max(1),
-            start: Instant::now(),
+            start,
             last: None,
-            enabled: std::io::stderr().is_terminal(),
+            terminal: std::io::stderr().is_terminal(),
         }
     }
 
-    /// Redraws at most ten times a second, once the work has taken half a second.
     fn tick(&mut self, done: usize, rows: u64) {
-        if !self.enabled || self.start.elapsed() < Duration::from_millis(500) {
+        let elapsed = self.start.elapsed();
+        if elapsed < PROGRESS_AFTER {
             return;
         }
-        if self
-            .last
-            .is_some_and(|t| t.elapsed() < Duration::from_millis(100))
-        {
+        let every = if self.terminal {
+            Duration::from_millis(100)
+        } else {
+            Duration::from_secs(10)
+        };
+        if self.last.is_some_and(|t| t.elapsed() < every) {
             return;
         }
         self.last = Some(Instant::now());
         let frac = done as f64 / self.total as f64;
-        let filled = (frac * 24.0).round() as usize;
-        let bar: String = "▰".repeat(filled.min(24)) + &"▱".repeat(24 - filled.min(24));
         let mut err = std::io::stderr().lock();
-        let _ = write!(
-            err,
-            "\r  {} {bar} {:>3.0}%  {rows} rows  {:.1} s ",
-            self.label,
-            frac * 100.0,
-            self.start.elapsed().as_secs_f64()
-        );
+        if self.terminal {
+            let g = glyphs::get();
+            let filled = ((frac * 24.0).round() as usize).min(24);
+            let bar: String = std::iter::repeat_n(g.bar_done, filled)
+                .chain(std::iter::repeat_n(g.bar_todo, 24 - filled))
+                .collect();
+            let _ = write!(
+                err,
+                "\r  {} {bar} {:>3.0}%  {}  {:.1} s ",
+                self.label,
+                frac * 100.0,
+                rows_word(rows),
+                elapsed.as_secs_f64()
+            );
+        } else {
+            let _ = writeln!(
+                err,
+                "ogive: {}: {:.0}% after {:.1} s ({})",
+                self.label,
+                frac * 100.0,
+                elapsed.as_secs_f64(),
+                rows_word(rows)
+            );
+        }
         let _ = err.flush();
     }
 
-    /// Every 65,536 rows: stops on Ctrl-C, else redraws.
+    /// Every 65,536 rows: stops on Ctrl-C, else shows progress.
     fn every(&mut self, done: usize, rows: u64) -> Result<(), Failure> {
         if rows.is_multiple_of(65_536) {
             if interrupt::requested() {
@@ -242,7 +452,7 @@ impl Progress {
     }
 
     fn finish(&mut self) {
-        if self.last.is_some() {
+        if self.terminal && self.last.is_some() {
             let mut err = std::io::stderr().lock();
             let _ = write!(err, "\r{:78}\r", "");
             let _ = err.flush();
@@ -258,8 +468,8 @@ fn located(file: &str, e: CsvError) -> Failure {
 }
 
 /// The first pass: shape and types.
-pub fn survey(file: &str, text: &str) -> Result<Shape, Failure> {
-    let mut reader = Reader::new(text);
+pub fn survey(file: &str, text: &str, dialect: &Dialect, start: Instant) -> Result<Shape, Failure> {
+    let mut reader = Reader::with_delimiter(text, dialect.delim);
     let mut fields = Vec::new();
     let Some(_) = reader.record(&mut fields).map_err(|e| located(file, e))? else {
         return Err(Failure::failed(format!(
@@ -276,23 +486,33 @@ pub fn survey(file: &str, text: &str) -> Result<Shape, Failure> {
         }
         if header[..i].iter().any(|o| o.eq_ignore_ascii_case(h)) {
             return Err(Failure::failed(format!(
-                "{file}:1: the header names column '{h}' twice; nothing was imported"
+                "{file}:1: the header names column '{}' twice; nothing was imported",
+                shown(h)
             )));
         }
     }
     let n = header.len();
     let mut classes = vec![Class::Empty; n];
-    let mut empty = vec![0u64; n];
+    let mut nulls = vec![0u64; n];
+    let mut strays: Vec<Stray> = (0..n).map(|_| Stray::default()).collect();
     let mut rows = 0u64;
-    let mut progress = Progress::new(format!("reading {file}"), text.len());
+    let mut progress = Progress::new(format!("reading {file}"), text.len(), start);
     while let Some(line) = reader.record(&mut fields).map_err(|e| located(file, e))? {
         if fields.len() != n {
+            let hint = if fields.len() == 1 && n > 1 {
+                format!(
+                    " (no {} in the line: is the separator another one? see --delimiter)",
+                    delimiter_name(dialect.delim)
+                )
+            } else {
+                String::new()
+            };
             return Err(located(
                 file,
                 CsvError {
                     line,
                     message: format!(
-                        "expected {n} field{} as in the header, found {}",
+                        "expected {n} field{} as in the header, found {}{hint}",
                         if n == 1 { "" } else { "s" },
                         fields.len()
                     ),
@@ -300,11 +520,16 @@ pub fn survey(file: &str, text: &str) -> Result<Shape, Failure> {
             ));
         }
         for (c, f) in fields.iter().enumerate() {
-            // Once a column is TEXT nothing changes it; only emptiness is still counted.
-            if f.is_empty() {
-                empty[c] += 1;
-            } else if classes[c] != Class::Text {
-                classes[c] = classes[c].max(classify(f));
+            if dialect.is_null(f) {
+                nulls[c] += 1;
+                continue;
+            }
+            let class = classify(f);
+            classes[c] = classes[c].max(class);
+            match class {
+                Class::Integer | Class::Real => strays[c].numbers += 1,
+                Class::Text => strays[c].note(f),
+                Class::Empty => {}
             }
         }
         rows += 1;
@@ -314,8 +539,9 @@ pub fn survey(file: &str, text: &str) -> Result<Shape, Failure> {
     Ok(Shape {
         header,
         classes,
-        empty,
+        nulls,
         rows,
+        strays,
     })
 }
 
@@ -328,30 +554,56 @@ fn existing_columns(conn: &Connection, table: &str) -> rusqlite::Result<Option<V
     Ok((!cols.is_empty()).then_some(cols))
 }
 
-/// The second pass: creates or appends to the table in one transaction.
+/// What the second pass did to the table.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Done {
+    Created,
+    Appended,
+    Replaced,
+}
+
+/// The second pass: creates, replaces or appends to the table in one transaction.
+#[allow(clippy::too_many_arguments)]
 pub fn load(
     conn: &Connection,
     file: &str,
     text: &str,
     table: &str,
     shape: &Shape,
-) -> Result<bool, Failure> {
-    let sql_err =
-        |e: rusqlite::Error| Failure::failed(format!("{file}: {e}; nothing was imported"));
+    dialect: &Dialect,
+    replace: bool,
+    start: Instant,
+) -> Result<Done, Failure> {
+    let sql_err = |e: rusqlite::Error| {
+        if db::is_locked(&e) {
+            Failure::failed(format!(
+                "{file}: the database is locked by another connection; nothing was imported"
+            ))
+        } else {
+            Failure::failed(format!("{file}: {e}; nothing was imported"))
+        }
+    };
     let tx = conn.unchecked_transaction().map_err(sql_err)?;
-    let created = match existing_columns(&tx, table).map_err(sql_err)? {
-        Some(cols) => {
+    let existing = existing_columns(&tx, table).map_err(sql_err)?;
+    let done = match existing {
+        Some(cols) if !replace => {
             for h in &shape.header {
                 if !cols.iter().any(|c| c.eq_ignore_ascii_case(h)) {
                     return Err(Failure::failed(format!(
-                        "{file}:1: table {table} has no column '{h}' (it has {}); nothing was imported",
+                        "{file}:1: table {table} has no column '{}' (it has {}); give --replace \
+                         to drop the table and create it from the file; nothing was imported",
+                        shown(h),
                         cols.join(", ")
                     )));
                 }
             }
-            false
+            Done::Appended
         }
-        None => {
+        _ => {
+            if existing.is_some() {
+                tx.execute_batch(&format!("DROP TABLE {}", quote_ident(table)))
+                    .map_err(sql_err)?;
+            }
             let cols: Vec<String> = shape
                 .header
                 .iter()
@@ -364,7 +616,11 @@ pub fn load(
                 cols.join(", ")
             ))
             .map_err(sql_err)?;
-            true
+            if existing.is_some() {
+                Done::Replaced
+            } else {
+                Done::Created
+            }
         }
     };
     let names: Vec<String> = shape.header.iter().map(|h| quote_ident(h)).collect();
@@ -377,15 +633,15 @@ pub fn load(
             marks.join(", ")
         ))
         .map_err(sql_err)?;
-    let mut reader = Reader::new(text);
+    let mut reader = Reader::with_delimiter(text, dialect.delim);
     let mut fields = Vec::new();
     reader.record(&mut fields).map_err(|e| located(file, e))?;
-    let mut progress = Progress::new(format!("importing {file}"), text.len());
+    let mut progress = Progress::new(format!("importing {file}"), text.len(), start);
     let mut rows = 0u64;
     while let Some(line) = reader.record(&mut fields).map_err(|e| located(file, e))? {
         for (c, f) in fields.iter().enumerate() {
             let f: &str = f;
-            let value = if f.is_empty() {
+            let value = if dialect.is_null(f) {
                 ValueRef::Null
             } else {
                 match shape.classes[c] {
@@ -402,25 +658,47 @@ pub fn load(
                 .raw_bind_parameter(c + 1, ToSqlOutput::Borrowed(value))
                 .map_err(sql_err)?;
         }
-        insert
-            .raw_execute()
-            .map_err(|e| Failure::failed(format!("{file}:{line}: {e}; nothing was imported")))?;
+        insert.raw_execute().map_err(|e| {
+            Failure::failed(format!(
+                "{file}:{line}: {}; nothing was imported",
+                shown(&e.to_string())
+            ))
+        })?;
         rows += 1;
         progress.every(reader.position(), rows)?;
     }
     progress.finish();
     drop(insert);
     tx.commit().map_err(sql_err)?;
-    Ok(created)
+    Ok(done)
+}
+
+/// The table name for a file: its name without the extension.
+pub fn default_table(file: &str) -> Result<String, Failure> {
+    Path::new(file)
+        .file_stem()
+        .map(|s| s.to_string_lossy().trim().to_string())
+        .filter(|s| !s.is_empty())
+        .ok_or_else(|| {
+            Failure::usage(format!(
+                "cannot name a table after {file}: give --table NAME"
+            ))
+        })
 }
 
 /// The `import` verb.
-pub fn import(
-    file: &str,
-    table: &str,
-    db_path: Option<&Path>,
-    format: Format,
-) -> Result<i32, Failure> {
+pub fn import(o: &Options) -> Result<i32, Failure> {
+    let file = o.file;
+    let start = Instant::now();
+    let table = match o.table {
+        Some(t) if t.trim().is_empty() => return Err(Failure::usage("--table needs a name")),
+        Some(t) => t.to_string(),
+        None => default_table(file)?,
+    };
+    let dialect = Dialect {
+        delim: delimiter(o.delimiter, file)?,
+        nulls: o.nulls,
+    };
     let bytes =
         std::fs::read(file).map_err(|e| Failure::usage(format!("cannot read {file}: {e}")))?;
     let text = std::str::from_utf8(&bytes).map_err(|e| {
@@ -433,20 +711,27 @@ pub fn import(
             "{file}:{line}: not UTF-8 text; nothing was imported"
         ))
     })?;
-    if table.trim().is_empty() {
-        return Err(Failure::usage("--table needs a name"));
+    let shape = survey(file, text, &dialect, start)?;
+    for w in shape.warnings() {
+        eprintln!("ogive: warning: {w}");
     }
-    let shape = survey(file, text)?;
-    let conn = db::open(db_path, true)?;
-    let created = load(&conn, file, text, table, &shape)?;
+    let done = match o.db {
+        Some(path) => {
+            let conn = db::open(Some(path), Access::Create)?;
+            Some(load(
+                &conn, file, text, &table, &shape, &dialect, o.replace, start,
+            )?)
+        }
+        None => None,
+    };
 
     let rows = ResultSet {
-        columns: ["column", "type", "empty cells"].map(String::from).to_vec(),
+        columns: ["column", "type", "null cells"].map(String::from).to_vec(),
         rows: shape
             .header
             .iter()
             .zip(shape.types())
-            .zip(&shape.empty)
+            .zip(&shape.nulls)
             .map(|((h, t), e)| {
                 vec![
                     Value::Text(h.clone()),
@@ -460,29 +745,35 @@ pub fn import(
     meta.insert("file".into(), json!(file));
     meta.insert("table".into(), json!(table));
     meta.insert("records".into(), json!(shape.rows));
-    meta.insert("created".into(), json!(created));
-    meta.insert("written".into(), json!(db_path.is_some()));
-    let verb = if created { "created" } else { "appended to" };
-    let note = match db_path {
-        Some(_) => format!(
-            "{} rows imported from {file}; {verb} table {table}",
-            shape.rows
-        ),
+    meta.insert(
+        "created".into(),
+        json!(done.is_some_and(|d| d != Done::Appended)),
+    );
+    meta.insert("replaced".into(), json!(done == Some(Done::Replaced)));
+    meta.insert("written".into(), json!(done.is_some()));
+    let n = rows_word(shape.rows);
+    let note = match done {
+        Some(d) => {
+            let verb = match d {
+                Done::Created => "created",
+                Done::Appended => "appended to",
+                Done::Replaced => "replaced",
+            };
+            format!("{n} imported from {file}; {verb} table {table}")
+        }
         None => format!(
-            "{} rows read from {file}; nothing was written (give --db PATH to keep them)",
-            shape.rows
+            "{n} read from {file}; nothing was written (give --db PATH to keep {})",
+            if shape.rows == 1 { "it" } else { "them" }
         ),
     };
-    let mut printer = Printer::new(format, std::io::stdout().lock());
-    printer
-        .print(&Block::Rows {
-            title: Some(format!("{file} → {table}")),
-            meta,
-            rows,
-            count: false,
-        })
-        .map_err(Failure::output)?;
-    printer.print(&Block::note(note)).map_err(Failure::output)?;
+    let mut printer = Printer::new(o.format, std::io::stdout().lock());
+    printer.print(&Block::Rows {
+        title: Some(format!("{file} {} {table}", glyphs::get().arrow)),
+        meta,
+        rows,
+        count: false,
+    })?;
+    printer.print(&Block::note(note))?;
     Ok(0)
 }
 
@@ -535,20 +826,76 @@ mod tests {
 
     #[test]
     fn survey_infers_types_and_counts_empty_cells() {
-        let s = survey("t.csv", "i,r,t,e\n1,2,a,\n,2.5,007,\n-3,4,,\n").unwrap();
+        let s = survey(
+            "t.csv",
+            "i,r,t,e\n1,2,a,\n,2.5,007,\n-3,4,,\n",
+            &Dialect::csv(),
+            Instant::now(),
+        )
+        .unwrap();
         assert_eq!(s.types(), vec!["INTEGER", "REAL", "TEXT", "TEXT"]);
-        assert_eq!(s.empty, vec![1, 0, 1, 3]);
+        assert_eq!(s.nulls, vec![1, 0, 1, 3]);
         assert_eq!(s.rows, 3);
     }
 
     #[test]
     fn ragged_rows_are_refused_with_their_line() {
-        let e = survey("t.csv", "a,b\n1,2\n3\n").unwrap_err();
+        let e = survey("t.csv", "a,b\n1,2\n3\n", &Dialect::csv(), Instant::now()).unwrap_err();
         assert_eq!(e.code, 1);
         assert!(
             e.message.starts_with("t.csv:3: expected 2 fields"),
             "{}",
             e.message
         );
+    }
+
+    #[test]
+    fn lone_cr_ends_lines() {
+        let got = records("a,b\r1,2\r\r\"x\ry\",3\r").unwrap();
+        assert_eq!(
+            got,
+            vec![
+                (1, vec!["a".into(), "b".into()]),
+                (2, vec!["1".into(), "2".into()]),
+                (4, vec!["x\ry".into(), "3".into()]),
+            ]
+        );
+    }
+
+    #[test]
+    fn other_separators() {
+        let mut r = Reader::with_delimiter("a\tb\n\"x\ty\"\t2\n", b'\t');
+        let mut f = Vec::new();
+        r.record(&mut f).unwrap();
+        r.record(&mut f).unwrap();
+        assert_eq!(f, vec!["x\ty", "2"]);
+        assert_eq!(delimiter(None, "d/x.TSV").unwrap(), b'\t');
+        assert_eq!(delimiter(None, "x.csv").unwrap(), b',');
+        assert_eq!(delimiter(Some(";"), "x.tsv").unwrap(), b';');
+        assert_eq!(delimiter(Some("tab"), "x.csv").unwrap(), b'\t');
+        assert!(delimiter(Some("\""), "x.csv").is_err());
+        assert!(delimiter(Some(";;"), "x.csv").is_err());
+    }
+
+    #[test]
+    fn null_words_and_the_stray_warning() {
+        let text = "x,y,code\n1,a,007\nNA,b,012\n3,NA,013\n4,-,014\n";
+        let s = survey("t.csv", text, &Dialect::csv(), Instant::now()).unwrap();
+        assert_eq!(s.types(), vec!["TEXT", "TEXT", "TEXT"]);
+        let w = s.warnings();
+        assert_eq!(w.len(), 1, "{w:?}");
+        assert_eq!(
+            w[0],
+            "column x is TEXT because of 1 cell 'NA' among 3 numbers; give --null NA to read it as NULL"
+        );
+        let nulls = ["NA".to_string()];
+        let d = Dialect {
+            delim: b',',
+            nulls: &nulls,
+        };
+        let s = survey("t.csv", text, &d, Instant::now()).unwrap();
+        assert_eq!(s.types()[0], "INTEGER");
+        assert_eq!(s.nulls, vec![1, 1, 0]);
+        assert!(s.warnings().is_empty());
     }
 }

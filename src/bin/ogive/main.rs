@@ -11,6 +11,7 @@ mod catalogue;
 mod check;
 mod db;
 mod demo;
+mod glyphs;
 mod import;
 mod infer;
 mod interrupt;
@@ -72,6 +73,22 @@ impl Failure {
     }
 }
 
+/// Text for a message: control characters (a lone CR, a tab, an escape) shown as escapes,
+/// so that an error never moves the cursor or rewrites the terminal.
+pub fn shown(text: &str) -> String {
+    let mut s = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '\r' => s.push_str("\\r"),
+            '\n' => s.push_str("\\n"),
+            '\t' => s.push_str("\\t"),
+            c if c.is_control() => s.push_str(&format!("\\u{{{:x}}}", c as u32)),
+            c => s.push(c),
+        }
+    }
+    s
+}
+
 #[derive(Parser)]
 #[command(
     name = "ogive",
@@ -106,6 +123,10 @@ struct On {
 #[derive(Subcommand)]
 enum Verb {
     /// Run .sql files: every statement, each result set under a line naming its file and statement
+    ///
+    /// Each file runs in one transaction: when a statement fails, every change the file made
+    /// is rolled back (files before it stay committed). --no-transaction commits each
+    /// statement as it runs.
     Run {
         /// The .sql files, run in order
         #[arg(required = true, value_name = "FILE.sql")]
@@ -114,6 +135,12 @@ enum Verb {
         on: On,
         #[arg(long, value_enum, default_value_t = Format::Table)]
         format: Format,
+        /// With --format csv: write each result set to DIR/FILE-STATEMENT.csv
+        #[arg(long, value_name = "DIR")]
+        out_dir: Option<PathBuf>,
+        /// Commit each statement as it runs (default: each file in one transaction)
+        #[arg(long)]
+        no_transaction: bool,
     },
     /// Run check files: each query is a check that fails when a row's ok column is false or NULL
     Check {
@@ -127,17 +154,30 @@ enum Verb {
         /// Also write a JUnit XML report for CI servers
         #[arg(long, value_name = "FILE.xml")]
         report: Option<PathBuf>,
+        /// Let the checks write to the database file (default: it is opened read-only)
+        #[arg(long)]
+        allow_writes: bool,
     },
     /// Import a CSV file (header row; INTEGER, REAL or TEXT columns; empty cells NULL) in one transaction
     Import {
         #[arg(value_name = "FILE.csv")]
         file: String,
-        /// Table to create, or to append to when it exists
+        /// Table to create, or to append to when it exists (default: the file's name
+        /// without its extension)
         #[arg(long, value_name = "NAME")]
-        table: String,
+        table: Option<String>,
         /// Database file, created if missing (without it, the file is only checked)
         #[arg(long, value_name = "PATH")]
         db: Option<PathBuf>,
+        /// A cell that means NULL, besides the empty cell (repeat for more: --null NA --null -)
+        #[arg(long = "null", value_name = "TEXT")]
+        nulls: Vec<String>,
+        /// The field separator: one character, or `tab` (default: a comma; a tab for .tsv files)
+        #[arg(long, value_name = "CHAR")]
+        delimiter: Option<String>,
+        /// Drop the table and create it anew, in the same transaction as the rows
+        #[arg(long)]
+        replace: bool,
         #[arg(long, value_enum, default_value_t = Format::Table)]
         format: Format,
     },
@@ -146,7 +186,7 @@ enum Verb {
         /// The .sql file; its last query gives the rows
         #[arg(value_name = "FILE.sql")]
         file: String,
-        /// The SVG file to write
+        /// The SVG file to write (ogive draws SVG only)
         #[arg(long, value_name = "FIG.svg")]
         out: PathBuf,
         /// steps (cdfs), lines (curves) or bars (histograms, categories); default: the
@@ -184,27 +224,53 @@ fn main() {
     let cli = Cli::parse();
     let result = match cli.verb {
         None => repl::prompt(cli.db.as_deref(), cli.format),
-        Some(Verb::Run { files, on, format }) => {
-            run::run(&files, on.db.as_deref(), &on.params, format)
-        }
+        Some(Verb::Run {
+            files,
+            on,
+            format,
+            out_dir,
+            no_transaction,
+        }) => run::run(
+            &files,
+            on.db.as_deref(),
+            &on.params,
+            &run::RunOptions {
+                format,
+                out_dir: out_dir.as_deref(),
+                no_transaction,
+            },
+        ),
         Some(Verb::Check {
             files,
             on,
             format,
             report,
+            allow_writes,
         }) => check::check(
             &files,
             on.db.as_deref(),
             &on.params,
             format,
             report.as_deref(),
+            allow_writes,
         ),
         Some(Verb::Import {
             file,
             table,
             db,
+            nulls,
+            delimiter,
+            replace,
             format,
-        }) => import::import(&file, &table, db.as_deref(), format),
+        }) => import::import(&import::Options {
+            file: &file,
+            table: table.as_deref(),
+            db: db.as_deref(),
+            nulls: &nulls,
+            delimiter: delimiter.as_deref(),
+            replace,
+            format,
+        }),
         Some(Verb::Plot {
             file,
             out,

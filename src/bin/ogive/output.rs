@@ -3,23 +3,33 @@
 //! Every verb prints a sequence of [`Block`]s: result sets with a title (which file and
 //! statement they came from) and notes. The formats:
 //!
-//! - `table`: a title line starting with `▸`, a table with dotted column rules and a heavy
-//!   rule under the header, numbers right-aligned, and a row count;
-//! - `csv`: RFC 4180 rows with a header row; a title is a `#` line above, NULL is an empty
-//!   field, and blocks are separated by a blank line;
+//! - `table`: a title line starting with `▸`, then the table hanging from a rail down its
+//!   left edge: the header, a dashed rule leaving the rail, the rows (numbers
+//!   right-aligned, columns three spaces apart), and the row count on the rail's foot
+//!   (`╰ 2 rows`). In a locale that is not UTF-8 the same look is drawn in ASCII
+//!   (see [`crate::glyphs`]);
+//! - `csv`: only CSV: one result set as RFC 4180 rows under a header row, NULL an empty
+//!   field. Titles, notes and errors go to standard error. A verb that gives a second result
+//!   set stops with an error asking for `--out-dir DIR` ([`CsvSink::Dir`] writes one file
+//!   per result set there); only the prompt prints one CSV block per statement;
 //! - `json`: one JSON object per block and line (`columns` and `rows` arrays, plus the
 //!   block's origin); NULL is null, an infinite REAL is the string `"inf"` or `"-inf"`, a
 //!   BLOB is its hex digits as a string;
 //! - `markdown`: a bold title line and a pipe table, numbers right-aligned.
 
 use std::io::Write;
+use std::path::{Path, PathBuf};
 
-use comfy_table::{CellAlignment, ContentLineStyle, LineStyle, Table, TableStyle};
+use comfy_table::{
+    CellAlignment, ContentArrangement, ContentLineStyle, LineStyle, Table, TableStyle,
+};
 use ogive::functions::render_value;
 use rusqlite::types::Value;
 use serde_json::{Map, Value as Json, json};
 
+use crate::Failure;
 use crate::db::ResultSet;
+use crate::glyphs;
 
 /// How results are printed.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -99,29 +109,66 @@ impl Block {
     }
 }
 
+/// Where CSV result sets go.
+pub enum CsvSink {
+    /// Standard output, one result set at most (the verbs).
+    One { printed: bool, hint: &'static str },
+    /// Standard output, one CSV block per result set, blank lines between (the prompt).
+    Many,
+    /// One file per result set in a directory (`--out-dir`).
+    Dir { dir: PathBuf, written: Vec<PathBuf> },
+}
+
 /// Writes blocks in one format, with a blank line between a table and what follows it.
 pub struct Printer<W: Write> {
     pub format: Format,
     out: W,
     /// Whether the last block printed was a one-line block (a note or a done line).
     last: Option<bool>,
+    csv: CsvSink,
 }
 
 impl<W: Write> Printer<W> {
+    /// A printer for a verb: CSV allows one result set.
     pub fn new(format: Format, out: W) -> Self {
         Printer {
             format,
             out,
             last: None,
+            csv: CsvSink::One {
+                printed: false,
+                hint: "give --out-dir DIR for one CSV file per result set, or use --format json",
+            },
         }
     }
 
-    /// Prints one block.
-    pub fn print(&mut self, block: &Block) -> std::io::Result<()> {
+    /// Sets where CSV result sets go.
+    pub fn csv_sink(mut self, sink: CsvSink) -> Self {
+        self.csv = sink;
+        self
+    }
+
+    /// The files written to the `--out-dir` directory so far.
+    pub fn written(&self) -> &[PathBuf] {
+        match &self.csv {
+            CsvSink::Dir { written, .. } => written,
+            _ => &[],
+        }
+    }
+
+    /// Prints one block. In CSV everything but result sets goes to standard error.
+    pub fn print(&mut self, block: &Block) -> Result<(), Failure> {
+        if self.format == Format::Csv {
+            return self.print_csv(block);
+        }
         let text = render(self.format, block);
         if text.is_empty() {
             return Ok(());
         }
+        self.write(block, &text).map_err(Failure::output)
+    }
+
+    fn write(&mut self, block: &Block, text: &str) -> std::io::Result<()> {
         let one_line = match block {
             Block::Rows { .. } => false,
             Block::Note { text, .. } => !text.contains('\n'),
@@ -144,6 +191,94 @@ impl<W: Write> Printer<W> {
         self.last = Some(one_line);
         Ok(())
     }
+
+    fn print_csv(&mut self, block: &Block) -> Result<(), Failure> {
+        let Block::Rows { rows, meta, .. } = block else {
+            // Notes and errors are for people: standard error, in the table's words.
+            let text = match block {
+                Block::Note { text, .. } => format!("ogive: {text}\n"),
+                Block::Done { .. } => String::new(),
+                other => render(Format::Table, other),
+            };
+            if !text.is_empty() {
+                let _ = self.out.flush();
+                eprint!("{text}");
+            }
+            return Ok(());
+        };
+        let text = csv_rows(rows);
+        match &mut self.csv {
+            CsvSink::One { printed, hint } => {
+                if *printed {
+                    let at = match (meta.get("file"), meta.get("line")) {
+                        (Some(Json::String(f)), Some(l)) => format!(" ({f}, line {l})"),
+                        _ => String::new(),
+                    };
+                    return Err(Failure::usage(format!(
+                        "a second result set{at}: --format csv prints one result set on \
+                         standard output; {hint}"
+                    )));
+                }
+                *printed = true;
+                self.write(block, &text).map_err(Failure::output)
+            }
+            CsvSink::Many => self.write(block, &text).map_err(Failure::output),
+            CsvSink::Dir { dir, written } => {
+                let path = csv_file_name(dir, meta, written.len());
+                if written.contains(&path) {
+                    return Err(Failure::usage(format!(
+                        "two result sets would both be written to {}: give the files \
+                         different names",
+                        path.display()
+                    )));
+                }
+                std::fs::write(&path, text)
+                    .map_err(|e| Failure::usage(format!("cannot write {}: {e}", path.display())))?;
+                written.push(path);
+                Ok(())
+            }
+        }
+    }
+}
+
+/// The file for a result set in `--out-dir`: the source file's stem and the statement
+/// number (`queries-3.csv`), else its position among the result sets.
+fn csv_file_name(dir: &Path, meta: &Map<String, Json>, seen: usize) -> PathBuf {
+    let stem = meta
+        .get("file")
+        .and_then(Json::as_str)
+        .and_then(|f| Path::new(f).file_stem())
+        .map(|s| s.to_string_lossy().into_owned());
+    let n = meta
+        .get("statement")
+        .and_then(Json::as_u64)
+        .filter(|n| *n > 0);
+    let name = match (stem, n) {
+        (Some(s), Some(n)) => format!("{s}-{n}.csv"),
+        (Some(s), None) => format!("{s}.csv"),
+        _ => format!("result-{}.csv", seen + 1),
+    };
+    dir.join(name)
+}
+
+/// A result set as CSV: the header row, then the rows.
+pub fn csv_rows(rows: &ResultSet) -> String {
+    let mut s = String::new();
+    csv_line(&mut s, rows.columns.iter().map(String::as_str));
+    for r in &rows.rows {
+        let cells: Vec<String> = r.iter().map(csv_value).collect();
+        csv_line(&mut s, cells.iter().map(String::as_str));
+    }
+    s
+}
+
+/// The row-count line under a table: on the rail's foot in the table format.
+pub fn count_line(n: usize, extra: &str) -> String {
+    format!(
+        "{} {n} row{}{extra}",
+        glyphs::get().foot,
+        if n == 1 { "" } else { "s" }
+    )
 }
 
 /// One block in one format, ending with a newline.
@@ -173,32 +308,21 @@ pub fn render(format: Format, block: &Block) -> String {
         ) => {
             let mut s = String::new();
             if let Some(t) = title {
-                s.push_str(&format!("▸ {t}\n"));
+                s.push_str(&format!("{} {t}\n", glyphs::get().title));
             }
             if !rows.columns.is_empty() {
                 s.push_str(&table(rows));
                 s.push('\n');
             }
             if *count {
-                let n = rows.rows.len();
-                s.push_str(&format!("{n} row{}\n", if n == 1 { "" } else { "s" }));
+                s.push_str(&count_line(rows.rows.len(), ""));
+                s.push('\n');
             }
             s
         }
         (Format::Table, Block::Note { text, .. }) => format!("{text}\n"),
-        (Format::Csv, Block::Rows { title, rows, .. }) => {
-            let mut s = String::new();
-            if let Some(t) = title {
-                s.push_str(&format!("# {t}\n"));
-            }
-            csv_line(&mut s, rows.columns.iter().map(String::as_str));
-            for r in &rows.rows {
-                let cells: Vec<String> = r.iter().map(csv_value).collect();
-                csv_line(&mut s, cells.iter().map(String::as_str));
-            }
-            s
-        }
-        (Format::Csv, Block::Note { text, .. }) => format!("# {text}\n"),
+        (Format::Csv, Block::Rows { rows, .. }) => csv_rows(rows),
+        (Format::Csv, Block::Note { .. }) => String::new(),
         (Format::Markdown, Block::Rows { title, rows, .. }) => {
             let mut s = String::new();
             if let Some(t) = title {
@@ -219,19 +343,16 @@ pub fn render(format: Format, block: &Block) -> String {
             obj.insert("error".into(), json!(detail));
             format!("{}\n", Json::Object(obj))
         }
-        (Format::Table, Block::Error { title, detail, .. }) => format!("▸ {title}\n{detail}\n"),
-        (Format::Csv, Block::Error { title, detail, .. }) => {
-            let mut s = format!("# {title}\n");
-            for l in detail.lines() {
-                s.push_str(&format!("# {l}\n"));
-            }
-            s
+        (Format::Table, Block::Error { title, detail, .. }) => {
+            format!("{} {title}\n{detail}\n", glyphs::get().title)
         }
+        (Format::Csv, Block::Error { .. }) => String::new(),
         (Format::Markdown, Block::Error { title, detail, .. }) => {
             format!("**{}**\n\n```\n{detail}\n```\n", md_escape(title))
         }
         (Format::Table, Block::Done { title, changed, .. }) => {
-            format!("▸ {title} · {}\n", done(*changed))
+            let g = glyphs::get();
+            format!("{} {title} {} {}\n", g.title, g.dot, done(*changed))
         }
         (Format::Markdown, Block::Done { title, changed, .. }) => {
             format!("**{}**: {}\n", md_escape(title), done(*changed))
@@ -247,12 +368,20 @@ fn done(changed: u64) -> String {
     }
 }
 
-/// The shell's table look: dotted rules between columns, a heavy rule under the header,
-/// no outer frame.
-const STYLE: TableStyle = TableStyle::new()
-    .header_lines(ContentLineStyle::none().junction('┆'))
-    .header_separator(LineStyle::none().fill('━').junction('┿'))
-    .content_lines(ContentLineStyle::none().junction('┆'));
+/// The shell's table look: a rail down the left edge, a dashed rule under the header that
+/// leaves the rail, columns three spaces apart, no frame on the other sides.
+fn style() -> TableStyle {
+    let g = glyphs::get();
+    TableStyle::new()
+        .header_lines(ContentLineStyle::none().left(g.rail))
+        .header_separator(
+            LineStyle::none()
+                .left(g.rule_start)
+                .fill(g.rule)
+                .junction(g.rule),
+        )
+        .content_lines(ContentLineStyle::none().left(g.rail))
+}
 
 /// Whether every non-NULL value of column `c` is a number (and there is one).
 fn numeric_column(rows: &ResultSet, c: usize) -> bool {
@@ -269,8 +398,18 @@ fn numeric_column(rows: &ResultSet, c: usize) -> bool {
 
 /// A result set as a table in the shell's style.
 pub fn table(rows: &ResultSet) -> String {
+    table_within(rows, None)
+}
+
+/// A table no wider than `width` columns when given: long cells wrap onto more lines,
+/// so a terminal never breaks the rule.
+pub fn table_within(rows: &ResultSet, width: Option<u16>) -> String {
     let mut t = Table::new();
-    t.load_style(STYLE);
+    t.load_style(style());
+    if let Some(w) = width {
+        t.set_width(w);
+        t.set_content_arrangement(ContentArrangement::Dynamic);
+    }
     t.set_header(rows.columns.clone());
     for r in &rows.rows {
         t.add_row(r.iter().map(render_value).collect::<Vec<_>>());
@@ -413,6 +552,11 @@ mod tests {
             rows: vec![vec![Value::Text("a".into()), Value::Integer(1)]],
         };
         let s = table(&rs);
-        assert_eq!(s, " k ┆ value\n━━━┿━━━━━━━\n a ┆     1");
+        let g = glyphs::get();
+        let (r, s0, f) = (g.rail, g.rule_start, g.rule.to_string());
+        assert_eq!(
+            s,
+            format!("{r} k   value\n{s0}{}\n{r} a       1", f.repeat(11))
+        );
     }
 }

@@ -6,6 +6,11 @@
 //! column splits the rows into series, drawn in the shell's palette and named in the
 //! legend. Rows with a NULL x or y are left out.
 //!
+//! Every coordinate must be finite: a value or a span of values too large to scale (data
+//! spanning +-1.7e308) is refused with an error, never drawn as NaN. The output is SVG only:
+//! `--out` must name a `.svg` file (rendering PNG would need a rasterizer in the build;
+//! convert the SVG instead).
+//!
 //! The look: a warm paper background, a white plot panel with a hairline frame, dashed
 //! grid lines at "nice" ticks (1, 2 or 5 times a power of ten), the title in the top left,
 //! a small line under it saying what was drawn, and the legend's swatches under that.
@@ -230,10 +235,12 @@ pub fn svg(fig: &Figure) -> Result<String, String> {
     let (mut ylo, mut yhi) = ys.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), y| {
         (a.min(y), b.max(y))
     });
+    raw_span(yname, ylo, yhi)?;
     if fig.kind == Kind::Bars {
         ylo = ylo.min(0.0);
         yhi = yhi.max(0.0);
     }
+    raw_span(yname, ylo, yhi)?;
     let (ylo, yhi) = if ylo >= 0.0 && yhi <= 1.0 && fig.kind == Kind::Steps {
         (0.0, 1.0)
     } else {
@@ -267,6 +274,9 @@ pub fn svg(fig: &Figure) -> Result<String, String> {
         .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
             (a.min(x), b.max(x))
         });
+    if !categorical {
+        raw_span(xname, xlo, xhi)?;
+    }
     // Numeric bars: width from the closest spacing of distinct x values.
     let mut bar_w = 1.0;
     if fig.kind == Kind::Bars && !categorical {
@@ -287,6 +297,10 @@ pub fn svg(fig: &Figure) -> Result<String, String> {
         xlo -= 0.5;
         xhi += 0.5;
     }
+    if !categorical {
+        span_ok(xname, xlo, xhi)?;
+    }
+    span_ok(yname, ylo, yhi)?;
     let px = |x: f64| left + (x - xlo) / (xhi - xlo) * (right - left);
     let py = |y: f64| bottom - (y - ylo) / (yhi - ylo) * (bottom - top);
 
@@ -512,7 +526,86 @@ pub fn svg(fig: &Figure) -> Result<String, String> {
         );
     }
     s.push_str("</svg>\n");
+    // The last guard: no coordinate may have come out as NaN or an infinity.
+    if !coordinates_finite(&s) {
+        return Err(format!(
+            "the values of {xname} and {yname} cannot be scaled to the plot (a coordinate \
+             overflows); narrow the query's range"
+        ));
+    }
     Ok(s)
+}
+
+/// Whether every attribute value of the SVG (the coordinates; user text is only ever
+/// element content) is free of NaN and infinities.
+fn coordinates_finite(svg: &str) -> bool {
+    let mut rest = svg;
+    while let Some(i) = rest.find("=\"") {
+        rest = &rest[i + 2..];
+        let end = rest.find('"').unwrap_or(rest.len());
+        let value = &rest[..end];
+        if value.contains("NaN") || value.contains("inf") {
+            return false;
+        }
+        rest = &rest[end..];
+    }
+    true
+}
+
+/// Refuses data whose own span overflows (values near +-1.7e308 at both ends).
+fn raw_span(name: &str, lo: f64, hi: f64) -> Result<(), String> {
+    if (hi - lo).is_finite() || lo > hi {
+        return Ok(());
+    }
+    Err(format!(
+        "{name} spans {} to {}: the span overflows a double, so it cannot be scaled to the \
+         plot; narrow or rescale the values in the query (for example divide them by 1e300)",
+        ogive::functions::render_value(&Value::Real(lo)),
+        ogive::functions::render_value(&Value::Real(hi))
+    ))
+}
+
+/// Refuses an axis whose span (or its widening to whole ticks) is not a finite, positive
+/// number: data spanning +-1.7e308 overflows, and so does a tiny span at a huge magnitude.
+fn span_ok(name: &str, lo: f64, hi: f64) -> Result<(), String> {
+    let span = hi - lo;
+    let (_, step, count) = ticks(lo, hi, 8);
+    if lo.is_finite()
+        && hi.is_finite()
+        && span.is_finite()
+        && span > 0.0
+        && step.is_finite()
+        && step > 0.0
+        && count < 1000
+        && lo + step > lo
+    {
+        return Ok(());
+    }
+    Err(format!(
+        "{name} spans {} to {}, which cannot be drawn: the span overflows or vanishes at that \
+         magnitude; narrow or rescale the values in the query (for example divide them by 1e300)",
+        ogive::functions::render_value(&Value::Real(lo)),
+        ogive::functions::render_value(&Value::Real(hi))
+    ))
+}
+
+/// Refuses an output file that is not `.svg` before anything runs.
+pub fn check_out(out: &Path) -> Result<(), Failure> {
+    let ext = out
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase());
+    match ext.as_deref() {
+        Some("svg") => Ok(()),
+        Some(other) => Err(Failure::usage(format!(
+            "ogive plot writes SVG only, not .{other}: give --out {} (a PNG can be made from \
+             it with an SVG converter, for example rsvg-convert)",
+            out.with_extension("svg").display()
+        ))),
+        None => Err(Failure::usage(format!(
+            "--out {} has no extension: ogive plot writes SVG, so name a .svg file",
+            out.display()
+        ))),
+    }
 }
 
 /// Runs a plot file and writes its figure; returns the number of rows drawn.
@@ -589,8 +682,9 @@ pub fn plot_file(
     params: &[String],
 ) -> Result<i32, Failure> {
     let mut params = Params::parse(params)?;
+    check_out(out)?;
     let src = Source::load(file)?;
-    let conn = db::open(db_path, false)?;
+    let conn = db::open(db_path, db::Access::Existing)?;
     let n = plot_source(&conn, &src, out, kind, title, &mut params)?;
     warn_unused(&params);
     eprintln!("ogive: drew {n} rows from {file} into {}", out.display());

@@ -10,10 +10,14 @@
 //! | `help` | this list |
 //! | `bye` | leaves (so does Ctrl-D) |
 //!
+//! A line that starts with `.` or `\\` (a habit from other SQL prompts) is not SQL here: it
+//! gets a one-line hint naming the shell's word for it, instead of starting a statement.
+//!
 //! On a terminal there is line editing and a history file (`$OGIVE_HISTORY`, else
 //! `~/.ogive_history`); Ctrl-C clears the line, or cancels the running statement and
-//! comes back to the prompt. From a pipe, lines are read without prompts, and Ctrl-C ends
-//! the run with status 130.
+//! comes back to the prompt; `tables` fits its table to the terminal's width. From a pipe,
+//! lines are read without prompts, the first failing statement or word ends the run with
+//! status 1, and Ctrl-C ends it with status 130.
 
 use std::io::{BufRead, IsTerminal, Write};
 use std::path::{Path, PathBuf};
@@ -25,8 +29,9 @@ use rustyline::error::ReadlineError;
 
 use crate::Failure;
 use crate::db::{self, Outcome, Params, StatementError};
+use crate::glyphs;
 use crate::interrupt;
-use crate::output::{Block, Format, Printer};
+use crate::output::{Block, CsvSink, Format, Printer, count_line};
 use crate::run::Source;
 use crate::script;
 
@@ -43,6 +48,8 @@ struct Session {
     conn: Connection,
     name: String,
     format: Format,
+    /// The terminal's width, for `tables` (None from a pipe).
+    width: Option<u16>,
 }
 
 enum Read {
@@ -75,6 +82,14 @@ impl Input {
         }
     }
 
+    /// The terminal's width in columns, when there is a terminal.
+    fn width(&mut self) -> Option<u16> {
+        match self {
+            Input::Editor(ed, _) => ed.dimensions().map(|(w, _)| w).filter(|w| *w >= 20),
+            Input::Plain(_) => None,
+        }
+    }
+
     fn remember(&mut self, entry: &str) {
         if let Input::Editor(ed, path) = self {
             let _ = ed.add_history_entry(entry.trim());
@@ -93,7 +108,7 @@ fn history_path() -> Option<PathBuf> {
 }
 
 fn open(path: Option<&Path>) -> Result<Session, Failure> {
-    let conn = db::open(path, true)?;
+    let conn = db::open(path, db::Access::Create)?;
     let name = path.map_or("memory".to_string(), |p| {
         p.file_name().map_or_else(
             || p.display().to_string(),
@@ -104,6 +119,7 @@ fn open(path: Option<&Path>) -> Result<Session, Failure> {
         conn,
         name,
         format: Format::Table,
+        width: None,
     })
 }
 
@@ -119,8 +135,9 @@ pub fn prompt(db_path: Option<&Path>, format: Format) -> Result<i32, Failure> {
         if let Some(p) = &path {
             let _ = ed.load_history(p);
         }
+        let dot = glyphs::get().dot;
         println!(
-            "ogive {} · {} · help lists the shell's words, bye leaves",
+            "ogive {} {dot} {} {dot} help lists the shell's words, bye leaves",
             env!("CARGO_PKG_VERSION"),
             if db_path.is_some() {
                 format!("database {}", session.name)
@@ -138,10 +155,11 @@ pub fn prompt(db_path: Option<&Path>, format: Format) -> Result<i32, Failure> {
             interrupt::clear();
         }
         let head = format!("ogive:{}", session.name);
+        let g = glyphs::get();
         let prompt = if pending.is_empty() {
-            format!("{head} ▸ ")
+            format!("{head} {} ", g.prompt)
         } else {
-            format!("{} ┆ ", " ".repeat(head.chars().count()))
+            format!("{} {} ", " ".repeat(head.chars().count()), g.more)
         };
         let line = match input.read(&prompt) {
             Read::Line(l) => l,
@@ -155,6 +173,12 @@ pub fn prompt(db_path: Option<&Path>, format: Format) -> Result<i32, Failure> {
             if line.trim().is_empty() {
                 continue;
             }
+            if let Some(hint) = habit(&line) {
+                input.remember(&line);
+                eprintln!("ogive: {hint}");
+                continue;
+            }
+            session.width = input.width();
             match command(&mut session, &line) {
                 Some(Ok(true)) => {
                     input.remember(&line);
@@ -166,8 +190,12 @@ pub fn prompt(db_path: Option<&Path>, format: Format) -> Result<i32, Failure> {
                 }
                 Some(Err(f)) => {
                     input.remember(&line);
-                    if f.code == 130 && !interactive {
-                        return Err(f);
+                    if !interactive {
+                        // From a pipe, a failed word ends the run as a failed statement does.
+                        return Err(Failure {
+                            code: if f.code == 130 { 130 } else { 1 },
+                            message: f.message,
+                        });
                     }
                     eprintln!("ogive: {}", f.message);
                     continue;
@@ -198,7 +226,7 @@ fn execute(session: &Session, text: String, interactive: bool) -> Result<(), Fai
     let src = Source::from_text("input", text);
     let mut params = Params::default();
     let stdout = std::io::stdout();
-    let mut printer = Printer::new(session.format, stdout.lock());
+    let mut printer = Printer::new(session.format, stdout.lock()).csv_sink(CsvSink::Many);
     for stmt in &src.statements {
         let start = Instant::now();
         let result = db::execute(&session.conn, &stmt.text, &mut params);
@@ -207,20 +235,14 @@ fn execute(session: &Session, text: String, interactive: bool) -> Result<(), Fai
             Ok(_) if interrupt::requested() && !interactive => return Err(Failure::interrupted()),
             Ok(Outcome::Rows(rows)) => {
                 let n = rows.rows.len();
-                printer
-                    .print(&Block::Rows {
-                        title: None,
-                        meta: serde_json::Map::new(),
-                        rows,
-                        count: false,
-                    })
-                    .map_err(Failure::output)?;
+                printer.print(&Block::Rows {
+                    title: None,
+                    meta: serde_json::Map::new(),
+                    rows,
+                    count: false,
+                })?;
                 if session.format == Format::Table {
-                    println!(
-                        "{n} row{}{}",
-                        if n == 1 { "" } else { "s" },
-                        took(interactive, elapsed)
-                    );
+                    println!("{}", count_line(n, &took(interactive, elapsed)));
                 }
             }
             Ok(Outcome::Changed(n)) => {
@@ -260,10 +282,44 @@ fn execute(session: &Session, text: String, interactive: bool) -> Result<(), Fai
 /// The time a statement took, shown at a terminal only (piped output stays reproducible).
 fn took(interactive: bool, seconds: f64) -> String {
     if interactive {
-        format!(" · {seconds:.3} s")
+        format!(" {} {seconds:.3} s", glyphs::get().dot)
     } else {
         String::new()
     }
+}
+
+/// The hint for a line in the manner of other SQL prompts (`.tables`, `\\dt`, `.quit`), or
+/// None for a line that does not start with `.` or `\\`.
+fn habit(line: &str) -> Option<String> {
+    let line = line.trim_start();
+    let rest = line.strip_prefix('.').or_else(|| line.strip_prefix('\\'))?;
+    let word: String = rest
+        .chars()
+        .take_while(|c| !c.is_whitespace())
+        .collect::<String>()
+        .to_ascii_lowercase();
+    let arg = rest[word.len()..].trim();
+    let ours = match word.as_str() {
+        "tables" | "table" | "schema" | "dt" | "d" | "d+" | "dt+" | "l" | "databases" => {
+            "tables".to_string()
+        }
+        "help" | "h" | "?" => "help".to_string(),
+        "quit" | "exit" | "q" | "bye" => "bye".to_string(),
+        "open" | "c" | "connect" => format!("open {}", if arg.is_empty() { "PATH" } else { arg }),
+        "mode" | "format" | "x" => "format table|csv|json|markdown".to_string(),
+        "functions" | "df" => "functions".to_string(),
+        _ => {
+            return Some(format!(
+                "a line starting with {} is not SQL or a word of ogive's; type help for the \
+                 shell's words",
+                &line[..1]
+            ));
+        }
+    };
+    Some(format!(
+        "{} is not a word of ogive's; type {ours}",
+        crate::shown(line.split_whitespace().next().unwrap_or(line))
+    ))
 }
 
 /// Handles a line that is one of the shell's words. Some(Ok(true)): handled, go on;
@@ -285,19 +341,26 @@ fn command(session: &mut Session, line: &str) -> Option<Result<bool, Failure>> {
         "tables" if rest.is_empty() => match db::tables(&session.conn) {
             Ok(rows) => {
                 let n = rows.rows.len();
-                let mut p = Printer::new(session.format, std::io::stdout().lock());
                 let title = format!(
                     "{n} table{} in {}",
                     if n == 1 { "" } else { "s" },
                     session.name
                 );
-                p.print(&Block::Rows {
-                    title: Some(title),
-                    meta: serde_json::Map::new(),
-                    rows,
-                    count: false,
-                })
-                .map_err(Failure::output)
+                if session.format == Format::Table {
+                    // Fitted to the terminal: long column lists wrap inside their cell.
+                    let g = glyphs::get();
+                    let table = crate::output::table_within(&rows, session.width);
+                    out(format!("{} {title}\n{table}\n", g.title))
+                } else {
+                    let mut p = Printer::new(session.format, std::io::stdout().lock())
+                        .csv_sink(CsvSink::Many);
+                    p.print(&Block::Rows {
+                        title: Some(title),
+                        meta: serde_json::Map::new(),
+                        rows,
+                        count: false,
+                    })
+                }
             }
             Err(e) => Err(Failure::failed(format!("cannot list the tables: {e}"))),
         },

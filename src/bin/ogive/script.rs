@@ -238,6 +238,48 @@ fn starts_trigger(words: &[String]) -> bool {
     )
 }
 
+/// Byte offsets of the calls `name(` in `src`, outside strings, quoted names and comments.
+pub fn calls(src: &str, name: &str) -> Vec<usize> {
+    let b = src.as_bytes();
+    let mut out = Vec::new();
+    let mut i = 0;
+    while i < b.len() {
+        match b[i] {
+            b'-' if b.get(i + 1) == Some(&b'-') => {
+                i = src[i..].find('\n').map_or(b.len(), |n| i + n);
+            }
+            b'/' if b.get(i + 1) == Some(&b'*') => {
+                i = src[i + 2..].find("*/").map_or(b.len(), |n| i + 2 + n + 2);
+            }
+            q @ (b'\'' | b'"' | b'`') => i = quoted(b, i, q),
+            b'[' => i = src[i..].find(']').map_or(b.len(), |n| i + n + 1),
+            c if is_word(c) => {
+                let start = i;
+                while i < b.len() && is_word(b[i]) {
+                    i += 1;
+                }
+                if src[start..i].eq_ignore_ascii_case(name)
+                    && src[i..].trim_start().starts_with('(')
+                {
+                    out.push(start);
+                }
+            }
+            _ => i += 1,
+        }
+    }
+    out
+}
+
+/// Where a statement's runtime error happened, when SQLite does not say: an error that
+/// starts with the name of one of ogive's functions (`quantile: p must be ...`) points at
+/// the first call of that function in the statement.
+pub fn failing_call(sql: &str, message: &str) -> Option<usize> {
+    let (name, _) = message.split_once(':')?;
+    let name = name.trim();
+    ogive::functions::find(name)?;
+    calls(sql, name).first().copied()
+}
+
 /// Whether `src` ends at a statement boundary: every statement in it is closed by its `;`
 /// (the interactive prompt keeps reading lines until this holds).
 pub fn is_complete(src: &str) -> bool {
@@ -322,5 +364,16 @@ mod tests {
             "CREATE TRIGGER t AFTER INSERT ON a BEGIN SELECT 1; END;"
         ));
         assert!(is_complete(""));
+    }
+
+    #[test]
+    fn calls_skip_strings_and_comments() {
+        let src = "SELECT 'quantile(' , -- quantile(\n \"quantile\"(x), Quantile (x, 2)";
+        assert_eq!(calls(src, "quantile"), vec![src.find("Quantile").unwrap()]);
+        assert_eq!(
+            failing_call(src, "quantile: p must be between 0 and 1, got 2"),
+            Some(src.find("Quantile").unwrap())
+        );
+        assert_eq!(failing_call(src, "no such table: t"), None);
     }
 }

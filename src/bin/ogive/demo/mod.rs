@@ -147,38 +147,40 @@ pub fn demo(out_dir: &Path, db_path: Option<&Path>, format: Format) -> Result<i3
             p.display()
         )));
     }
+    if format == Format::Csv {
+        return Err(Failure::usage(
+            "the demo prints many result sets and --format csv prints one: use --format table, \
+             json or markdown (or `ogive run --format csv --out-dir DIR` on the demo's files)",
+        ));
+    }
     let dir = sql_dir();
     let questions = Source::load_all(&sql_files(&dir.join("demo"))?)?;
     let checks = Source::load_all(&sql_files(&dir.join("checks"))?)?;
     let plots = Source::load_all(&sql_files(&dir.join("plots"))?)?;
 
-    let conn = db::open(db_path, true)?;
+    let conn = db::open(db_path, db::Access::Create)?;
     let n = build(&conn)?;
     let mut printer = Printer::new(format, std::io::stdout().lock());
     let mut meta = Map::new();
     meta.insert("readings".into(), json!(n));
     meta.insert("seed".into(), json!(generate::SEED));
-    printer
-        .print(&Block::Note {
-            text: format!(
-                "ogive demo: an invented fleet of 12 refrigerated trailers at 3 depots, {n} cargo \
+    printer.print(&Block::Note {
+        text: format!(
+            "ogive demo: an invented fleet of 12 refrigerated trailers at 3 depots, {n} cargo \
                  temperature readings (every 5 minutes for 6 weeks from {}), made by a seeded \
                  generator (seed {}); see demo-data/README.md",
-                date(0),
-                generate::SEED
-            ),
-            meta,
-        })
-        .map_err(Failure::output)?;
+            date(0),
+            generate::SEED
+        ),
+        meta,
+    })?;
     let tables = db::tables(&conn).map_err(|e| Failure::failed(e.to_string()))?;
-    printer
-        .print(&Block::Rows {
-            title: Some("demo tables".into()),
-            meta: Map::new(),
-            rows: tables,
-            count: false,
-        })
-        .map_err(Failure::output)?;
+    printer.print(&Block::Rows {
+        title: Some("demo tables".into()),
+        meta: Map::new(),
+        rows: tables,
+        count: false,
+    })?;
 
     // The questions.
     let mut params = Params::default();
@@ -186,9 +188,7 @@ pub fn demo(out_dir: &Path, db_path: Option<&Path>, format: Format) -> Result<i3
     for src in &questions {
         for stmt in &src.statements {
             match run::step(&conn, src, stmt, &mut params)? {
-                Step::Ran(out) => printer
-                    .print(&run::outcome_block(src, stmt, out))
-                    .map_err(Failure::output)?,
+                Step::Ran(out) => printer.print(&run::outcome_block(src, stmt, out))?,
                 Step::Failed(description) => {
                     eprintln!("ogive: {description}");
                     failed = true;
@@ -200,7 +200,7 @@ pub fn demo(out_dir: &Path, db_path: Option<&Path>, format: Format) -> Result<i3
     // The checks.
     if !checks.is_empty() {
         let results = check::run_checks(&conn, &checks, &mut params)?;
-        check::report(&results, &mut printer).map_err(Failure::output)?;
+        check::report(&results, &mut printer)?;
         failed |= results.iter().any(|r| r.status == Status::Error);
     }
 
@@ -230,21 +230,17 @@ pub fn demo(out_dir: &Path, db_path: Option<&Path>, format: Format) -> Result<i3
                 }
             }
         }
-        printer
-            .print(&Block::Rows {
-                title: Some(format!("plots written to {}", out_dir.display())),
-                meta: Map::new(),
-                rows: drawn,
-                count: false,
-            })
-            .map_err(Failure::output)?;
+        printer.print(&Block::Rows {
+            title: Some(format!("plots written to {}", out_dir.display())),
+            meta: Map::new(),
+            rows: drawn,
+            count: false,
+        })?;
     }
     let explore = match db_path {
         Some(p) => format!("the demo database is in {}: explore it with `ogive --db {}`", p.display(), p.display()),
         None => "keep the demo database with `ogive demo --db fleet.db`, then explore it with `ogive --db fleet.db`".into(),
     };
-    printer
-        .print(&Block::note(explore))
-        .map_err(Failure::output)?;
+    printer.print(&Block::note(explore))?;
     Ok(i32::from(failed))
 }
