@@ -21,9 +21,10 @@
 
 use std::time::Instant;
 
-use ogive::functions::args::{fail, number};
+use ogive::catalogue::args::{fail, number};
 use ogive::rusqlite::functions::{Aggregate, Context, FunctionFlags, WindowAggregate};
 use ogive::rusqlite::{Connection, params};
+use ogive::sqlite::{arg, to_sqlite};
 use ogive::stats::order::{OrderStatistics, splitmix64};
 use ogive::stats::quantile::{QuantileType, quantile_ranked, quantile_sorted};
 use ogive::stats::sketch::{DEFAULT_EPSILON, QuantileSketch, max_retained};
@@ -40,7 +41,9 @@ impl Aggregate<Vec<f64>, Option<f64>> for Resort {
         Ok(Vec::new())
     }
     fn step(&self, ctx: &mut Context<'_>, xs: &mut Vec<f64>) -> ogive::rusqlite::Result<()> {
-        if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail("resort", e))? {
+        if let Some(x) =
+            number(arg(ctx.get_raw(0)), "x").map_err(|e| to_sqlite(fail("resort", e)))?
+        {
             xs.push(x);
         }
         Ok(())
@@ -67,7 +70,8 @@ impl WindowAggregate<Vec<f64>, Option<f64>> for Resort {
         Ok(xs.and_then(|xs| resorted(xs)))
     }
     fn inverse(&self, ctx: &mut Context<'_>, xs: &mut Vec<f64>) -> ogive::rusqlite::Result<()> {
-        if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail("resort", e))?
+        if let Some(x) =
+            number(arg(ctx.get_raw(0)), "x").map_err(|e| to_sqlite(fail("resort", e)))?
             && let Some(i) = xs.iter().position(|&y| y == x)
         {
             xs.remove(i);

@@ -1,12 +1,15 @@
 //! ogive: empirical distributions, quantiles, tests and fits inside SQLite.
 //!
-//! The crate has four layers:
+//! The crate has four layers, each using only those before it:
 //!
-//! - [`stats`]: the mathematics, pure functions on slices with no SQLite in sight;
+//! - [`stats`]: the mathematics, pure functions on slices with no engine in sight;
 //! - [`value`]: the SQL values (the empirical-distribution BLOB, the model JSON and the
-//!   quantile-sketch BLOB), read and checked at the boundary;
-//! - [`functions`]: the SQL adapters and the registry of every SQL function;
-//! - [`register`]: installs the functions on a [`rusqlite::Connection`].
+//!   quantile-sketch BLOB), encoded and checked on plain bytes and text;
+//! - [`catalogue`]: every SQL function, engine-neutral: the registry rows, argument
+//!   checks on ogive's own value type, aggregate states that step, merge and finalize,
+//!   and every error text;
+//! - [`sqlite`]: the SQLite adapter; [`register`] installs the catalogue on a
+//!   [`rusqlite::Connection`].
 //!
 //! The loadable extension (`libogive.so`, built from `ext/`) and the `ogive` shell both
 //! call [`register`].
@@ -25,12 +28,13 @@
 //! # Ok::<(), rusqlite::Error>(())
 //! ```
 
-pub mod functions;
+pub mod catalogue;
+pub mod sqlite;
 pub mod stats;
 pub mod value;
 
 #[cfg(feature = "loadable")]
-pub mod extension;
+pub use sqlite::extension;
 
 pub use rusqlite;
 
@@ -52,8 +56,5 @@ pub use rusqlite;
 /// # Ok::<(), rusqlite::Error>(())
 /// ```
 pub fn register(conn: &rusqlite::Connection) -> rusqlite::Result<()> {
-    for def in functions::all() {
-        def.install(conn)?;
-    }
-    Ok(())
+    sqlite::register(conn)
 }

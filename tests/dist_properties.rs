@@ -16,7 +16,6 @@ use ogive::stats::sample::Sample;
 use ogive::value::{Dist, empirical};
 use proptest::prelude::*;
 use rusqlite::Connection;
-use rusqlite::types::ValueRef;
 
 /// A value: on a coarse grid (ties), a signed zero, or any finite double.
 fn value() -> impl Strategy<Value = f64> {
@@ -41,7 +40,7 @@ fn sample() -> impl Strategy<Value = Sample> {
 /// The sample after a trip through its BLOB, as the SQL functions see it.
 fn through_blob(s: &Sample) -> Sample {
     let blob = empirical::encode(s);
-    match Dist::from_sql(ValueRef::Blob(&blob), 1).unwrap().unwrap() {
+    match Dist::from_blob(&blob, 1).unwrap() {
         Dist::Empirical(s) => s,
         other => panic!("a BLOB decodes to an empirical distribution, got {other:?}"),
     }

@@ -3,7 +3,7 @@
 
 use std::collections::BTreeSet;
 
-use ogive::functions::{self, Kind, render_value};
+use ogive::catalogue::{self as functions, Kind};
 use rusqlite::Connection;
 use rusqlite::types::Value;
 
@@ -86,7 +86,12 @@ fn every_example_runs_and_gives_its_documented_result() {
         let v: Value = conn
             .query_row(d.example, [], |r| r.get(0))
             .unwrap_or_else(|e| panic!("example of {} failed: {e}", d.name));
-        assert_eq!(render_value(&v), d.example_result, "example of {}", d.name);
+        assert_eq!(
+            ogive::sqlite::render(&v),
+            d.example_result,
+            "example of {}",
+            d.name
+        );
         assert!(
             d.example.contains(d.name),
             "example of {} must use it",

@@ -402,7 +402,7 @@ fn functions_lists_every_registry_row() {
     assert!(out.status.success());
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let rows = v["rows"].as_array().unwrap();
-    let defs: Vec<_> = ogive::functions::all().collect();
+    let defs: Vec<_> = ogive::catalogue::all().collect();
     assert_eq!(rows.len(), defs.len());
     for (row, d) in rows.iter().zip(&defs) {
         assert_eq!(row[0], d.name);
@@ -427,7 +427,7 @@ fn functions_lists_every_registry_row() {
         );
     }
     let md = String::from_utf8(ogive(&["functions", "--format", "markdown"], None).stdout).unwrap();
-    assert_eq!(md, ogive::functions::markdown_table());
+    assert_eq!(md, ogive::catalogue::markdown_table());
 }
 
 #[test]

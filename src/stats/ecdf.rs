@@ -71,6 +71,37 @@ impl EcdfCounter {
     pub fn value(&self) -> Option<f64> {
         (self.total > 0).then(|| self.at_or_below as f64 / self.total as f64)
     }
+
+    /// The number of observations at or below `t`.
+    pub fn at_or_below(&self) -> u64 {
+        self.at_or_below
+    }
+
+    /// A counter with given counts; `None` when `at_or_below > total`.
+    pub fn from_counts(t: f64, at_or_below: u64, total: u64) -> Option<Self> {
+        (at_or_below <= total).then_some(EcdfCounter {
+            t,
+            at_or_below,
+            total,
+        })
+    }
+
+    /// Adds the counts of another counter (of another part of the same data, with the
+    /// same `t`): the result counts both parts, exactly.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::ecdf::EcdfCounter;
+    /// let (mut a, mut b) = (EcdfCounter::new(2.0), EcdfCounter::new(2.0));
+    /// a.add(1.0);
+    /// b.add(3.0);
+    /// a.absorb(&b);
+    /// assert_eq!(a.value(), Some(0.5));
+    /// ```
+    pub fn absorb(&mut self, other: &EcdfCounter) {
+        self.total += other.total;
+        self.at_or_below += other.at_or_below;
+    }
 }
 
 /// A one-pass evaluator of the weighted ECDF at a fixed threshold, with exact sums: the
@@ -146,6 +177,38 @@ impl WeightedEcdfCounter {
         if x <= self.t {
             self.at_or_below.remove(w)?;
         }
+        Ok(())
+    }
+
+    /// The exact sums: the weight at or below `t`, and the total weight.
+    pub fn sums(&self) -> (&ExactSum, &ExactSum) {
+        (&self.at_or_below, &self.total)
+    }
+
+    /// A counter with given exact sums (as [`WeightedEcdfCounter::sums`] gave them).
+    pub fn from_sums(t: f64, at_or_below: ExactSum, total: ExactSum) -> Self {
+        let rough = total.value();
+        WeightedEcdfCounter {
+            t,
+            at_or_below,
+            total,
+            rough,
+        }
+    }
+
+    /// Adds the sums of another counter of the same `t`, exactly.
+    ///
+    /// # Errors
+    /// [`StatsError::WeightOverflow`] when the total weight passes the largest double.
+    pub fn absorb(&mut self, other: &WeightedEcdfCounter) -> Result<(), StatsError> {
+        let mut total = self.total.clone();
+        total.absorb(&other.total);
+        if total.value().is_infinite() {
+            return Err(StatsError::WeightOverflow);
+        }
+        self.total = total;
+        self.at_or_below.absorb(&other.at_or_below);
+        self.rough += other.rough;
         Ok(())
     }
 

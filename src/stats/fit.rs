@@ -214,9 +214,14 @@ impl fmt::Display for FitError {
             }
             FitError::NonPositive { family, value } => write!(
                 f,
-                "{a} {family} fit needs values > 0, got {value}; filter such rows out or fit \
+                "{a} {family} fit needs values {bound}, got {value}; filter such rows out or fit \
                  normal or uniform",
-                a = article(*family)
+                a = article(*family),
+                bound = if *family == Family::Exponential {
+                    ">= 0"
+                } else {
+                    "> 0"
+                }
             ),
             FitError::AllEqual { family, value } => write!(
                 f,

@@ -291,6 +291,11 @@ pub struct SampleBuilder {
 }
 
 impl SampleBuilder {
+    /// Whether the result will be weighted.
+    pub fn is_weighted(&self) -> bool {
+        self.weights.is_some()
+    }
+
     /// An empty builder; `weighted` makes the result weighted even when every weight is 1.
     pub fn new(weighted: bool) -> SampleBuilder {
         SampleBuilder {

@@ -192,6 +192,51 @@ impl ExactSum {
         self.pending = 0;
     }
 
+    /// The sum's limbs (base 2^32 digits of the sum in units of 2^-1074, the last one
+    /// signed), normalised: the same sum always gives the same limbs.
+    pub fn limbs(&self) -> Vec<i64> {
+        let mut c = self.clone();
+        c.normalize();
+        c.limbs.to_vec()
+    }
+
+    /// A sum from the limbs [`ExactSum::limbs`] gave; `None` for a wrong count or a digit
+    /// out of range.
+    pub fn from_limbs(limbs: &[i64]) -> Option<ExactSum> {
+        let array: [i64; LIMBS] = limbs.try_into().ok()?;
+        let digits_ok = array[..LIMBS - 1]
+            .iter()
+            .all(|&l| (0..1i64 << DIGIT).contains(&l));
+        let top_ok = array[LIMBS - 1].unsigned_abs() < 1 << 40;
+        (digits_ok && top_ok).then_some(ExactSum {
+            limbs: array,
+            pending: 0,
+        })
+    }
+
+    /// Adds another exact sum, exactly.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::sum::ExactSum;
+    /// let (mut a, mut b) = (ExactSum::default(), ExactSum::default());
+    /// a.add(1e100).unwrap();
+    /// b.add(0.1).unwrap();
+    /// b.remove(1e100).unwrap();
+    /// a.absorb(&b);
+    /// assert_eq!(a.value(), 0.1);
+    /// ```
+    pub fn absorb(&mut self, other: &ExactSum) {
+        self.normalize();
+        let mut o = other.clone();
+        o.normalize();
+        for (mine, theirs) in self.limbs.iter_mut().zip(o.limbs) {
+            *mine += theirs;
+        }
+        self.pending = 1;
+        self.normalize();
+    }
+
     /// Whether the sum is exactly zero.
     pub fn is_zero(&self) -> bool {
         let mut c = self.clone();

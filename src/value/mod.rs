@@ -1,13 +1,14 @@
 //! The SQL values of ogive: distributions stored in tables and passed between functions.
 //!
-//! A distribution value is read from SQL once, at the boundary, by [`Dist::from_sql`],
+//! A distribution value is read from SQL once, at the boundary, by [`Dist::from_blob`] or
+//! [`Dist::from_text`] (through the catalogue's one reader, `crate::catalogue::reader`),
 //! which checks it completely; everything after works on the checked [`Dist`]. A
 //! distribution is either empirical, stored as a BLOB ([`empirical`], layout in
 //! docs/empirical-blob.md), or a model, stored as JSON text ([`model`]: a parametric
 //! family or a Gaussian mixture, as `dist_fit`, `dist_mixture` and `dist_model` write
 //! it). Each variant of [`Dist`] answers the same questions (cdf, quantile, density,
 //! summaries), so a function written against [`Dist`] works for every kind of
-//! distribution; adding a kind means adding a variant, an arm in [`Dist::from_sql`] and an
+//! distribution; adding a kind means adding a variant, an arm in the readers and an
 //! arm in each method here.
 //!
 //! # Infinities and NaN
@@ -25,8 +26,6 @@ pub mod sketch;
 
 use std::fmt;
 
-use rusqlite::types::ValueRef;
-
 use crate::stats::StatsError;
 use crate::stats::kde::{Bandwidth, Kde};
 use crate::stats::moments::{Moments, Profile};
@@ -41,9 +40,8 @@ use model::{Model, ModelError};
 /// ```
 /// use ogive::stats::sample::Sample;
 /// use ogive::value::{empirical, Dist};
-/// use rusqlite::types::ValueRef;
 /// let blob = empirical::encode(&Sample::from_values(vec![1.0, 2.0, 3.0, 4.0]).unwrap());
-/// let d = Dist::from_sql(ValueRef::Blob(&blob), 1).unwrap().unwrap();
+/// let d = Dist::from_blob(&blob, 1).unwrap();
 /// assert_eq!(d.cdf(2.5), Some(0.5));
 /// ```
 #[derive(Debug, Clone, PartialEq)]
@@ -59,14 +57,13 @@ pub enum Dist {
 /// # Example
 /// ```
 /// use ogive::value::Dist;
-/// use rusqlite::types::ValueRef;
-/// let e = Dist::from_sql(ValueRef::Blob(b"short"), 1).unwrap_err();
+/// let e = Dist::from_blob(b"short", 1).unwrap_err();
 /// assert!(e.to_string().starts_with("argument 1 is not an empirical distribution (bad header)"));
 /// ```
 #[derive(Debug, Clone, PartialEq)]
 pub enum ValueError {
     /// A BLOB that is not a valid empirical distribution.
-    NotEmpirical { arg: usize, problem: BlobError },
+    BadBlob { arg: usize, problem: BlobError },
     /// JSON text that is not a valid model (the problem names the field).
     NotAModel { arg: usize, problem: ModelError },
     /// A value of the wrong SQL type, or TEXT that is not JSON.
@@ -76,7 +73,7 @@ pub enum ValueError {
 impl fmt::Display for ValueError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
-            ValueError::NotEmpirical { arg, problem } => write!(
+            ValueError::BadBlob { arg, problem } => write!(
                 f,
                 "argument {arg} is not an empirical distribution ({problem}); build one with dist_empirical(x)"
             ),
@@ -92,78 +89,61 @@ impl fmt::Display for ValueError {
     }
 }
 
-impl std::error::Error for ValueError {}
-
-/// Shows a SQL value in an error message: its type and, shortened, its content.
-///
-/// # Example
-/// ```
-/// use rusqlite::types::ValueRef;
-/// assert_eq!(ogive::value::describe(ValueRef::Text(b"warm")), "TEXT 'warm'");
-/// assert_eq!(ogive::value::describe(ValueRef::Blob(&[0, 1])), "a BLOB of 2 bytes");
-/// ```
-pub fn describe(v: ValueRef<'_>) -> String {
-    match v {
-        ValueRef::Null => "NULL".to_string(),
-        ValueRef::Integer(i) => i.to_string(),
-        ValueRef::Real(r) => r.to_string(),
-        ValueRef::Text(t) => {
-            let s = String::from_utf8_lossy(t);
-            let short: String = s.chars().take(40).collect();
-            let ellipsis = if s.chars().count() > 40 { "..." } else { "" };
-            format!("TEXT '{short}{ellipsis}'")
+impl std::error::Error for ValueError {
+    fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
+        match self {
+            ValueError::BadBlob { problem, .. } => Some(problem),
+            ValueError::NotAModel { problem, .. } => Some(problem),
+            ValueError::NotADistribution { .. } => None,
         }
-        ValueRef::Blob(b) => format!("a BLOB of {} bytes", b.len()),
     }
 }
 
 impl Dist {
-    /// Reads argument number `arg` (1-based, for messages) of a SQL function as a
-    /// distribution. NULL gives `Ok(None)`.
+    /// Reads argument number `arg` (1-based, for messages) of a SQL function, given as a
+    /// BLOB, as an empirical distribution.
     ///
     /// # Errors
-    /// [`ValueError::NotEmpirical`] for a BLOB that fails [`empirical::decode`];
-    /// [`ValueError::NotAModel`] for JSON text that fails [`Model::parse`] (a missing,
-    /// unknown or invalid field, named); [`ValueError::NotADistribution`] for INTEGER,
-    /// REAL, and TEXT that is not JSON at all.
+    /// [`ValueError::BadBlob`] for a BLOB that fails [`empirical::decode`].
     ///
     /// # Example
     /// ```
     /// use ogive::value::Dist;
-    /// use rusqlite::types::ValueRef;
-    /// assert_eq!(Dist::from_sql(ValueRef::Null, 1), Ok(None));
-    /// assert!(Dist::from_sql(ValueRef::Integer(3), 1).is_err());
-    /// let m = r#"{"family": "exponential", "rate": 2}"#;
-    /// let d = Dist::from_sql(ValueRef::Text(m.as_bytes()), 1).unwrap().unwrap();
-    /// assert_eq!(d.mean(), Some(0.5));
-    /// let e = Dist::from_sql(ValueRef::Text(br#"{"family": "exponential"}"#), 2).unwrap_err();
+    /// let e = Dist::from_blob(b"short", 1).unwrap_err();
+    /// assert!(e.to_string().starts_with("argument 1 is not an empirical distribution (bad header)"));
+    /// ```
+    pub fn from_blob(b: &[u8], arg: usize) -> Result<Dist, ValueError> {
+        empirical::decode(b)
+            .map(Dist::Empirical)
+            .map_err(|problem| ValueError::BadBlob { arg, problem })
+    }
+
+    /// Reads argument number `arg` of a SQL function, given as TEXT, as a model.
+    ///
+    /// # Errors
+    /// [`ValueError::NotAModel`] for JSON text that fails [`Model::parse`] (a missing,
+    /// unknown or invalid field, named); [`ValueError::NotADistribution`] (with `got`
+    /// left for the caller to fill) for text that is not JSON at all.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::value::Dist;
+    /// let m = br#"{"family": "exponential", "rate": 2}"#;
+    /// assert_eq!(Dist::from_text(m, 1).unwrap().mean(), Some(0.5));
+    /// let e = Dist::from_text(br#"{"family": "exponential"}"#, 2).unwrap_err();
     /// assert!(e.to_string().starts_with(r#"argument 2 is not a valid model: model lacks the field "rate""#));
     /// ```
-    pub fn from_sql(v: ValueRef<'_>, arg: usize) -> Result<Option<Dist>, ValueError> {
-        match v {
-            ValueRef::Null => Ok(None),
-            ValueRef::Blob(b) => empirical::decode(b)
-                .map(|s| Some(Dist::Empirical(s)))
-                .map_err(|problem| ValueError::NotEmpirical { arg, problem }),
-            ValueRef::Text(t) => {
-                let text = std::str::from_utf8(t).map_err(|_| ValueError::NotADistribution {
-                    arg,
-                    got: describe(v),
-                })?;
-                match Model::parse(text) {
-                    Ok(m) => Ok(Some(Dist::Model(m))),
-                    // Not JSON at all: most likely not meant as a model.
-                    Err(ModelError::NotJson { .. }) => Err(ValueError::NotADistribution {
-                        arg,
-                        got: describe(v),
-                    }),
-                    Err(problem) => Err(ValueError::NotAModel { arg, problem }),
-                }
-            }
-            other => Err(ValueError::NotADistribution {
-                arg,
-                got: describe(other),
-            }),
+    pub fn from_text(t: &[u8], arg: usize) -> Result<Dist, ValueError> {
+        let not_json = || ValueError::NotADistribution {
+            arg,
+            got: String::from_utf8_lossy(t).into_owned(),
+        };
+        let text = std::str::from_utf8(t).map_err(|_| not_json())?;
+        match Model::parse(text) {
+            Ok(m) => Ok(Dist::Model(m)),
+            // Not JSON at all: most likely not meant as a model.
+            Err(ModelError::NotJson { .. }) => Err(not_json()),
+            Err(problem) => Err(ValueError::NotAModel { arg, problem }),
         }
     }
 
@@ -352,24 +332,20 @@ mod tests {
     use super::*;
 
     #[test]
-    fn sql_types_are_checked() {
-        assert_eq!(Dist::from_sql(ValueRef::Null, 1), Ok(None));
-        let e = Dist::from_sql(ValueRef::Text(b"{\"family\": \"normal\"}"), 1).unwrap_err();
+    fn values_are_checked() {
+        let e = Dist::from_text(b"{\"family\": \"normal\"}", 1).unwrap_err();
         assert_eq!(
             e.to_string(),
             "argument 1 is not a valid model: model lacks the field \"mean\" (required: mean, sd)"
         );
-        let e = Dist::from_sql(ValueRef::Text(b"warm"), 1).unwrap_err();
-        assert_eq!(
-            e.to_string(),
-            "argument 1 must be a distribution value (a BLOB from dist_empirical, or model JSON \
-             from dist_fit, dist_mixture or dist_model); got TEXT 'warm'"
-        );
-        let e = Dist::from_sql(ValueRef::Blob(b"\x00\xff"), 2).unwrap_err();
+        let e = Dist::from_blob(b"\x00\xff", 2).unwrap_err();
         assert_eq!(
             e.to_string(),
             "argument 2 is not an empirical distribution (bad header); build one with dist_empirical(x)"
         );
-        assert!(Dist::from_sql(ValueRef::Real(1.5), 1).is_err());
+        assert!(matches!(
+            Dist::from_text(b"warm", 1),
+            Err(ValueError::NotADistribution { arg: 1, .. })
+        ));
     }
 }

@@ -165,7 +165,7 @@ def test_nulls_and_empty_groups(conn):
         ("SELECT dist_fit(x - 2, 'gamma') FROM t",
          "dist_fit: a gamma fit needs values > 0, got -1"),
         ("SELECT dist_fit(x - 1, 'lognormal') FROM t", "dist_fit: a lognormal fit needs values > 0, got 0"),
-        ("SELECT dist_fit(x - 1, 'exponential') FROM t", "dist_fit: an exponential fit needs values > 0"),
+        ("SELECT dist_fit(x - 2, 'exponential') FROM t", "dist_fit: an exponential fit needs values >= 0, got -1"),
         ("SELECT dist_fit(x - 3, 'weibull') FROM t", "dist_fit: a weibull fit needs values > 0"),
         ("SELECT dist_fit(1.5, 'normal') FROM t",
          "dist_fit: all values equal 1.5, so a normal fit has no maximum likelihood"),

@@ -3,7 +3,7 @@
 
 use std::io::Write;
 
-use ogive::functions::{self, FunctionDef};
+use ogive::catalogue::{self as functions, FunctionDef};
 use rusqlite::types::Value;
 use serde_json::{Map, json};
 

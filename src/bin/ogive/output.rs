@@ -23,7 +23,7 @@ use std::path::{Path, PathBuf};
 use comfy_table::{
     CellAlignment, ContentArrangement, ContentLineStyle, LineStyle, Table, TableStyle,
 };
-use ogive::functions::render_value;
+use ogive::sqlite::render as render_value;
 use rusqlite::types::Value;
 use serde_json::{Map, Value as Json, json};
 

@@ -128,7 +128,7 @@ fn number(v: &Value) -> Option<f64> {
 fn label(v: &Value) -> String {
     match v {
         Value::Null => "NULL".into(),
-        other => ogive::functions::render_value(other),
+        other => ogive::sqlite::render(other),
     }
 }
 
@@ -560,8 +560,8 @@ fn raw_span(name: &str, lo: f64, hi: f64) -> Result<(), String> {
     Err(format!(
         "{name} spans {} to {}: the span overflows a double, so it cannot be scaled to the \
          plot; narrow or rescale the values in the query (for example divide them by 1e300)",
-        ogive::functions::render_value(&Value::Real(lo)),
-        ogive::functions::render_value(&Value::Real(hi))
+        ogive::sqlite::render(&Value::Real(lo)),
+        ogive::sqlite::render(&Value::Real(hi))
     ))
 }
 
@@ -584,8 +584,8 @@ fn span_ok(name: &str, lo: f64, hi: f64) -> Result<(), String> {
     Err(format!(
         "{name} spans {} to {}, which cannot be drawn: the span overflows or vanishes at that \
          magnitude; narrow or rescale the values in the query (for example divide them by 1e300)",
-        ogive::functions::render_value(&Value::Real(lo)),
-        ogive::functions::render_value(&Value::Real(hi))
+        ogive::sqlite::render(&Value::Real(lo)),
+        ogive::sqlite::render(&Value::Real(hi))
     ))
 }
 

@@ -276,7 +276,7 @@ pub fn calls(src: &str, name: &str) -> Vec<usize> {
 pub fn failing_call(sql: &str, message: &str) -> Option<usize> {
     let (name, _) = message.split_once(':')?;
     let name = name.trim();
-    ogive::functions::find(name)?;
+    ogive::catalogue::find(name)?;
     calls(sql, name).first().copied()
 }
 

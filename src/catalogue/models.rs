@@ -5,22 +5,16 @@
 //! [`crate::stats::fit`], [`crate::stats::mixture`] and [`crate::value::model`]. NULL x
 //! is skipped; a group with no non-NULL x gives NULL. Models travel as JSON text.
 
-use std::ffi::CStr;
-
-use rusqlite::functions::{Aggregate, Context};
-use rusqlite::types::{Value, ValueRef};
-use rusqlite::vtab::Module;
-
-use super::args::{ArgError, Constant, fail, number, text, whole};
-use super::dist::dist_arg;
-use super::table::{Table, TableFunction};
-use super::{FunctionDef, Kind, aggregate, flags};
+use super::args::{ArgError, Constant, FunctionError, TextConstant, fail, number, text, whole};
+use super::reader::{Call, model_of};
+use super::state::{AggregateImp, Args, Reader, State, Writer, try_extend, try_push};
+use super::value::Out;
+use super::{FunctionDef, Imp, Kind, TableImp};
 use crate::stats::fit::{Family, fit};
 use crate::stats::mixture::{MAX_COMPONENTS, MixtureError, fit_mixture};
-use crate::value::Dist;
 use crate::value::model::Model;
 
-type Result<T> = rusqlite::Result<T>;
+type Result<T> = std::result::Result<T, FunctionError>;
 
 /// The registry rows of this module.
 pub static FUNCTIONS: &[FunctionDef] = &[
@@ -42,7 +36,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                value; fewer values than parameters; all values equal (except for exponential).",
         example: "SELECT dist_fit(column1, 'exponential') ->> '$.rate' FROM (VALUES (1), (2), (3), (2))",
         example_result: "0.5",
-        register: |c, d| aggregate(c, d, || DistFit),
+        imp: Imp::Aggregate(AggregateImp::of::<DistFitState>()),
     },
     FunctionDef {
         name: "dist_mixture",
@@ -66,7 +60,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         example: "SELECT dist_mixture(column1) ->> '$.k' FROM (VALUES (1.0), (1.2), (0.8), (1.1), \
                   (0.9), (9.0), (9.2), (8.8), (9.1), (8.9))",
         example_result: "2",
-        register: |c, d| aggregate(c, d, || DistMixture),
+        imp: Imp::Aggregate(AggregateImp::of::<DistMixtureState>()),
     },
     FunctionDef {
         name: "dist_model",
@@ -83,7 +77,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                family lists the supported ones.",
         example: "SELECT dist_model('gamma', '{\"shape\": 2, \"scale\": 3}')",
         example_result: "{\"family\":\"gamma\",\"shape\":2.0,\"scale\":3.0}",
-        register: |c, d| c.create_scalar_function(d.name, 2, flags(), |ctx| dist_model(ctx)),
+        imp: Imp::Scalar(dist_model),
     },
     FunctionDef {
         name: "dist_component",
@@ -101,7 +95,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                   [{\"weight\": 0.5, \"mean\": 0, \"sd\": 1}, {\"weight\": 0.5, \"mean\": 10, \
                   \"sd\": 1}]}'), 8)",
         example_result: "2",
-        register: |c, d| c.create_scalar_function(d.name, 2, flags(), |ctx| dist_component(ctx)),
+        imp: Imp::Scalar(dist_component),
     },
     FunctionDef {
         name: "dist_components",
@@ -118,18 +112,25 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                   '{\"components\": [{\"weight\": 0.25, \"mean\": 0, \"sd\": 1}, {\"weight\": \
                   0.75, \"mean\": 5, \"sd\": 2}]}'))",
         example_result: "3.75",
-        register: |c, _| {
-            const M: Module<Table<Components>> = Module::eponymous_only_module();
-            c.create_module(Components::NAME, &M, None)
-        },
+        imp: Imp::Table(TableImp {
+            columns: &[
+                ("component", "INTEGER"),
+                ("weight", "REAL"),
+                ("mean", "REAL"),
+                ("sd", "REAL"),
+            ],
+            args: &["model"],
+            rows: components,
+        }),
     },
 ];
 
-/// Reads a model argument: NULL gives `None`; TEXT is parsed and validated.
-fn read_model(v: ValueRef<'_>) -> std::result::Result<Option<Model>, ArgError> {
-    match text(v, "model")? {
-        None => Ok(None),
-        Some(t) => Ok(Some(Model::parse(t)?)),
+/// Pushes a value of a fit's group.
+fn push(xs: &mut Vec<f64>, x: f64) -> std::result::Result<(), ArgError> {
+    if try_push(xs, x) {
+        Ok(())
+    } else {
+        Err(ArgError::OutOfMemory { held: xs.len() })
     }
 }
 
@@ -140,46 +141,60 @@ fn read_model(v: ValueRef<'_>) -> std::result::Result<Option<Model>, ArgError> {
 #[derive(Debug, Default)]
 pub struct DistFitState {
     xs: Vec<f64>,
-    family_text: Constant<String>,
-    family: Option<Family>,
+    family: TextConstant<Family>,
 }
 
-/// `dist_fit(x, family)`.
-pub struct DistFit;
+/// Parses a family name.
+fn parse_family(s: &str) -> std::result::Result<Family, ArgError> {
+    Ok(Family::from_name(s)?)
+}
 
-impl Aggregate<DistFitState, Value> for DistFit {
-    fn init(&self, _: &mut Context<'_>) -> Result<DistFitState> {
-        Ok(DistFitState::default())
-    }
+impl State for DistFitState {
+    const NAME: &'static str = "dist_fit";
 
-    fn step(&self, ctx: &mut Context<'_>, s: &mut DistFitState) -> Result<()> {
-        const NAME: &str = "dist_fit";
-        let family = text(ctx.get_raw(1), "family").map_err(|e| fail(NAME, e))?;
-        let same = matches!((s.family_text.get(), family), (Some(a), Some(b)) if a == b);
-        if !same
-            && s.family_text
-                .observe(family.map(str::to_owned), "family")
-                .map_err(|e| fail(NAME, e))?
-            && let Some(name) = family
-        {
-            s.family = Some(Family::from_name(name).map_err(|e| fail(NAME, e))?);
-        }
-        if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? {
-            s.xs.push(x);
-        }
-        Ok(())
-    }
-
-    fn finalize(&self, _: &mut Context<'_>, s: Option<DistFitState>) -> Result<Value> {
-        let Some(s) = s else { return Ok(Value::Null) };
-        let Some(family) = s.family else {
-            return Ok(Value::Null);
+    fn step(&mut self, args: &Args<'_>) -> Result<()> {
+        let mut go = || -> std::result::Result<(), ArgError> {
+            self.family.observe(args.get(1), "family", parse_family)?;
+            if let Some(x) = number(args.get(0), "x")? {
+                push(&mut self.xs, x)?;
+            }
+            Ok(())
         };
-        if s.xs.is_empty() {
-            return Ok(Value::Null);
+        go().map_err(|e| fail(Self::NAME, e))
+    }
+
+    fn merge(&mut self, other: Self) -> Result<()> {
+        let go = || -> std::result::Result<(), ArgError> {
+            self.family.merge(other.family, "family")?;
+            try_extend(&mut self.xs, &other.xs)
+        };
+        go().map_err(|e| fail(Self::NAME, e))
+    }
+
+    fn finalize(&mut self) -> Result<Out> {
+        let Some(&family) = self.family.get() else {
+            return Ok(Out::Null);
+        };
+        if self.xs.is_empty() {
+            return Ok(Out::Null);
         }
-        let f = fit(&s.xs, family).map_err(|e| fail("dist_fit", e))?;
-        Ok(Value::Text(Model::from(f).to_json()))
+        // In ascending order, so that the fit's sums do not depend on the order of rows
+        // (or of the parts a partitioned engine merged).
+        self.xs.sort_unstable_by(f64::total_cmp);
+        let f = fit(&self.xs, family).map_err(|e| fail(Self::NAME, e))?;
+        Ok(Out::Text(Model::from(f).to_json()))
+    }
+
+    fn save(&self, w: &mut Writer) {
+        w.constant(self.family.raw());
+        w.f64s(&self.xs);
+    }
+
+    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        Ok(DistFitState {
+            family: TextConstant::from_raw(r.constant()?, parse_family)?,
+            xs: r.f64s()?,
+        })
     }
 }
 
@@ -194,128 +209,131 @@ pub struct DistMixtureState {
     has_k: bool,
 }
 
-/// `dist_mixture(x [, k])`.
-pub struct DistMixture;
+impl State for DistMixtureState {
+    const NAME: &'static str = "dist_mixture";
 
-impl Aggregate<DistMixtureState, Value> for DistMixture {
-    fn init(&self, _: &mut Context<'_>) -> Result<DistMixtureState> {
-        Ok(DistMixtureState::default())
-    }
-
-    fn step(&self, ctx: &mut Context<'_>, s: &mut DistMixtureState) -> Result<()> {
-        const NAME: &str = "dist_mixture";
-        if ctx.len() > 1 {
-            s.has_k = true;
-            let k = whole(ctx.get_raw(1), "k").map_err(|e| fail(NAME, e))?;
-            if s.k.observe(k, "k").map_err(|e| fail(NAME, e))?
-                && let Some(k) = k
-                && !(1..=MAX_COMPONENTS as i64).contains(&k)
-            {
-                return Err(fail(NAME, MixtureError::BadK(k)));
+    fn step(&mut self, args: &Args<'_>) -> Result<()> {
+        let mut go = || -> std::result::Result<(), ArgError> {
+            if let Some(v) = args.optional(1) {
+                self.has_k = true;
+                let k = whole(v, "k")?;
+                if self.k.observe(k, "k")?
+                    && let Some(k) = k
+                    && !(1..=MAX_COMPONENTS as i64).contains(&k)
+                {
+                    return Err(MixtureError::BadK(k).into());
+                }
             }
-        }
-        if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? {
-            s.xs.push(x);
-        }
-        Ok(())
+            if let Some(x) = number(args.get(0), "x")? {
+                push(&mut self.xs, x)?;
+            }
+            Ok(())
+        };
+        go().map_err(|e| fail(Self::NAME, e))
     }
 
-    fn finalize(&self, _: &mut Context<'_>, s: Option<DistMixtureState>) -> Result<Value> {
-        let Some(s) = s else { return Ok(Value::Null) };
-        let k = match (s.has_k, s.k.get()) {
+    fn merge(&mut self, other: Self) -> Result<()> {
+        let go = || -> std::result::Result<(), ArgError> {
+            self.has_k |= other.has_k;
+            self.k.merge(other.k, "k")?;
+            try_extend(&mut self.xs, &other.xs)
+        };
+        go().map_err(|e| fail(Self::NAME, e))
+    }
+
+    fn finalize(&mut self) -> Result<Out> {
+        let k = match (self.has_k, self.k.get()) {
             (false, _) => None,
-            (true, None) => return Ok(Value::Null),
+            (true, None) => return Ok(Out::Null),
             // Checked in `step` to lie in 1..=MAX_COMPONENTS.
             (true, Some(&k)) => Some(k as usize),
         };
-        if s.xs.is_empty() {
-            return Ok(Value::Null);
+        if self.xs.is_empty() {
+            return Ok(Out::Null);
         }
-        let f = fit_mixture(&s.xs, k).map_err(|e| fail("dist_mixture", e))?;
-        Ok(Value::Text(Model::from(f).to_json()))
+        self.xs.sort_unstable_by(f64::total_cmp);
+        let f = fit_mixture(&self.xs, k).map_err(|e| fail(Self::NAME, e))?;
+        Ok(Out::Text(Model::from(f).to_json()))
+    }
+
+    fn save(&self, w: &mut Writer) {
+        w.bool(self.has_k);
+        w.constant(self.k.raw());
+        w.f64s(&self.xs);
+    }
+
+    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        let has_k = r.bool()?;
+        let k: Constant<i64> = r.constant_of()?;
+        if let Some(&k) = k.get()
+            && !(1..=MAX_COMPONENTS as i64).contains(&k)
+        {
+            return Err(MixtureError::BadK(k).into());
+        }
+        Ok(DistMixtureState {
+            has_k,
+            k,
+            xs: r.f64s()?,
+        })
     }
 }
 
 // ---------------------------------------------------------------------------------------
 // dist_model(family, params), dist_component(model, t)
 
-fn dist_model(ctx: &rusqlite::functions::Context<'_>) -> Result<Value> {
-    const NAME: &str = "dist_model";
-    let family = text(ctx.get_raw(0), "family").map_err(|e| fail(NAME, e))?;
-    let params = text(ctx.get_raw(1), "params").map_err(|e| fail(NAME, e))?;
+fn dist_model(call: &mut Call<'_>) -> Result<Out> {
+    let family = text(call.get(0), "family").map_err(|e| call.fail(e))?;
+    let params = text(call.get(1), "params").map_err(|e| call.fail(e))?;
     let (Some(family), Some(params)) = (family, params) else {
-        return Ok(Value::Null);
+        return Ok(Out::Null);
     };
-    let m = Model::from_parameters(family, params).map_err(|e| fail(NAME, e))?;
-    Ok(Value::Text(m.to_json()))
+    let m = Model::from_parameters(family, params).map_err(|e| call.fail(e))?;
+    Ok(Out::Text(m.to_json()))
 }
 
-fn dist_component(ctx: &rusqlite::functions::Context<'_>) -> Result<Value> {
-    const NAME: &str = "dist_component";
-    let Some(t) = number(ctx.get_raw(1), "t").map_err(|e| fail(NAME, e))? else {
-        return Ok(Value::Null);
+fn dist_component(call: &mut Call<'_>) -> Result<Out> {
+    let Some(t) = call.number(1, "t")? else {
+        return Ok(Out::Null);
     };
     // The parsed model is reused while the argument stays the same (a constant, or the
     // same fit joined to every row), so a join labels each row without re-parsing.
-    let Some(d) = dist_arg(ctx, 0, NAME)? else {
-        return Ok(Value::Null);
+    let Some(d) = call.model(0)? else {
+        return Ok(Out::Null);
     };
-    let Dist::Model(model) = &*d else {
-        return Err(fail(
-            NAME,
-            ArgError::BadJson {
-                what: "model",
-                detail: format!(
-                    "must be model JSON (from dist_mixture, dist_fit or dist_model), not {}",
-                    d.kind()
-                ),
-            },
-        ));
-    };
-    Ok(model
-        .component_index(t)
-        .map_or(Value::Null, |j| Value::Integer(j as i64 + 1)))
+    Ok(model_of(&d)
+        .and_then(|m| m.component_index(t))
+        .map_or(Out::Null, |j| Out::Integer(j as i64 + 1)))
 }
 
 // ---------------------------------------------------------------------------------------
-// dist_components(model): a table-valued function on the shared virtual-table layer
+// dist_components(model)
 
 /// `dist_components(model)`: one row per component (a parametric model is one component).
-pub(crate) struct Components;
-
-impl TableFunction for Components {
-    const NAME: &'static str = "dist_components";
-    const SCHEMA: &'static CStr =
-        c"CREATE TABLE x(component INTEGER, weight REAL, mean REAL, sd REAL, model HIDDEN)";
-    const COLUMNS: usize = 4;
-    const ARGS: &'static [&'static str] = &["model"];
-    const REQUIRED: usize = 1;
-    const SIGNATURE: &'static str = "dist_components(model)";
-
-    fn rows(args: &[Option<ValueRef<'_>>]) -> Result<Vec<Value>> {
-        let arg = args.first().copied().flatten().unwrap_or(ValueRef::Null);
-        let Some(model) = read_model(arg).map_err(|e| fail(Self::NAME, e))? else {
-            return Ok(Vec::new());
-        };
-        let finite = |v: f64| {
-            if v.is_finite() {
-                Value::Real(v)
-            } else {
-                Value::Null
-            }
-        };
-        Ok(model
-            .components()
-            .into_iter()
-            .enumerate()
-            .flat_map(|(i, c)| {
-                [
-                    Value::Integer(i as i64 + 1),
-                    Value::Real(c.weight),
-                    finite(c.mean),
-                    finite(c.sd),
-                ]
-            })
-            .collect())
-    }
+fn components(call: &mut Call<'_>) -> Result<Vec<Out>> {
+    let Some(d) = call.model(0)? else {
+        return Ok(Vec::new());
+    };
+    let Some(model) = model_of(&d) else {
+        return Ok(Vec::new());
+    };
+    let finite = |v: f64| {
+        if v.is_finite() {
+            Out::Real(v)
+        } else {
+            Out::Null
+        }
+    };
+    Ok(model
+        .components()
+        .into_iter()
+        .enumerate()
+        .flat_map(|(i, c)| {
+            [
+                Out::Integer(i as i64 + 1),
+                Out::Real(c.weight),
+                finite(c.mean),
+                finite(c.sd),
+            ]
+        })
+        .collect())
 }

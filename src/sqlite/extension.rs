@@ -117,7 +117,7 @@ unsafe fn report(pz_err_msg: *mut *mut c_char, p_api: *const sqlite3_api_routine
 }
 
 fn init_connection(conn: Connection) -> rusqlite::Result<bool> {
-    crate::register(&conn)?;
+    crate::sqlite::register(&conn)?;
     Ok(false)
 }
 

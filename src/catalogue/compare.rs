@@ -31,13 +31,13 @@
 
 use std::borrow::Cow;
 
-use rusqlite::functions::{Aggregate, Context};
-use rusqlite::types::Value;
 use serde_json::json;
 
-use super::args::{ArgError, Constant, fail, number, text};
-use super::dist::dist_arg;
-use super::{FunctionDef, Kind, aggregate, scalar};
+use super::args::{ArgError, FunctionError, TextConstant, fail, number, text};
+use super::reader::Call;
+use super::state::{AggregateImp, Args, Reader, State, Writer, try_extend, try_push};
+use super::value::Out;
+use super::{FunctionDef, Imp, Kind};
 use crate::stats::fit::Family;
 use crate::stats::gof::{anderson_darling_ksamp, cramer_von_mises_2samp, wasserstein_1};
 use crate::stats::ks::{
@@ -48,7 +48,7 @@ use crate::stats::sample::Sample;
 use crate::value::Dist;
 use crate::value::model::{Law, Model};
 
-type Result<T> = rusqlite::Result<T>;
+type Result<T> = std::result::Result<T, FunctionError>;
 
 /// The registry rows of this module.
 pub static FUNCTIONS: &[FunctionDef] = &[
@@ -75,7 +75,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         example: "SELECT round(ks_test(column1, column1 > 3) ->> '$.p', 4) \
               FROM (VALUES (1), (2), (3), (4), (5), (6))",
         example_result: "0.1",
-        register: |c, d| aggregate(c, d, || KsTest),
+        imp: Imp::Aggregate(AggregateImp::of::<KsTestState>()),
     },
     FunctionDef {
         name: "dist_ks",
@@ -114,7 +114,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                   FROM (SELECT dist_empirical(column1) AS d FROM (VALUES (1), (2), (3))) AS a, \
                   (SELECT dist_empirical(column1) AS d FROM (VALUES (4), (5), (6))) AS b",
         example_result: "0.1",
-        register: |c, d| scalar(c, d, dist_ks),
+        imp: Imp::Scalar(dist_ks),
     },
     FunctionDef {
         name: "dist_distance",
@@ -148,7 +148,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                   FROM (SELECT dist_empirical(column1) AS d FROM (VALUES (0), (1), (5))) AS a, \
                   (SELECT dist_empirical(column1) AS d FROM (VALUES (2), (3), (7))) AS b",
         example_result: "2.0",
-        register: |c, d| scalar(c, d, dist_distance),
+        imp: Imp::Scalar(dist_distance),
     },
 ];
 
@@ -165,100 +165,98 @@ pub fn ks_json(r: &KsResult) -> String {
     .to_string()
 }
 
-/// Reads an optional TEXT option at `idx` that must be the same on every row of a group,
-/// parsing it once (with `parse`) on the first row; a NULL option sets `null_option`.
-fn read_option(
-    ctx: &Context<'_>,
-    idx: usize,
-    what: &'static str,
-    seen: &mut Constant<String>,
-    null_option: &mut bool,
-    parse: impl FnOnce(&str) -> std::result::Result<(), TestError>,
-) -> Result<()> {
-    const NAME: &str = "ks_test";
-    if ctx.len() <= idx {
-        return Ok(());
-    }
-    let v = text(ctx.get_raw(idx), what).map_err(|e| fail(NAME, e))?;
-    if seen
-        .observe(v.map(str::to_owned), what)
-        .map_err(|e| fail(NAME, e))?
-    {
-        match v {
-            Some(v) => parse(v).map_err(|e| fail(NAME, e))?,
-            None => *null_option = true,
-        }
-    }
-    Ok(())
-}
-
 /// State of `ks_test`: the two samples and the per-group options.
 #[derive(Debug, Default)]
 pub struct KsTestState {
     first: Vec<f64>,
     second: Vec<f64>,
-    alternative: Constant<String>,
-    method: Constant<String>,
-    parsed_alternative: Option<Alternative>,
-    parsed_method: Option<PMethod>,
-    null_option: bool,
+    alternative: TextConstant<Alternative>,
+    method: TextConstant<PMethod>,
 }
 
-/// `ks_test(x, in_second [, alternative [, method]])`.
-pub struct KsTest;
+/// Parses an alternative.
+fn parse_alternative(s: &str) -> std::result::Result<Alternative, ArgError> {
+    Ok(Alternative::parse(s)?)
+}
 
-impl Aggregate<KsTestState, Value> for KsTest {
-    fn init(&self, _: &mut Context<'_>) -> Result<KsTestState> {
-        Ok(KsTestState::default())
-    }
+/// Parses a p-value method.
+fn parse_method(s: &str) -> std::result::Result<PMethod, ArgError> {
+    Ok(PMethod::parse(s)?)
+}
 
-    fn step(&self, ctx: &mut Context<'_>, s: &mut KsTestState) -> Result<()> {
-        const NAME: &str = "ks_test";
-        read_option(
-            ctx,
-            2,
-            "alternative",
-            &mut s.alternative,
-            &mut s.null_option,
-            |a| {
-                s.parsed_alternative = Some(Alternative::parse(a)?);
-                Ok(())
-            },
-        )?;
-        read_option(ctx, 3, "method", &mut s.method, &mut s.null_option, |m| {
-            s.parsed_method = Some(PMethod::parse(m)?);
-            Ok(())
-        })?;
-        let x = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))?;
-        let second = number(ctx.get_raw(1), "in_second").map_err(|e| fail(NAME, e))?;
-        if let (Some(x), Some(second)) = (x, second) {
-            if second != 0.0 {
-                s.second.push(x);
-            } else {
-                s.first.push(x);
+impl State for KsTestState {
+    const NAME: &'static str = "ks_test";
+
+    fn step(&mut self, args: &Args<'_>) -> Result<()> {
+        let mut go = || -> std::result::Result<(), ArgError> {
+            if let Some(v) = args.optional(2) {
+                self.alternative
+                    .observe(v, "alternative", parse_alternative)?;
             }
-        }
-        Ok(())
+            if let Some(v) = args.optional(3) {
+                self.method.observe(v, "method", parse_method)?;
+            }
+            let x = number(args.get(0), "x")?;
+            let second = number(args.get(1), "in_second")?;
+            if let (Some(x), Some(second)) = (x, second) {
+                let side = if second != 0.0 {
+                    &mut self.second
+                } else {
+                    &mut self.first
+                };
+                if !try_push(side, x) {
+                    return Err(ArgError::OutOfMemory { held: side.len() });
+                }
+            }
+            Ok(())
+        };
+        go().map_err(|e| fail(Self::NAME, e))
     }
 
-    fn finalize(&self, _: &mut Context<'_>, s: Option<KsTestState>) -> Result<Value> {
-        const NAME: &str = "ks_test";
-        let Some(mut s) = s else {
-            return Ok(Value::Null);
+    fn merge(&mut self, other: Self) -> Result<()> {
+        let go = || -> std::result::Result<(), ArgError> {
+            self.alternative.merge(other.alternative, "alternative")?;
+            self.method.merge(other.method, "method")?;
+            try_extend(&mut self.first, &other.first)?;
+            try_extend(&mut self.second, &other.second)
         };
-        if s.null_option || s.first.is_empty() || s.second.is_empty() {
-            return Ok(Value::Null);
+        go().map_err(|e| fail(Self::NAME, e))
+    }
+
+    fn finalize(&mut self) -> Result<Out> {
+        if self.alternative.is_null()
+            || self.method.is_null()
+            || self.first.is_empty()
+            || self.second.is_empty()
+        {
+            return Ok(Out::Null);
         }
-        s.first.sort_unstable_by(f64::total_cmp);
-        s.second.sort_unstable_by(f64::total_cmp);
+        self.first.sort_unstable_by(f64::total_cmp);
+        self.second.sort_unstable_by(f64::total_cmp);
         let r = ks_2samp(
-            &s.first,
-            &s.second,
-            s.parsed_alternative.unwrap_or_default(),
-            s.parsed_method.unwrap_or_default(),
+            &self.first,
+            &self.second,
+            self.alternative.get().copied().unwrap_or_default(),
+            self.method.get().copied().unwrap_or_default(),
         )
-        .map_err(|e| fail(NAME, e))?;
-        Ok(Value::Text(ks_json(&r)))
+        .map_err(|e| fail(Self::NAME, e))?;
+        Ok(Out::Text(ks_json(&r)))
+    }
+
+    fn save(&self, w: &mut Writer) {
+        w.constant(self.alternative.raw());
+        w.constant(self.method.raw());
+        w.f64s(&self.first);
+        w.f64s(&self.second);
+    }
+
+    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        Ok(KsTestState {
+            alternative: TextConstant::from_raw(r.constant()?, parse_alternative)?,
+            method: TextConstant::from_raw(r.constant()?, parse_method)?,
+            first: r.f64s()?,
+            second: r.f64s()?,
+        })
     }
 }
 
@@ -304,18 +302,17 @@ fn rows_of(s: &Sample, arg: usize) -> std::result::Result<Rows<'_>, ArgError> {
 /// Reads an optional TEXT option of a scalar at `idx`: absent gives the default, NULL gives
 /// `None`.
 fn scalar_option<T: Default, E: Into<ArgError>>(
-    ctx: &Context<'_>,
+    call: &Call<'_>,
     idx: usize,
     what: &'static str,
-    name: &'static str,
     parse: impl FnOnce(&str) -> std::result::Result<T, E>,
 ) -> Result<Option<T>> {
-    if ctx.len() <= idx {
+    let Some(v) = call.optional(idx) else {
         return Ok(Some(T::default()));
-    }
-    match text(ctx.get_raw(idx), what).map_err(|e| fail(name, e))? {
+    };
+    match text(v, what).map_err(|e| call.fail(e))? {
         None => Ok(None),
-        Some(v) => parse(v).map(Some).map_err(|e| fail(name, e)),
+        Some(v) => parse(v).map(Some).map_err(|e| call.fail(e)),
     }
 }
 
@@ -340,7 +337,7 @@ impl KsMethod {
         }
         PMethod::parse(s)
             .map(KsMethod::Ks)
-            .map_err(|_| ArgError::BadJson {
+            .map_err(|_| ArgError::BadOption {
                 what: "method",
                 detail: format!("must be 'auto', 'exact', 'asymp' or 'lilliefors', got '{s}'"),
             })
@@ -381,7 +378,7 @@ impl<'a> Pair<'a> {
                 arg: 2,
                 model,
             })),
-            (Dist::Model(_), Dist::Model(_)) => Err(ArgError::NotEmpirical {
+            (Dist::Model(_), Dist::Model(_)) => Err(ArgError::NeedsEmpirical {
                 arg: 1,
                 got: d1.kind(),
                 instead: why,
@@ -446,7 +443,7 @@ impl<'a> OneSample<'a> {
         &self,
         alternative: Alternative,
     ) -> std::result::Result<serde_json::Value, ArgError> {
-        let wrong = |detail: String| ArgError::BadJson {
+        let wrong = |detail: String| ArgError::BadOption {
             what: "method",
             detail,
         };
@@ -488,15 +485,15 @@ impl<'a> OneSample<'a> {
 
 /// `dist_ks(d1, d2 [, alternative [, method]])`: two-sample on two empirical values,
 /// one-sample when one of them is a model.
-fn dist_ks(ctx: &Context<'_>) -> Result<Value> {
+fn dist_ks(call: &mut Call<'_>) -> Result<Out> {
     const NAME: &str = "dist_ks";
-    let d1 = dist_arg(ctx, 0, NAME)?;
-    let d2 = dist_arg(ctx, 1, NAME)?;
-    let alternative = scalar_option(ctx, 2, "alternative", NAME, Alternative::parse)?;
-    let method = scalar_option(ctx, 3, "method", NAME, KsMethod::parse)?;
+    let d1 = call.dist(0)?;
+    let d2 = call.dist(1)?;
+    let alternative = scalar_option(call, 2, "alternative", Alternative::parse)?;
+    let method = scalar_option(call, 3, "method", KsMethod::parse)?;
     let (Some(d1), Some(d2), Some(alternative), Some(method)) = (d1, d2, alternative, method)
     else {
-        return Ok(Value::Null);
+        return Ok(Out::Null);
     };
     let pair = Pair::of(
         &d1,
@@ -509,12 +506,12 @@ fn dist_ks(ctx: &Context<'_>) -> Result<Value> {
             let x = rows_of(x, 1).map_err(|e| fail(NAME, e))?;
             let y = rows_of(y, 2).map_err(|e| fail(NAME, e))?;
             let r = ks_2samp(&x, &y, alternative, method).map_err(|e| fail(NAME, e))?;
-            return Ok(Value::Text(ks_json(&r)));
+            return Ok(Out::Text(ks_json(&r)));
         }
         (Pair::Two(..), KsMethod::Lilliefors) => {
             return Err(fail(
                 NAME,
-                ArgError::BadJson {
+                ArgError::BadOption {
                     what: "method",
                     detail: "'lilliefors' tests one empirical distribution against the normal \
                              or exponential model dist_fit fitted to it; one argument must be \
@@ -534,7 +531,7 @@ fn dist_ks(ctx: &Context<'_>) -> Result<Value> {
             one.lilliefors(alternative).map_err(|e| fail(NAME, e))?
         }
     };
-    Ok(Value::Text(out.to_string()))
+    Ok(Out::Text(out.to_string()))
 }
 
 /// The metrics of `dist_distance`.
@@ -553,7 +550,7 @@ impl Metric {
             "wasserstein" => Ok(Metric::Wasserstein),
             "cvm" => Ok(Metric::Cvm),
             "ad" => Ok(Metric::Ad),
-            _ => Err(ArgError::BadJson {
+            _ => Err(ArgError::BadOption {
                 what: "metric",
                 detail: format!("must be 'ks', 'wasserstein', 'cvm' or 'ad', got '{s}'"),
             }),
@@ -581,15 +578,15 @@ fn size_json(s: &Sample) -> serde_json::Value {
 }
 
 /// `dist_distance(d1, d2, metric)`.
-fn dist_distance(ctx: &Context<'_>) -> Result<Value> {
+fn dist_distance(call: &mut Call<'_>) -> Result<Out> {
     const NAME: &str = "dist_distance";
-    let d1 = dist_arg(ctx, 0, NAME)?;
-    let d2 = dist_arg(ctx, 1, NAME)?;
-    let metric = text(ctx.get_raw(2), "metric")
+    let d1 = call.dist(0)?;
+    let d2 = call.dist(1)?;
+    let metric = text(call.get(2), "metric")
         .and_then(|m| m.map(Metric::parse).transpose())
         .map_err(|e| fail(NAME, e))?;
     let (Some(d1), Some(d2), Some(metric)) = (d1, d2, metric) else {
-        return Ok(Value::Null);
+        return Ok(Out::Null);
     };
     let pair = Pair::of(
         &d1,
@@ -662,21 +659,18 @@ fn dist_distance(ctx: &Context<'_>) -> Result<Value> {
         }
     };
     match out {
-        Ok(v) => Ok(Value::Text(v.to_string())),
+        Ok(v) => Ok(Out::Text(v.to_string())),
         // Too small for the metric: no statistic to report (documented).
-        Err(TestError::TooFewValues { .. }) => Ok(Value::Null),
+        Err(TestError::TooFewValues { .. }) => Ok(Out::Null),
         Err(e) => Err(fail(NAME, e)),
     }
 }
 
 /// `dist_distance` between an empirical distribution and a model: the one-sample
 /// Kolmogorov-Smirnov test for 'ks'; the other metrics compare two samples.
-fn one_sample_distance(
-    one: &OneSample<'_>,
-    metric: Metric,
-) -> std::result::Result<Value, ArgError> {
+fn one_sample_distance(one: &OneSample<'_>, metric: Metric) -> std::result::Result<Out, ArgError> {
     if metric != Metric::Ks {
-        return Err(ArgError::NotEmpirical {
+        return Err(ArgError::NeedsEmpirical {
             arg: 3 - one.arg,
             got: one.model.kind(),
             instead: match metric {
@@ -694,7 +688,7 @@ fn one_sample_distance(
     let rows = one.rows()?;
     let r = one.ks(&rows, Alternative::TwoSided, PMethod::Auto)?;
     let (n1, n2) = one.sizes(r.n);
-    Ok(Value::Text(
+    Ok(Out::Text(
         json!({
             "metric": metric.name(),
             "statistic": r.d,

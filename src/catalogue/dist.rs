@@ -22,19 +22,15 @@
 //! `-Inf` or `Inf`, as the quantiles of an empirical value holding an infinite reading do;
 //! NaN never does.
 
-use std::cell::RefCell;
-use std::ffi::{CStr, c_int};
-use std::sync::Arc;
-
-use rusqlite::functions::{Aggregate, Context};
-use rusqlite::types::{Value, ValueRef};
-use rusqlite::vtab::Module;
 use serde_json::json;
 
-use super::args::{ArgError, fail, number, whole};
+use super::args::{ArgError, FunctionError, fail, number, whole};
 use super::column::profile_json;
-use super::table::{Table, TableFunction};
-use super::{FunctionDef, Kind, aggregate, scalar};
+use super::reader::{Call, NoMemo};
+use super::state::{AggregateImp, Args, Reader, State, Writer};
+use super::value::{Arg, Out, describe};
+
+use super::{FunctionDef, Imp, Kind, TableImp};
 use crate::stats::band::dkw_band;
 use crate::stats::check_probability;
 use crate::stats::grid::{check_grid, linspace};
@@ -42,9 +38,9 @@ use crate::stats::histogram::{BinRule, histogram};
 use crate::stats::kde::Bandwidth;
 use crate::stats::quantile::QuantileType;
 use crate::stats::sample::{Sample, SampleBuilder};
-use crate::value::{Dist, Size, describe, empirical};
+use crate::value::{Dist, Size, empirical};
 
-type Result<T> = rusqlite::Result<T>;
+type Result<T> = std::result::Result<T, FunctionError>;
 
 /// The registry rows of this module.
 pub static FUNCTIONS: &[FunctionDef] = &[
@@ -62,7 +58,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                NULL. Errors: non-numeric x or w, a negative or infinite weight.",
         example: "SELECT dist_n(dist_empirical(column1)) FROM (VALUES (1), (2), (NULL), (4))",
         example_result: "3",
-        register: |c, d| aggregate(c, d, || DistEmpirical),
+        imp: Imp::Aggregate(AggregateImp::of::<DistEmpiricalState>()),
     },
     FunctionDef {
         name: "dist_merge",
@@ -80,7 +76,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                   UNION ALL SELECT dist_empirical(column1) FROM (VALUES (3))) \
                   SELECT dist_quantile(dist_merge(d), 0.5) FROM days",
         example_result: "2.0",
-        register: |c, d| aggregate(c, d, || DistMerge),
+        imp: Imp::Aggregate(AggregateImp::of::<DistMergeState>()),
     },
     FunctionDef {
         name: "dist_cdf",
@@ -96,7 +92,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                invalid model names the field), non-numeric t.",
         example: "SELECT dist_cdf(dist_empirical(column1), 2.5) FROM (VALUES (1), (2), (3), (4))",
         example_result: "0.5",
-        register: |c, d| scalar(c, d, cdf),
+        imp: Imp::Scalar(cdf),
     },
     FunctionDef {
         name: "dist_quantile",
@@ -115,7 +111,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         example: "SELECT dist_quantile(dist_empirical(column1), 0.9) \
                   FROM (VALUES (1), (2), (3), (4), (5))",
         example_result: "4.6",
-        register: |c, d| scalar(c, d, quantile),
+        imp: Imp::Scalar(quantile),
     },
     FunctionDef {
         name: "dist_pdf",
@@ -133,7 +129,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                with shape below 1. Errors: an unknown bandwidth, d not a distribution.",
         example: "SELECT round(dist_pdf(dist_empirical(column1), 0, 1.0), 6) FROM (VALUES (0))",
         example_result: "0.398942",
-        register: |c, d| scalar(c, d, pdf),
+        imp: Imp::Scalar(pdf),
     },
     FunctionDef {
         name: "dist_n",
@@ -147,7 +143,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                known parameters. NULL d gives NULL.",
         example: "SELECT dist_n(dist_empirical(column1, column2)) FROM (VALUES (1, 2.5), (3, 0.5))",
         example_result: "3.0",
-        register: |c, d| scalar(c, d, size),
+        imp: Imp::Scalar(size),
     },
     FunctionDef {
         name: "dist_mean",
@@ -160,7 +156,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                overflows (a lognormal with a huge sigma), and for NULL d.",
         example: "SELECT dist_mean(dist_empirical(column1)) FROM (VALUES (1), (2), (6))",
         example_result: "3.0",
-        register: |c, d| scalar(c, d, mean),
+        imp: Imp::Scalar(mean),
     },
     FunctionDef {
         name: "dist_sd",
@@ -176,7 +172,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         example: "SELECT round(dist_sd(dist_empirical(column1)), 4) \
                   FROM (VALUES (2), (4), (4), (4), (5), (5), (7), (9))",
         example_result: "2.1381",
-        register: |c, d| scalar(c, d, sd),
+        imp: Imp::Scalar(sd),
     },
     FunctionDef {
         name: "dist_profile",
@@ -192,7 +188,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         example: "SELECT dist_profile(dist_empirical(column1)) ->> '$.median' \
                   FROM (VALUES (1), (2), (9))",
         example_result: "2.0",
-        register: |c, d| scalar(c, d, profile),
+        imp: Imp::Scalar(profile),
     },
     FunctionDef {
         name: "dist_band",
@@ -209,7 +205,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         example: "SELECT round(dist_band(dist_empirical(column1), 2, 0.5) ->> '$.lower', 4) \
                   FROM (VALUES (1), (2), (3), (4))",
         example_result: "0.0837",
-        register: |c, d| scalar(c, d, band),
+        imp: Imp::Scalar(band),
     },
     FunctionDef {
         name: "dist_steps",
@@ -224,10 +220,11 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         example: "SELECT group_concat(x || ':' || cdf, ' ') FROM dist_steps(\
                   (SELECT dist_empirical(column1) FROM (VALUES (1), (2), (2), (3))))",
         example_result: "1.0:0.25 2.0:0.75 3.0:1.0",
-        register: |c, _| {
-            const M: Module<Table<Steps>> = Module::eponymous_only_module();
-            c.create_module(Steps::NAME, &M, None)
-        },
+        imp: Imp::Table(TableImp {
+            columns: &[("x", "REAL"), ("cdf", "REAL")],
+            args: &["d"],
+            rows: steps,
+        }),
     },
     FunctionDef {
         name: "dist_curve",
@@ -246,10 +243,11 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         example: "SELECT group_concat(cdf, ' ') FROM dist_curve(\
                   (SELECT dist_empirical(column1) FROM (VALUES (0), (1))), 0, 1, 3)",
         example_result: "0.5 0.5 1.0",
-        register: |c, _| {
-            const M: Module<Table<Curve>> = Module::eponymous_only_module();
-            c.create_module(Curve::NAME, &M, None)
-        },
+        imp: Imp::Table(TableImp {
+            columns: &[("x", "REAL"), ("cdf", "REAL"), ("pdf", "REAL")],
+            args: &["d", "lo", "hi", "n", "bandwidth"],
+            rows: curve,
+        }),
     },
     FunctionDef {
         name: "dist_histogram",
@@ -268,16 +266,18 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         example: "SELECT group_concat(count, ' ') FROM dist_histogram(\
                   (SELECT dist_empirical(column1) FROM (VALUES (0), (1), (2), (4))), 2)",
         example_result: "2 2",
-        register: |c, _| {
-            const M: Module<Table<Histogram>> = Module::eponymous_only_module();
-            c.create_module(Histogram::NAME, &M, None)
-        },
+        imp: Imp::Table(TableImp {
+            columns: &[
+                ("lo", "REAL"),
+                ("hi", "REAL"),
+                ("count", ""),
+                ("density", "REAL"),
+            ],
+            args: &["d", "rule"],
+            rows: histogram_rows,
+        }),
     },
 ];
-
-fn real(x: Option<f64>) -> Value {
-    x.map_or(Value::Null, Value::Real)
-}
 
 /// The sample of an empirical distribution argument (number `arg`, from 1); a model is an
 /// error saying what to do `instead`.
@@ -288,7 +288,7 @@ pub(crate) fn empirical<'a>(
 ) -> std::result::Result<&'a Sample, ArgError> {
     match d {
         Dist::Empirical(s) => Ok(s),
-        Dist::Model(_) => Err(ArgError::NotEmpirical {
+        Dist::Model(_) => Err(ArgError::NeedsEmpirical {
             arg,
             got: d.kind(),
             instead,
@@ -296,71 +296,12 @@ pub(crate) fn empirical<'a>(
     }
 }
 
-/// A model's text and the distribution read from it.
-type ParsedModel = (Box<[u8]>, Arc<Dist>);
-
-thread_local! {
-    /// The last model read from TEXT on this thread, with its text. SQLite keeps auxiliary
-    /// data only for constant arguments, but a model usually comes from a joined row (a
-    /// fit in a CTE or a table) and repeats, unchanged, on every row of a scan; comparing
-    /// the bytes is far cheaper than parsing and checking the JSON again.
-    static LAST_MODEL: RefCell<Option<ParsedModel>> = const { RefCell::new(None) };
-}
-
-/// Reads argument `idx` as a distribution. When SQLite keeps auxiliary data for the
-/// argument (a constant), the decoded value is reused on later rows; a model equal, byte
-/// for byte, to the last one read on this thread is reused too.
-pub(crate) fn dist_arg(
-    ctx: &Context<'_>,
-    idx: usize,
-    name: &'static str,
-) -> Result<Option<Arc<Dist>>> {
-    let arg = idx as c_int;
-    if let Ok(Some(d)) = ctx.get_aux::<Dist>(arg) {
-        return Ok(Some(d));
-    }
-    let raw = ctx.get_raw(idx);
-    let text = match raw {
-        ValueRef::Text(t) => Some(t),
-        _ => None,
-    };
-    if let Some(t) = text {
-        let hit = LAST_MODEL.with_borrow(|last| match last {
-            Some((bytes, d)) if **bytes == *t => Some(Arc::clone(d)),
-            _ => None,
-        });
-        if hit.is_some() {
-            return Ok(hit);
-        }
-    }
-    match Dist::from_sql(raw, idx + 1).map_err(|e| fail(name, e))? {
-        None => Ok(None),
-        Some(d) => {
-            let d = ctx.set_aux(arg, d)?;
-            if let Some(t) = text {
-                LAST_MODEL.set(Some((t.into(), Arc::clone(&d))));
-            }
-            Ok(Some(d))
-        }
-    }
-}
-
-/// Reads numeric argument `idx`.
-fn num(
-    ctx: &Context<'_>,
-    idx: usize,
-    what: &'static str,
-    name: &'static str,
-) -> Result<Option<f64>> {
-    number(ctx.get_raw(idx), what).map_err(|e| fail(name, e))
-}
-
 /// Reads a bandwidth: 'scott', 'silverman' or a positive number (also as numeric TEXT).
 /// NULL gives `None`.
-fn bandwidth(v: ValueRef<'_>) -> std::result::Result<Option<Bandwidth>, ArgError> {
+fn bandwidth(v: Arg<'_>) -> std::result::Result<Option<Bandwidth>, ArgError> {
     match v {
-        ValueRef::Null => Ok(None),
-        ValueRef::Text(t) => {
+        Arg::Null => Ok(None),
+        Arg::Text(t) => {
             let s = String::from_utf8_lossy(t);
             match Bandwidth::parse(&s) {
                 Ok(b) => Ok(Some(b)),
@@ -370,7 +311,7 @@ fn bandwidth(v: ValueRef<'_>) -> std::result::Result<Option<Bandwidth>, ArgError
                 },
             }
         }
-        ValueRef::Blob(_) => Err(ArgError::BadJson {
+        Arg::Blob(_) => Err(ArgError::BadOption {
             what: "bandwidth",
             detail: format!(
                 "must be 'scott', 'silverman' or a positive number, got {}",
@@ -385,9 +326,9 @@ fn bandwidth(v: ValueRef<'_>) -> std::result::Result<Option<Bandwidth>, ArgError
 }
 
 /// Reads a histogram rule: a rule name or a whole number of bins. NULL gives `None`.
-fn bin_rule(v: ValueRef<'_>) -> std::result::Result<Option<BinRule>, ArgError> {
+fn bin_rule(v: Arg<'_>) -> std::result::Result<Option<BinRule>, ArgError> {
     match v {
-        ValueRef::Text(t) => {
+        Arg::Text(t) => {
             let s = String::from_utf8_lossy(t);
             match BinRule::parse(&s) {
                 Ok(r) => Ok(Some(r)),
@@ -397,7 +338,7 @@ fn bin_rule(v: ValueRef<'_>) -> std::result::Result<Option<BinRule>, ArgError> {
                 },
             }
         }
-        ValueRef::Blob(_) => Err(ArgError::BadJson {
+        Arg::Blob(_) => Err(ArgError::BadOption {
             what: "rule",
             detail: format!(
                 "must be 'sturges', 'scott', 'fd', 'sqrt' or a whole number of bins, got {}",
@@ -414,75 +355,74 @@ fn bin_rule(v: ValueRef<'_>) -> std::result::Result<Option<BinRule>, ArgError> {
 // ---------------------------------------------------------------------------------------
 // Scalars
 
-fn cdf(ctx: &Context<'_>) -> Result<Value> {
-    const NAME: &str = "dist_cdf";
-    let d = dist_arg(ctx, 0, NAME)?;
-    let t = num(ctx, 1, "t", NAME)?;
+fn cdf(call: &mut Call<'_>) -> Result<Out> {
+    let d = call.dist(0)?;
+    let t = call.number(1, "t")?;
     let (Some(d), Some(t)) = (d, t) else {
-        return Ok(Value::Null);
+        return Ok(Out::Null);
     };
-    Ok(real(d.cdf(t)))
+    Ok(Out::real(d.cdf(t)))
 }
 
-fn quantile(ctx: &Context<'_>) -> Result<Value> {
+fn quantile(call: &mut Call<'_>) -> Result<Out> {
     const NAME: &str = "dist_quantile";
-    let d = dist_arg(ctx, 0, NAME)?;
-    let p = num(ctx, 1, "p", NAME)?;
+    let d = call.dist(0)?;
+    let p = call.number(1, "p")?;
     if let Some(p) = p {
         check_probability(p).map_err(|e| fail(NAME, e))?;
     }
-    let ty = if ctx.len() > 2 {
-        match whole(ctx.get_raw(2), "type").map_err(|e| fail(NAME, e))? {
-            None => return Ok(Value::Null),
+    let ty = if call.len() > 2 {
+        match whole(call.get(2), "type").map_err(|e| fail(NAME, e))? {
+            None => return Ok(Out::Null),
             Some(t) => QuantileType::new(t).map_err(|e| fail(NAME, e))?,
         }
     } else {
         QuantileType::DEFAULT
     };
     let (Some(d), Some(p)) = (d, p) else {
-        return Ok(Value::Null);
+        return Ok(Out::Null);
     };
-    Ok(real(d.quantile(p, ty).map_err(|e| fail(NAME, e))?))
+    Ok(Out::real(d.quantile(p, ty).map_err(|e| fail(NAME, e))?))
 }
 
-fn pdf(ctx: &Context<'_>) -> Result<Value> {
+fn pdf(call: &mut Call<'_>) -> Result<Out> {
     const NAME: &str = "dist_pdf";
-    let d = dist_arg(ctx, 0, NAME)?;
-    let t = num(ctx, 1, "t", NAME)?;
-    let bw = if ctx.len() > 2 {
-        match bandwidth(ctx.get_raw(2)).map_err(|e| fail(NAME, e))? {
-            None => return Ok(Value::Null),
+    let d = call.dist(0)?;
+    let t = call.number(1, "t")?;
+    let bw = if call.len() > 2 {
+        match bandwidth(call.get(2)).map_err(|e| fail(NAME, e))? {
+            None => return Ok(Out::Null),
             Some(b) => b,
         }
     } else {
         Bandwidth::Scott
     };
     let (Some(d), Some(t)) = (d, t) else {
-        return Ok(Value::Null);
+        return Ok(Out::Null);
     };
-    Ok(real(d.density(bw).map(|k| k.at(t))))
+    Ok(Out::real(d.density(bw).map(|k| k.at(t))))
 }
 
-fn size(ctx: &Context<'_>) -> Result<Value> {
-    Ok(match dist_arg(ctx, 0, "dist_n")?.and_then(|d| d.size()) {
-        None => Value::Null,
-        Some(Size::Count(n)) => Value::Integer(i64::try_from(n).unwrap_or(i64::MAX)),
-        Some(Size::Weight(w)) => Value::Real(w),
+fn size(call: &mut Call<'_>) -> Result<Out> {
+    Ok(match call.dist(0)?.and_then(|d| d.size()) {
+        None => Out::Null,
+        Some(Size::Count(n)) => Out::Integer(i64::try_from(n).unwrap_or(i64::MAX)),
+        Some(Size::Weight(w)) => Out::Real(w),
     })
 }
 
-fn mean(ctx: &Context<'_>) -> Result<Value> {
-    Ok(real(dist_arg(ctx, 0, "dist_mean")?.and_then(|d| d.mean())))
+fn mean(call: &mut Call<'_>) -> Result<Out> {
+    Ok(Out::real(call.dist(0)?.and_then(|d| d.mean())))
 }
 
-fn sd(ctx: &Context<'_>) -> Result<Value> {
-    Ok(real(dist_arg(ctx, 0, "dist_sd")?.and_then(|d| d.sd())))
+fn sd(call: &mut Call<'_>) -> Result<Out> {
+    Ok(Out::real(call.dist(0)?.and_then(|d| d.sd())))
 }
 
-fn profile(ctx: &Context<'_>) -> Result<Value> {
+fn profile(call: &mut Call<'_>) -> Result<Out> {
     const NAME: &str = "dist_profile";
-    let Some(d) = dist_arg(ctx, 0, NAME)? else {
-        return Ok(Value::Null);
+    let Some(d) = call.dist(0)? else {
+        return Ok(Out::Null);
     };
     let s = empirical(
         &d,
@@ -491,16 +431,16 @@ fn profile(ctx: &Context<'_>) -> Result<Value> {
     )
     .map_err(|e| fail(NAME, e))?;
     Ok(s.profile()
-        .map_or(Value::Null, |p| Value::Text(profile_json(&p))))
+        .map_or(Out::Null, |p| Out::Text(profile_json(&p))))
 }
 
-fn band(ctx: &Context<'_>) -> Result<Value> {
+fn band(call: &mut Call<'_>) -> Result<Out> {
     const NAME: &str = "dist_band";
-    let d = dist_arg(ctx, 0, NAME)?;
-    let t = num(ctx, 1, "t", NAME)?;
-    let alpha = num(ctx, 2, "alpha", NAME)?;
+    let d = call.dist(0)?;
+    let t = call.number(1, "t")?;
+    let alpha = call.number(2, "alpha")?;
     let (Some(d), Some(t), Some(alpha)) = (d, t, alpha) else {
-        return Ok(Value::Null);
+        return Ok(Out::Null);
     };
     let s = empirical(
         &d,
@@ -509,10 +449,10 @@ fn band(ctx: &Context<'_>) -> Result<Value> {
     )
     .map_err(|e| fail(NAME, e))?;
     let Some(f) = s.cdf(t) else {
-        return Ok(Value::Null);
+        return Ok(Out::Null);
     };
     let b = dkw_band(f, s.total_weight(), alpha).map_err(|e| fail(NAME, e))?;
-    Ok(Value::Text(
+    Ok(Out::Text(
         json!({"lower": b.lower, "upper": b.upper}).to_string(),
     ))
 }
@@ -520,201 +460,235 @@ fn band(ctx: &Context<'_>) -> Result<Value> {
 // ---------------------------------------------------------------------------------------
 // Aggregates
 
-/// `dist_empirical(x [, w])`.
-pub struct DistEmpirical;
+/// State of `dist_empirical(x [, w])`: the values (and weights) so far.
+#[derive(Debug, Default)]
+pub struct DistEmpiricalState {
+    b: Option<SampleBuilder>,
+}
 
-impl Aggregate<Option<SampleBuilder>, Value> for DistEmpirical {
-    fn init(&self, _: &mut Context<'_>) -> Result<Option<SampleBuilder>> {
-        Ok(None)
+impl State for DistEmpiricalState {
+    const NAME: &'static str = "dist_empirical";
+
+    fn step(&mut self, args: &Args<'_>) -> Result<()> {
+        let weighted = args.len() > 1;
+        let b = self.b.get_or_insert_with(|| SampleBuilder::new(weighted));
+        let mut go = || -> std::result::Result<(), ArgError> {
+            let x = number(args.get(0), "x")?;
+            if weighted {
+                let w = number(args.get(1), "w")?;
+                if let Some(w) = w {
+                    crate::stats::check_weight(w)?;
+                }
+                if let (Some(x), Some(w)) = (x, w) {
+                    b.push_weighted(x, w)?;
+                }
+            } else if let Some(x) = x {
+                b.push(x)?;
+            }
+            Ok(())
+        };
+        go().map_err(|e| fail(Self::NAME, e))
     }
 
-    fn step(&self, ctx: &mut Context<'_>, b: &mut Option<SampleBuilder>) -> Result<()> {
-        const NAME: &str = "dist_empirical";
-        let weighted = ctx.len() > 1;
-        let b = b.get_or_insert_with(|| SampleBuilder::new(weighted));
-        let x = num(ctx, 0, "x", NAME)?;
-        if weighted {
-            let w = num(ctx, 1, "w", NAME)?;
-            if let Some(w) = w {
-                crate::stats::check_weight(w).map_err(|e| fail(NAME, e))?;
-            }
-            if let (Some(x), Some(w)) = (x, w) {
-                b.push_weighted(x, w).map_err(|e| fail(NAME, e))?;
-            }
-        } else if let Some(x) = x {
-            b.push(x).map_err(|e| fail(NAME, e))?;
+    fn merge(&mut self, other: Self) -> Result<()> {
+        merge_builders(Self::NAME, &mut self.b, other.b)
+    }
+
+    fn finalize(&mut self) -> Result<Out> {
+        blob(Self::NAME, self.b.take())
+    }
+
+    fn save(&self, w: &mut Writer) {
+        save_builder(w, &self.b);
+    }
+
+    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        Ok(DistEmpiricalState {
+            b: load_builder(r)?,
+        })
+    }
+}
+
+/// Merges the builder of another part of a group.
+fn merge_builders(
+    name: &'static str,
+    mine: &mut Option<SampleBuilder>,
+    theirs: Option<SampleBuilder>,
+) -> Result<()> {
+    let Some(theirs) = theirs else { return Ok(()) };
+    let Some(b) = mine.as_mut() else {
+        *mine = Some(theirs);
+        return Ok(());
+    };
+    let part = theirs.finish().map_err(|e| fail(name, e))?;
+    b.extend(&part);
+    Ok(())
+}
+
+/// Saves a builder as the existing BLOB (docs/empirical-blob.md) of what it holds, after
+/// a flag for "weighted" (a builder of `dist_empirical(x, w)` whose rows all had zero
+/// weight holds nothing, yet stays weighted).
+fn save_builder(w: &mut Writer, b: &Option<SampleBuilder>) {
+    match b {
+        None => w.u8(0),
+        Some(b) => {
+            w.u8(if b.is_weighted() { 2 } else { 1 });
+            let blob = b.clone().finish().ok().filter(|s| !s.is_empty());
+            w.opt_bytes(blob.as_ref().map(empirical::encode).as_deref());
         }
-        Ok(())
     }
+}
 
-    fn finalize(&self, _: &mut Context<'_>, b: Option<Option<SampleBuilder>>) -> Result<Value> {
-        blob("dist_empirical", b.flatten())
+/// Reads a builder written by [`save_builder`].
+fn load_builder(r: &mut Reader<'_>) -> std::result::Result<Option<SampleBuilder>, ArgError> {
+    let tag = r.u8()?;
+    if tag == 0 {
+        return Ok(None);
     }
+    let mut b = SampleBuilder::new(tag == 2);
+    if let Some(bytes) = r.opt_bytes()? {
+        let s = empirical::decode(bytes)
+            .map_err(|e| ArgError::BadState(format!("its distribution BLOB: {e}")))?;
+        b.extend(&s);
+    }
+    Ok(Some(b))
 }
 
 /// The BLOB of a finished builder, NULL when it holds nothing.
-fn blob(name: &'static str, b: Option<SampleBuilder>) -> Result<Value> {
-    let Some(b) = b else { return Ok(Value::Null) };
+fn blob(name: &'static str, b: Option<SampleBuilder>) -> Result<Out> {
+    let Some(b) = b else { return Ok(Out::Null) };
     let s = b.finish().map_err(|e| fail(name, e))?;
     Ok(if s.is_empty() {
-        Value::Null
+        Out::Null
     } else {
-        Value::Blob(empirical::encode(&s))
+        Out::Blob(empirical::encode(&s))
     })
 }
 
-/// `dist_merge(d)`.
-pub struct DistMerge;
+/// State of `dist_merge(d)`: the union so far.
+#[derive(Debug, Default)]
+pub struct DistMergeState {
+    b: Option<SampleBuilder>,
+}
 
-impl Aggregate<SampleBuilder, Value> for DistMerge {
-    fn init(&self, _: &mut Context<'_>) -> Result<SampleBuilder> {
-        Ok(SampleBuilder::new(false))
-    }
+impl State for DistMergeState {
+    const NAME: &'static str = "dist_merge";
 
-    fn step(&self, ctx: &mut Context<'_>, b: &mut SampleBuilder) -> Result<()> {
-        const NAME: &str = "dist_merge";
-        let d = Dist::from_sql(ctx.get_raw(0), 1).map_err(|e| fail(NAME, e))?;
-        if let Some(d) = d {
-            let s = empirical(
-                &d,
-                1,
-                "only samples merge: fit a model to the merged values instead",
-            )
-            .map_err(|e| fail(NAME, e))?;
-            b.extend(s);
-        }
+    fn step(&mut self, args: &Args<'_>) -> Result<()> {
+        let b = self.b.get_or_insert_with(|| SampleBuilder::new(false));
+        let row = [args.get(0)];
+        let mut memo = NoMemo;
+        let Some(d) = Call::new(Self::NAME, &row, &mut memo).dist(0)? else {
+            return Ok(());
+        };
+        let s = empirical(
+            &d,
+            1,
+            "only samples merge: fit a model to the merged values instead",
+        )
+        .map_err(|e| fail(Self::NAME, e))?;
+        b.extend(s);
         Ok(())
     }
 
-    fn finalize(&self, _: &mut Context<'_>, b: Option<SampleBuilder>) -> Result<Value> {
-        blob("dist_merge", b)
+    fn merge(&mut self, other: Self) -> Result<()> {
+        merge_builders(Self::NAME, &mut self.b, other.b)
+    }
+
+    fn finalize(&mut self) -> Result<Out> {
+        blob(Self::NAME, self.b.take())
+    }
+
+    fn save(&self, w: &mut Writer) {
+        save_builder(w, &self.b);
+    }
+
+    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        Ok(DistMergeState {
+            b: load_builder(r)?,
+        })
     }
 }
 
 // ---------------------------------------------------------------------------------------
 // Table-valued functions
 
-/// Reads the distribution argument of a table-valued function.
-fn table_dist(name: &'static str, v: Option<ValueRef<'_>>) -> Result<Option<Dist>> {
-    v.map_or(Ok(None), |v| {
-        Dist::from_sql(v, 1).map_err(|e| fail(name, e))
-    })
-}
-
 /// `dist_steps(d)`.
-pub(crate) struct Steps;
-
-impl TableFunction for Steps {
-    const NAME: &'static str = "dist_steps";
-    const SCHEMA: &'static CStr = c"CREATE TABLE x(x REAL, cdf REAL, d HIDDEN)";
-    const COLUMNS: usize = 2;
-    const ARGS: &'static [&'static str] = &["d"];
-    const REQUIRED: usize = 1;
-    const SIGNATURE: &'static str = "dist_steps(d)";
-
-    fn rows(args: &[Option<ValueRef<'_>>]) -> Result<Vec<Value>> {
-        let Some(d) = table_dist(Self::NAME, args.first().copied().flatten())? else {
-            return Ok(Vec::new());
-        };
-        let s = empirical(
-            &d,
-            1,
-            "a model's cdf has no steps: draw it with dist_curve(model, lo, hi, n)",
-        )
-        .map_err(|e| fail(Self::NAME, e))?;
-        Ok(s.steps()
-            .into_iter()
-            .flat_map(|(x, f)| [Value::Real(x), Value::Real(f)])
-            .collect())
-    }
+fn steps(call: &mut Call<'_>) -> Result<Vec<Out>> {
+    let Some(d) = call.dist(0)? else {
+        return Ok(Vec::new());
+    };
+    let s = empirical(
+        &d,
+        1,
+        "a model's cdf has no steps: draw it with dist_curve(model, lo, hi, n)",
+    )
+    .map_err(|e| call.fail(e))?;
+    Ok(s.steps()
+        .into_iter()
+        .flat_map(|(x, f)| [Out::Real(x), Out::Real(f)])
+        .collect())
 }
 
 /// `dist_curve(d, lo, hi, n [, bandwidth])`.
-pub(crate) struct Curve;
-
-impl TableFunction for Curve {
-    const NAME: &'static str = "dist_curve";
-    const SCHEMA: &'static CStr = c"CREATE TABLE x(x REAL, cdf REAL, pdf REAL, \
-        d HIDDEN, lo HIDDEN, hi HIDDEN, n HIDDEN, bandwidth HIDDEN)";
-    const COLUMNS: usize = 3;
-    const ARGS: &'static [&'static str] = &["d", "lo", "hi", "n", "bandwidth"];
-    const REQUIRED: usize = 4;
-    const SIGNATURE: &'static str = "dist_curve(d, lo, hi, n [, bandwidth])";
-
-    fn rows(args: &[Option<ValueRef<'_>>]) -> Result<Vec<Value>> {
-        let name = Self::NAME;
-        let arg = |i: usize| args.get(i).copied().flatten().unwrap_or(ValueRef::Null);
-        let d = table_dist(name, Some(arg(0)))?;
-        let lo = number(arg(1), "lo").map_err(|e| fail(name, e))?;
-        let hi = number(arg(2), "hi").map_err(|e| fail(name, e))?;
-        let n = whole(arg(3), "n").map_err(|e| fail(name, e))?;
-        let bw = match args.get(4).copied().flatten() {
-            None => Some(Bandwidth::Scott),
-            Some(v) => bandwidth(v).map_err(|e| fail(name, e))?,
-        };
-        let (Some(d), Some(lo), Some(hi), Some(n), Some(bw)) = (d, lo, hi, n, bw) else {
-            return Ok(Vec::new());
-        };
-        let n = check_grid(lo, hi, n).map_err(|e| fail(name, e))?;
-        let density = d.density(bw);
-        Ok(linspace(lo, hi, n)
-            .into_iter()
-            .flat_map(|x| {
-                [
-                    Value::Real(x),
-                    real(d.cdf(x)),
-                    real(density.map(|k| k.at(x))),
-                ]
-            })
-            .collect())
-    }
+fn curve(call: &mut Call<'_>) -> Result<Vec<Out>> {
+    let d = call.dist(0)?;
+    let lo = call.number(1, "lo")?;
+    let hi = call.number(2, "hi")?;
+    let n = call.whole(3, "n")?;
+    let bw = match call.optional(4) {
+        None => Some(Bandwidth::Scott),
+        Some(v) => bandwidth(v).map_err(|e| call.fail(e))?,
+    };
+    let (Some(d), Some(lo), Some(hi), Some(n), Some(bw)) = (d, lo, hi, n, bw) else {
+        return Ok(Vec::new());
+    };
+    let n = check_grid(lo, hi, n).map_err(|e| call.fail(e))?;
+    let density = d.density(bw);
+    Ok(linspace(lo, hi, n)
+        .into_iter()
+        .flat_map(|x| {
+            [
+                Out::Real(x),
+                Out::real(d.cdf(x)),
+                Out::real(density.map(|k| k.at(x))),
+            ]
+        })
+        .collect())
 }
 
 /// `dist_histogram(d [, rule])`.
-pub(crate) struct Histogram;
-
-impl TableFunction for Histogram {
-    const NAME: &'static str = "dist_histogram";
-    const SCHEMA: &'static CStr =
-        c"CREATE TABLE x(lo REAL, hi REAL, count, density REAL, d HIDDEN, rule HIDDEN)";
-    const COLUMNS: usize = 4;
-    const ARGS: &'static [&'static str] = &["d", "rule"];
-    const REQUIRED: usize = 1;
-    const SIGNATURE: &'static str = "dist_histogram(d [, rule])";
-
-    fn rows(args: &[Option<ValueRef<'_>>]) -> Result<Vec<Value>> {
-        let name = Self::NAME;
-        let rule = match args.get(1).copied().flatten() {
-            None => Some(BinRule::Sturges),
-            Some(v) => bin_rule(v).map_err(|e| fail(name, e))?,
-        };
-        let d = table_dist(name, args.first().copied().flatten())?;
-        let (Some(d), Some(rule)) = (d, rule) else {
-            return Ok(Vec::new());
-        };
-        let s = empirical(
-            &d,
-            1,
-            "a model has no counts: its density is the pdf column of dist_curve(model, lo, hi, n)",
-        )
-        .map_err(|e| fail(name, e))?;
-        let bins = histogram(s, rule).map_err(|e| fail(name, e))?;
-        let weighted = s.is_weighted();
-        Ok(bins
-            .into_iter()
-            .flat_map(|b| {
-                let count = if weighted {
-                    Value::Real(b.count)
-                } else {
-                    Value::Integer(b.count as i64)
-                };
-                [
-                    Value::Real(b.lo),
-                    Value::Real(b.hi),
-                    count,
-                    Value::Real(b.density),
-                ]
-            })
-            .collect())
-    }
+fn histogram_rows(call: &mut Call<'_>) -> Result<Vec<Out>> {
+    let rule = match call.optional(1) {
+        None => Some(BinRule::Sturges),
+        Some(v) => bin_rule(v).map_err(|e| call.fail(e))?,
+    };
+    let d = call.dist(0)?;
+    let (Some(d), Some(rule)) = (d, rule) else {
+        return Ok(Vec::new());
+    };
+    let s = empirical(
+        &d,
+        1,
+        "a model has no counts: its density is the pdf column of dist_curve(model, lo, hi, n)",
+    )
+    .map_err(|e| call.fail(e))?;
+    let bins = histogram(s, rule).map_err(|e| call.fail(e))?;
+    let weighted = s.is_weighted();
+    Ok(bins
+        .into_iter()
+        .flat_map(|b| {
+            let count = if weighted {
+                Out::Real(b.count)
+            } else {
+                Out::Integer(b.count as i64)
+            };
+            [
+                Out::Real(b.lo),
+                Out::Real(b.hi),
+                count,
+                Out::Real(b.density),
+            ]
+        })
+        .collect())
 }

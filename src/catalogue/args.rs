@@ -1,20 +1,22 @@
-//! Argument checking and conversion for the SQL adapters, and the one path by which
-//! errors reach SQLite.
+//! Argument checking and conversion, and the errors of the catalogue, engine-neutral.
 //!
-//! Every adapter error becomes an SQLite error whose message starts with the SQL function
-//! name and says what to change, for example `quantile: p must be between 0 and 1, got 1.5`.
+//! Every error a function raises is a [`FunctionError`]: the SQL function name and an
+//! [`ArgError`], shown as `quantile: p must be between 0 and 1, got 1.5`. The engine
+//! adapters turn it into their own error type in one helper each
+//! (`crate::sqlite::to_sqlite` for SQLite) and never write an error text themselves.
 
 use std::fmt;
 
-use rusqlite::types::ValueRef;
+use super::value::Arg;
 
+use super::value::describe as show;
 use crate::stats::StatsError;
 use crate::stats::fit::FitError;
 use crate::stats::ks::TestError;
 use crate::stats::mixture::MixtureError;
 use crate::stats::sketch::SketchError;
+use crate::value::ValueError;
 use crate::value::model::ModelError;
-use crate::value::{ValueError, describe as show};
 
 /// What an adapter can reject. The SQL function name is added by [`fail`].
 #[derive(Debug, Clone, PartialEq)]
@@ -29,8 +31,12 @@ pub enum ArgError {
         first: String,
         now: String,
     },
-    /// A JSON argument that does not have the required shape.
-    BadJson { what: &'static str, detail: String },
+    /// An option or JSON argument whose value is not one the function takes (a
+    /// bandwidth, a rule, a metric, a method, a probability list); `detail` says which
+    /// values are.
+    BadOption { what: &'static str, detail: String },
+    /// An argument that must be TEXT is another type, or not UTF-8.
+    NotText { what: &'static str, shown: String },
     /// A value that should be a BLOB made by ogive is something else.
     NotBlob {
         what: &'static str,
@@ -49,7 +55,7 @@ pub enum ArgError {
     Test(TestError),
     /// A distribution argument of a kind the function does not take (it needs an
     /// empirical one): what it got, and what to do instead.
-    NotEmpirical {
+    NeedsEmpirical {
         arg: usize,
         got: String,
         instead: &'static str,
@@ -70,6 +76,10 @@ pub enum ArgError {
     Sketch(SketchError),
     /// Memory ran out while holding a group's values (`held` of them so far).
     OutOfMemory { held: usize },
+    /// A distribution argument that must be a model is an empirical distribution.
+    NeedsModel { arg: usize, got: String },
+    /// A saved partial state (shipped between an engine's processes) that does not read.
+    BadState(String),
 }
 
 impl fmt::Display for ArgError {
@@ -86,7 +96,8 @@ impl fmt::Display for ArgError {
                 f,
                 "{what} must be the same on every row of a group, got {first} and then {now}"
             ),
-            ArgError::BadJson { what, detail } => write!(f, "{what} {detail}"),
+            ArgError::BadOption { what, detail } => write!(f, "{what} {detail}"),
+            ArgError::NotText { what, shown } => write!(f, "{what} must be TEXT, got {shown}"),
             ArgError::NotBlob {
                 what,
                 made_by,
@@ -102,7 +113,7 @@ impl fmt::Display for ArgError {
                 "internal error: {what}; this is a bug in ogive, please report it"
             ),
             ArgError::Test(e) => e.fmt(f),
-            ArgError::NotEmpirical { arg, got, instead } => write!(
+            ArgError::NeedsEmpirical { arg, got, instead } => write!(
                 f,
                 "argument {arg} must be an empirical distribution (a BLOB from dist_empirical), \
                  not {got}; {instead}"
@@ -122,12 +133,36 @@ impl fmt::Display for ArgError {
             ArgError::Mixture(e) => e.fmt(f),
             ArgError::Model(e) => e.fmt(f),
             ArgError::Sketch(e) => e.fmt(f),
+            ArgError::NeedsModel { got, .. } => write!(
+                f,
+                "model must be model JSON (from dist_mixture, dist_fit or dist_model), not {got}"
+            ),
+            ArgError::BadState(what) => write!(
+                f,
+                "cannot read a partial aggregate state ({what}); the engine's processes must \
+                 run the same ogive"
+            ),
             ArgError::OutOfMemory { held } => write!(
                 f,
                 "ran out of memory holding {held} values of one group; an exact quantile keeps \
                  every value, so group more finely or use sketch_quantile(quantile_sketch(x), p), which \
                  needs 64 KB per group"
             ),
+        }
+    }
+}
+
+impl std::error::Error for ArgError {
+    fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
+        match self {
+            ArgError::Stats(e) => Some(e),
+            ArgError::Value(e) => Some(e),
+            ArgError::Test(e) => Some(e),
+            ArgError::Fit(e) => Some(e),
+            ArgError::Mixture(e) => Some(e),
+            ArgError::Model(e) => Some(e),
+            ArgError::Sketch(e) => Some(e),
+            _ => None,
         }
     }
 }
@@ -174,7 +209,8 @@ impl From<SketchError> for ArgError {
     }
 }
 
-/// An adapter error with the SQL function's name, as SQLite reports it.
+/// An error of a SQL function: its name and what was wrong. Engines show it as
+/// `name: message`.
 #[derive(Debug, Clone, PartialEq)]
 pub struct FunctionError {
     /// The SQL function name.
@@ -189,36 +225,32 @@ impl fmt::Display for FunctionError {
     }
 }
 
-impl std::error::Error for FunctionError {}
-
-/// The one helper that turns an adapter error into the error SQLite reports.
-pub fn fail(function: &'static str, error: impl Into<ArgError>) -> rusqlite::Error {
-    rusqlite::Error::UserFunctionError(Box::new(FunctionError {
-        function,
-        error: error.into(),
-    }))
+impl std::error::Error for FunctionError {
+    fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
+        Some(&self.error)
+    }
 }
 
-/// [`fail`] for the callbacks that SQLite calls directly (`functions::raw`): sets the
-/// context's result to the same error, with the same message and code, that rusqlite
-/// reports for the error [`fail`] returns.
+impl FunctionError {
+    /// Whether memory ran out (engines report this with their out-of-memory code).
+    pub fn is_out_of_memory(&self) -> bool {
+        matches!(self.error, ArgError::OutOfMemory { .. })
+    }
+}
+
+/// The one helper that names the function in an error.
 ///
-/// # Safety
-/// `ctx` must be the context of the running SQLite callback.
+/// # Example
+/// ```
+/// use ogive::catalogue::args::{fail, ArgError};
+/// let e = fail("quantile", ArgError::Missing { signature: "quantile(x, p)" });
+/// assert_eq!(e.to_string(), "quantile: give the arguments, as in quantile(x, p)");
+/// ```
 #[cold]
-#[inline(never)]
-pub(crate) unsafe fn fail_raw(
-    ctx: *mut rusqlite::ffi::sqlite3_context,
-    function: &'static str,
-    error: impl Into<ArgError>,
-) {
-    let message = fail(function, error).to_string();
-    let len = std::ffi::c_int::try_from(message.len()).unwrap_or(std::ffi::c_int::MAX);
-    // SAFETY: per the contract; SQLite copies the message (it is not NUL-terminated, so
-    // its length is given).
-    unsafe {
-        rusqlite::ffi::sqlite3_result_error_code(ctx, rusqlite::ffi::SQLITE_CONSTRAINT_FUNCTION);
-        rusqlite::ffi::sqlite3_result_error(ctx, message.as_ptr().cast(), len);
+pub fn fail(function: &'static str, error: impl Into<ArgError>) -> FunctionError {
+    FunctionError {
+        function,
+        error: error.into(),
     }
 }
 
@@ -227,27 +259,34 @@ pub(crate) unsafe fn fail_raw(
 /// affinity would; other TEXT and any BLOB are errors. SQLite has no NaN, so a NaN REAL
 /// (possible only through the C API) is treated as NULL.
 #[inline]
-pub fn number(v: ValueRef<'_>, what: &'static str) -> Result<Option<f64>, ArgError> {
+pub fn number(v: Arg<'_>, what: &'static str) -> Result<Option<f64>, ArgError> {
     match v {
-        ValueRef::Real(r) => Ok((!r.is_nan()).then_some(r)),
-        ValueRef::Integer(i) => Ok(Some(i as f64)),
-        ValueRef::Null => Ok(None),
-        ValueRef::Text(_) | ValueRef::Blob(_) => number_from_text(v, what),
+        Arg::Real(r) => Ok((!r.is_nan()).then_some(r)),
+        Arg::Integer(i) => Ok(Some(i as f64)),
+        Arg::Null => Ok(None),
+        Arg::Text(_) | Arg::Blob(_) => number_from_text(v, what),
     }
 }
 
 /// The rare branch of [`number`], kept out of line so the per-row path stays small.
 #[cold]
 #[inline(never)]
-fn number_from_text(v: ValueRef<'_>, what: &'static str) -> Result<Option<f64>, ArgError> {
+fn number_from_text(v: Arg<'_>, what: &'static str) -> Result<Option<f64>, ArgError> {
     let shown = || ArgError::NotNumeric {
         what,
         shown: show(v),
     };
     match v {
-        ValueRef::Text(t) => std::str::from_utf8(t)
+        Arg::Text(t) => std::str::from_utf8(t)
             .ok()
-            .and_then(|s| s.trim().parse::<f64>().ok())
+            .map(str::trim)
+            // SQLite's own reading of numeric TEXT knows digits, a sign, a point and an
+            // exponent; words such as 'inf' or 'nan' are text to it, so they are here.
+            .filter(|s| {
+                s.bytes()
+                    .all(|b| b.is_ascii_digit() || b"+-.eE".contains(&b))
+            })
+            .and_then(|s| s.parse::<f64>().ok())
             .filter(|x| !x.is_nan())
             .map(Some)
             .ok_or_else(shown),
@@ -257,8 +296,8 @@ fn number_from_text(v: ValueRef<'_>, what: &'static str) -> Result<Option<f64>, 
 
 /// A whole-number argument: INTEGER, or a REAL or numeric TEXT with no fractional part.
 /// NULL gives `None`.
-pub fn whole(v: ValueRef<'_>, what: &'static str) -> Result<Option<i64>, ArgError> {
-    if let ValueRef::Integer(i) = v {
+pub fn whole(v: Arg<'_>, what: &'static str) -> Result<Option<i64>, ArgError> {
+    if let Arg::Integer(i) = v {
         return Ok(Some(i));
     }
     match number(v, what)? {
@@ -272,18 +311,18 @@ pub fn whole(v: ValueRef<'_>, what: &'static str) -> Result<Option<i64>, ArgErro
 }
 
 /// A text argument: NULL gives `None`; anything else must be TEXT.
-pub fn text<'a>(v: ValueRef<'a>, what: &'static str) -> Result<Option<&'a str>, ArgError> {
+pub fn text<'a>(v: Arg<'a>, what: &'static str) -> Result<Option<&'a str>, ArgError> {
     match v {
-        ValueRef::Null => Ok(None),
-        ValueRef::Text(t) => std::str::from_utf8(t)
+        Arg::Null => Ok(None),
+        Arg::Text(t) => std::str::from_utf8(t)
             .map(Some)
-            .map_err(|_| ArgError::BadJson {
+            .map_err(|_| ArgError::NotText {
                 what,
-                detail: "must be valid UTF-8 text".to_string(),
+                shown: "text that is not valid UTF-8".to_string(),
             }),
-        other => Err(ArgError::BadJson {
+        other => Err(ArgError::NotText {
             what,
-            detail: format!("must be TEXT, got {}", show(other)),
+            shown: show(other),
         }),
     }
 }
@@ -291,13 +330,13 @@ pub fn text<'a>(v: ValueRef<'a>, what: &'static str) -> Result<Option<&'a str>, 
 /// A BLOB argument: NULL gives `None`; anything but a BLOB is an error that names the
 /// functions that make such BLOBs (`made_by`).
 pub fn blob<'a>(
-    v: ValueRef<'a>,
+    v: Arg<'a>,
     what: &'static str,
     made_by: &'static str,
 ) -> Result<Option<&'a [u8]>, ArgError> {
     match v {
-        ValueRef::Null => Ok(None),
-        ValueRef::Blob(b) => Ok(Some(b)),
+        Arg::Null => Ok(None),
+        Arg::Blob(b) => Ok(Some(b)),
         other => Err(ArgError::NotBlob {
             what,
             made_by,
@@ -335,6 +374,131 @@ impl<T: PartialEq + Clone + fmt::Debug> Constant<T> {
     pub fn get(&self) -> Option<&T> {
         self.first.as_ref().and_then(Option::as_ref)
     }
+
+    /// Whether a row has fixed the value (NULL included).
+    pub fn is_seen(&self) -> bool {
+        self.first.is_some()
+    }
+
+    /// Whether the value was fixed as NULL.
+    pub fn is_null(&self) -> bool {
+        matches!(self.first, Some(None))
+    }
+
+    /// Combines the constant of another part of the same group: the parts must agree.
+    ///
+    /// # Errors
+    /// [`ArgError::Changed`] when both parts fixed different values.
+    pub fn merge(&mut self, other: Constant<T>, what: &'static str) -> Result<(), ArgError> {
+        match (&self.first, other.first) {
+            (_, None) => Ok(()),
+            (None, theirs) => {
+                self.first = theirs;
+                Ok(())
+            }
+            (Some(mine), Some(theirs)) if *mine == theirs => Ok(()),
+            (Some(mine), Some(theirs)) => Err(changed(mine, &theirs, what)),
+        }
+    }
+
+    /// The raw state, for saving: unseen, NULL, or a value.
+    pub fn raw(&self) -> Option<Option<&T>> {
+        self.first.as_ref().map(Option::as_ref)
+    }
+
+    /// A constant restored from [`Constant::raw`].
+    pub fn from_raw(first: Option<Option<T>>) -> Self {
+        Constant { first }
+    }
+}
+
+/// A TEXT argument that must be the same on every row of a group and is parsed once: the
+/// first row's text is parsed by the caller's parser, later rows compare bytes only.
+#[derive(Debug, Clone)]
+pub struct TextConstant<T> {
+    text: Constant<String>,
+    parsed: Option<T>,
+}
+
+impl<T> Default for TextConstant<T> {
+    fn default() -> Self {
+        TextConstant {
+            text: Constant::default(),
+            parsed: None,
+        }
+    }
+}
+
+impl<T: Clone> TextConstant<T> {
+    /// Records this row's value; on the first row a non-NULL text is parsed with `parse`.
+    ///
+    /// # Errors
+    /// [`ArgError::NotText`] for a value that is not TEXT, [`ArgError::Changed`] when it
+    /// differs from the first row's, and whatever `parse` reports.
+    #[inline]
+    pub fn observe(
+        &mut self,
+        v: Arg<'_>,
+        what: &'static str,
+        parse: impl FnOnce(&str) -> Result<T, ArgError>,
+    ) -> Result<(), ArgError> {
+        let now = text(v, what)?;
+        if let (Some(first), Some(now)) = (self.text.get(), now)
+            && first == now
+        {
+            return Ok(());
+        }
+        if self.text.observe(now.map(str::to_owned), what)?
+            && let Some(now) = now
+        {
+            self.parsed = Some(parse(now)?);
+        }
+        Ok(())
+    }
+
+    /// The parsed value; `None` when no row came or the text was NULL.
+    pub fn get(&self) -> Option<&T> {
+        self.parsed.as_ref()
+    }
+
+    /// Whether the text was NULL.
+    pub fn is_null(&self) -> bool {
+        self.text.is_null()
+    }
+
+    /// The text as first seen (for saving).
+    pub fn raw(&self) -> Option<Option<&String>> {
+        self.text.raw()
+    }
+
+    /// Restores a constant from its text, parsing it again.
+    ///
+    /// # Errors
+    /// Whatever `parse` reports.
+    pub fn from_raw(
+        first: Option<Option<String>>,
+        parse: impl FnOnce(&str) -> Result<T, ArgError>,
+    ) -> Result<Self, ArgError> {
+        let parsed = match &first {
+            Some(Some(t)) => Some(parse(t)?),
+            _ => None,
+        };
+        Ok(TextConstant {
+            text: Constant::from_raw(first),
+            parsed,
+        })
+    }
+
+    /// Combines the constant of another part of the same group.
+    ///
+    /// # Errors
+    /// [`ArgError::Changed`] when the parts saw different texts.
+    pub fn merge(&mut self, other: TextConstant<T>, what: &'static str) -> Result<(), ArgError> {
+        if self.parsed.is_none() {
+            self.parsed = other.parsed.clone();
+        }
+        self.text.merge(other.text, what)
+    }
 }
 
 /// The error of [`Constant::observe`], kept out of the per-row path.
@@ -361,24 +525,29 @@ mod tests {
 
     #[test]
     fn numbers_convert_and_reject() {
-        assert_eq!(number(ValueRef::Integer(3), "x"), Ok(Some(3.0)));
-        assert_eq!(number(ValueRef::Real(2.5), "x"), Ok(Some(2.5)));
-        assert_eq!(number(ValueRef::Null, "x"), Ok(None));
-        assert_eq!(number(ValueRef::Text(b" 4.5 "), "x"), Ok(Some(4.5)));
-        let e = number(ValueRef::Text(b"warm"), "x").unwrap_err();
+        assert_eq!(number(Arg::Integer(3), "x"), Ok(Some(3.0)));
+        assert_eq!(number(Arg::Real(2.5), "x"), Ok(Some(2.5)));
+        assert_eq!(number(Arg::Null, "x"), Ok(None));
+        assert_eq!(number(Arg::Text(b" 4.5 "), "x"), Ok(Some(4.5)));
+        let e = number(Arg::Text(b"warm"), "x").unwrap_err();
         assert_eq!(
             fail("quantile", e).to_string(),
             "quantile: x must be a number (INTEGER or REAL), got TEXT 'warm'; CAST it or filter such rows out"
         );
-        assert!(number(ValueRef::Text(b"nan"), "x").is_err());
-        assert!(number(ValueRef::Blob(&[1, 2]), "x").is_err());
+        assert!(number(Arg::Text(b"nan"), "x").is_err());
+        // SQLite reads these as text, not as infinities.
+        for word in ["inf", "infinity", "-Infinity", " INF "] {
+            assert!(number(Arg::Text(word.as_bytes()), "x").is_err(), "{word}");
+        }
+        assert_eq!(number(Arg::Text(b"-1e3"), "x"), Ok(Some(-1000.0)));
+        assert!(number(Arg::Blob(&[1, 2]), "x").is_err());
     }
 
     #[test]
     fn blobs_only() {
-        assert_eq!(blob(ValueRef::Blob(&[1]), "s", "f"), Ok(Some(&[1u8][..])));
-        assert_eq!(blob(ValueRef::Null, "s", "f"), Ok(None));
-        let e = blob(ValueRef::Integer(3), "s", "quantile_sketch").unwrap_err();
+        assert_eq!(blob(Arg::Blob(&[1]), "s", "f"), Ok(Some(&[1u8][..])));
+        assert_eq!(blob(Arg::Null, "s", "f"), Ok(None));
+        let e = blob(Arg::Integer(3), "s", "quantile_sketch").unwrap_err();
         assert_eq!(
             e.to_string(),
             "s must be a BLOB made by quantile_sketch, got 3"
@@ -387,8 +556,8 @@ mod tests {
 
     #[test]
     fn whole_numbers() {
-        assert_eq!(whole(ValueRef::Real(7.0), "type"), Ok(Some(7)));
-        assert!(whole(ValueRef::Real(7.5), "type").is_err());
+        assert_eq!(whole(Arg::Real(7.0), "type"), Ok(Some(7)));
+        assert!(whole(Arg::Real(7.5), "type").is_err());
     }
 
     #[test]

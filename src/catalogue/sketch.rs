@@ -5,18 +5,16 @@
 //! [`crate::value::sketch`]. NULL x (or a NULL sketch) is skipped; a group with nothing to
 //! summarise gives NULL.
 
-use rusqlite::functions::{Aggregate, Context};
-use rusqlite::types::Value;
-
-use super::args::{Constant, blob, fail, number};
-use super::{FunctionDef, Kind, aggregate, scalar};
+use super::args::{ArgError, Constant, FunctionError, fail, number};
+use super::reader::{Call, NoMemo};
+use super::state::{AggregateImp, Args, Reader, State, Writer};
+use super::value::Out;
+use super::{FunctionDef, Imp, Kind};
 use crate::stats::check_probability;
 use crate::stats::sketch::{DEFAULT_EPSILON, QuantileSketch, k_for_epsilon};
 use crate::value::sketch::{decode, encode};
 
-type Result<T> = rusqlite::Result<T>;
-
-const MADE_BY: &str = "quantile_sketch or sketch_merge";
+type Result<T> = std::result::Result<T, FunctionError>;
 
 /// The registry rows of this module.
 pub static FUNCTIONS: &[FunctionDef] = &[
@@ -36,7 +34,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                Errors: epsilon outside (0, 0.5) or below 1e-5, non-numeric x.",
         example: "SELECT length(quantile_sketch(column1)) FROM (VALUES (1), (2), (3))",
         example_result: "92",
-        register: |c, d| aggregate(c, d, || QuantileSketchAgg),
+        imp: Imp::Aggregate(AggregateImp::of::<QuantileSketchState>()),
     },
     FunctionDef {
         name: "sketch_merge",
@@ -51,7 +49,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                sketches built with different epsilon.",
         example: "SELECT sketch_quantile(sketch_merge(s), 0.5) FROM (SELECT quantile_sketch(column1) AS s FROM (VALUES (1), (2), (3)) UNION ALL SELECT quantile_sketch(column1) FROM (VALUES (4), (5)))",
         example_result: "3.0",
-        register: |c, d| aggregate(c, d, || SketchMerge),
+        imp: Imp::Aggregate(AggregateImp::of::<SketchMergeState>()),
     },
     FunctionDef {
         name: "sketch_quantile",
@@ -66,7 +64,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                s not a sketch BLOB or damaged.",
         example: "SELECT sketch_quantile(quantile_sketch(column1), 0.9) FROM (VALUES (1), (2), (3), (4), (5))",
         example_result: "5.0",
-        register: |c, d| scalar(c, d, sketch_quantile),
+        imp: Imp::Scalar(sketch_quantile),
     },
     FunctionDef {
         name: "sketch_cdf",
@@ -80,21 +78,40 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                or damaged, non-numeric t.",
         example: "SELECT sketch_cdf(quantile_sketch(column1), 2.5) FROM (VALUES (1), (2), (3), (4))",
         example_result: "0.5",
-        register: |c, d| scalar(c, d, sketch_cdf),
+        imp: Imp::Scalar(sketch_cdf),
     },
 ];
 
 /// The sketch BLOB, or NULL for an empty one.
-fn blob_value(s: Option<&QuantileSketch>) -> Value {
-    s.and_then(encode).map_or(Value::Null, Value::Blob)
+fn blob_value(s: Option<&QuantileSketch>) -> Out {
+    s.and_then(encode).map_or(Out::Null, Out::Blob)
 }
 
-/// Reads and decodes the sketch argument at `idx`; `None` for NULL.
-fn sketch_arg(name: &'static str, ctx: &Context<'_>, idx: usize) -> Result<Option<QuantileSketch>> {
-    blob(ctx.get_raw(idx), "s", MADE_BY)
-        .map_err(|e| fail(name, e))?
-        .map(|b| decode(b).map_err(|e| fail(name, e)))
+/// Saves an optional sketch as its BLOB (docs/sketch-format.md).
+fn save_sketch(w: &mut Writer, s: Option<&QuantileSketch>) {
+    w.opt_bytes(s.and_then(encode).as_deref());
+}
+
+/// Reads a sketch saved by [`save_sketch`].
+fn load_sketch(r: &mut Reader<'_>) -> std::result::Result<Option<QuantileSketch>, ArgError> {
+    r.opt_bytes()?
+        .map(|b| decode(b).map_err(|e| ArgError::BadState(format!("its sketch: {e}"))))
         .transpose()
+}
+
+/// Merges `theirs` into `mine`.
+fn merge_into(
+    mine: &mut Option<QuantileSketch>,
+    theirs: Option<QuantileSketch>,
+) -> std::result::Result<(), ArgError> {
+    match (mine.as_mut(), theirs) {
+        (_, None) => Ok(()),
+        (None, t) => {
+            *mine = t;
+            Ok(())
+        }
+        (Some(a), Some(b)) => Ok(a.merge(&b)?),
+    }
 }
 
 // ---------------------------------------------------------------------------------------
@@ -108,94 +125,121 @@ pub struct QuantileSketchState {
     sketch: Option<QuantileSketch>,
 }
 
-/// `quantile_sketch(x [, epsilon])`.
-pub struct QuantileSketchAgg;
+impl State for QuantileSketchState {
+    const NAME: &'static str = "quantile_sketch";
 
-impl Aggregate<QuantileSketchState, Value> for QuantileSketchAgg {
-    fn init(&self, _: &mut Context<'_>) -> Result<QuantileSketchState> {
-        Ok(QuantileSketchState::default())
-    }
-
-    fn step(&self, ctx: &mut Context<'_>, s: &mut QuantileSketchState) -> Result<()> {
-        const NAME: &str = "quantile_sketch";
-        let epsilon = if ctx.len() > 1 {
-            number(ctx.get_raw(1), "epsilon").map_err(|e| fail(NAME, e))?
-        } else {
-            Some(DEFAULT_EPSILON)
+    fn step(&mut self, args: &Args<'_>) -> Result<()> {
+        let mut go = || -> std::result::Result<(), ArgError> {
+            let epsilon = match args.optional(1) {
+                Some(v) => number(v, "epsilon")?,
+                None => Some(DEFAULT_EPSILON),
+            };
+            if self.epsilon.observe(epsilon, "epsilon")?
+                && let Some(eps) = epsilon
+            {
+                self.k = Some(k_for_epsilon(eps)?);
+            }
+            let Some(k) = self.k else { return Ok(()) };
+            if let Some(x) = number(args.get(0), "x")? {
+                self.sketch
+                    .get_or_insert_with(|| QuantileSketch::with_k(k))
+                    .insert(x)?;
+            }
+            Ok(())
         };
-        if s.epsilon
-            .observe(epsilon, "epsilon")
-            .map_err(|e| fail(NAME, e))?
-            && let Some(eps) = epsilon
-        {
-            s.k = Some(k_for_epsilon(eps).map_err(|e| fail(NAME, e))?);
-        }
-        let Some(k) = s.k else { return Ok(()) };
-        if let Some(x) = number(ctx.get_raw(0), "x").map_err(|e| fail(NAME, e))? {
-            s.sketch
-                .get_or_insert_with(|| QuantileSketch::with_k(k))
-                .insert(x)
-                .map_err(|e| fail(NAME, e))?;
-        }
-        Ok(())
+        go().map_err(|e| fail(Self::NAME, e))
     }
 
-    fn finalize(&self, _: &mut Context<'_>, s: Option<QuantileSketchState>) -> Result<Value> {
-        Ok(blob_value(s.as_ref().and_then(|s| s.sketch.as_ref())))
+    fn merge(&mut self, other: Self) -> Result<()> {
+        let go = || -> std::result::Result<(), ArgError> {
+            self.epsilon.merge(other.epsilon, "epsilon")?;
+            if self.k.is_none() {
+                self.k = other.k;
+            }
+            merge_into(&mut self.sketch, other.sketch)
+        };
+        go().map_err(|e| fail(Self::NAME, e))
+    }
+
+    fn finalize(&mut self) -> Result<Out> {
+        Ok(blob_value(self.sketch.as_ref()))
+    }
+
+    fn save(&self, w: &mut Writer) {
+        w.constant(self.epsilon.raw());
+        save_sketch(w, self.sketch.as_ref());
+    }
+
+    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        let epsilon: Constant<f64> = r.constant_of()?;
+        let k = epsilon.get().map(|&e| k_for_epsilon(e)).transpose()?;
+        Ok(QuantileSketchState {
+            epsilon,
+            k,
+            sketch: load_sketch(r)?,
+        })
     }
 }
 
 // ---------------------------------------------------------------------------------------
 // sketch_merge(s)
 
-/// `sketch_merge(s)`.
-pub struct SketchMerge;
+/// State of `sketch_merge`: the merge so far.
+#[derive(Debug, Default)]
+pub struct SketchMergeState {
+    acc: Option<QuantileSketch>,
+}
 
-impl Aggregate<Option<QuantileSketch>, Value> for SketchMerge {
-    fn init(&self, _: &mut Context<'_>) -> Result<Option<QuantileSketch>> {
-        Ok(None)
-    }
+impl State for SketchMergeState {
+    const NAME: &'static str = "sketch_merge";
 
-    fn step(&self, ctx: &mut Context<'_>, acc: &mut Option<QuantileSketch>) -> Result<()> {
-        const NAME: &str = "sketch_merge";
-        let Some(s) = sketch_arg(NAME, ctx, 0)? else {
+    fn step(&mut self, args: &Args<'_>) -> Result<()> {
+        let row = [args.get(0)];
+        let mut memo = NoMemo;
+        let Some(s) = Call::new(Self::NAME, &row, &mut memo).sketch(0)? else {
             return Ok(());
         };
-        match acc {
-            Some(a) => a.merge(&s).map_err(|e| fail(NAME, e)),
-            None => {
-                *acc = Some(s);
-                Ok(())
-            }
-        }
+        merge_into(&mut self.acc, Some((*s).clone())).map_err(|e| fail(Self::NAME, e))
     }
 
-    fn finalize(&self, _: &mut Context<'_>, acc: Option<Option<QuantileSketch>>) -> Result<Value> {
-        Ok(blob_value(acc.flatten().as_ref()))
+    fn merge(&mut self, other: Self) -> Result<()> {
+        merge_into(&mut self.acc, other.acc).map_err(|e| fail(Self::NAME, e))
+    }
+
+    fn finalize(&mut self) -> Result<Out> {
+        Ok(blob_value(self.acc.as_ref()))
+    }
+
+    fn save(&self, w: &mut Writer) {
+        save_sketch(w, self.acc.as_ref());
+    }
+
+    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        Ok(SketchMergeState {
+            acc: load_sketch(r)?,
+        })
     }
 }
 
 // ---------------------------------------------------------------------------------------
 // sketch_quantile(s, p), sketch_cdf(s, t)
 
-fn sketch_quantile(ctx: &Context<'_>) -> Result<Value> {
-    const NAME: &str = "sketch_quantile";
-    let p = number(ctx.get_raw(1), "p").map_err(|e| fail(NAME, e))?;
+fn sketch_quantile(call: &mut Call<'_>) -> Result<Out> {
+    let p = call.number(1, "p")?;
     if let Some(p) = p {
-        check_probability(p).map_err(|e| fail(NAME, e))?;
+        check_probability(p).map_err(|e| call.fail(e))?;
     }
-    let (Some(s), Some(p)) = (sketch_arg(NAME, ctx, 0)?, p) else {
-        return Ok(Value::Null);
+    let (Some(s), Some(p)) = (call.sketch(0)?, p) else {
+        return Ok(Out::Null);
     };
-    let q = s.quantile(p).map_err(|e| fail(NAME, e))?;
-    Ok(q.map_or(Value::Null, Value::Real))
+    let q = s.quantile(p).map_err(|e| call.fail(e))?;
+    Ok(Out::real(q))
 }
 
-fn sketch_cdf(ctx: &Context<'_>) -> Result<Value> {
-    const NAME: &str = "sketch_cdf";
-    let t = number(ctx.get_raw(1), "t").map_err(|e| fail(NAME, e))?;
-    let (Some(s), Some(t)) = (sketch_arg(NAME, ctx, 0)?, t) else {
-        return Ok(Value::Null);
+fn sketch_cdf(call: &mut Call<'_>) -> Result<Out> {
+    let t = call.number(1, "t")?;
+    let (Some(s), Some(t)) = (call.sketch(0)?, t) else {
+        return Ok(Out::Null);
     };
-    Ok(s.cdf(t).map_or(Value::Null, Value::Real))
+    Ok(Out::real(s.cdf(t)))
 }

@@ -2,9 +2,9 @@
 //!
 //! A table-valued function such as `dist_steps(d)` is a virtual table whose arguments are
 //! hidden columns: SQLite turns `FROM dist_steps(s.d)` into the constraint `d = s.d` and
-//! offers it to [`VTab::best_index`]. Each function implements [`TableFunction`] (its
-//! schema, its arguments and how to compute its rows from them) and the generic
-//! [`Table`] and [`Cursor`] here do the rest:
+//! offers it to [`VTab::best_index`]. The registry row gives the name, the output columns
+//! and the arguments ([`TableImp`]), from which the schema is written, and the rows; the
+//! one [`Table`] and [`Cursor`] here do the rest:
 //!
 //! - `best_index` takes equality constraints on the argument columns, in argument order,
 //!   and reports a plan unusable (`SQLITE_CONSTRAINT`) while an argument's value is not yet
@@ -15,37 +15,47 @@
 //!   virtual-table methods, and a panic unwinding into SQLite would abort the host.
 
 use std::borrow::Cow;
-use std::ffi::{CStr, c_int};
+use std::ffi::{CStr, CString, c_int};
 use std::marker::PhantomData;
 use std::panic::{AssertUnwindSafe, catch_unwind};
 
 use rusqlite::types::{FromSql, Value, ValueRef};
 use rusqlite::vtab::{
-    Context, Filters, IndexConstraintOp, IndexInfo, VTab, VTabConfig, VTabConnection, VTabCursor,
+    Context, Filters, IndexConstraintOp, IndexInfo, Module, VTab, VTabConfig, VTabConnection,
+    VTabCursor,
 };
-use rusqlite::{Result, ffi};
+use rusqlite::{Connection, Result, ffi};
 
-use super::args::{ArgError, fail};
+use super::{arg, to_sqlite, value};
+use crate::catalogue::args::{ArgError, fail};
+use crate::catalogue::reader::{Call, NoMemo};
+use crate::catalogue::{FunctionDef, Imp, TableImp};
 
-/// One table-valued function: its name, columns, arguments and rows.
-pub(crate) trait TableFunction: 'static {
-    /// The SQL name.
-    const NAME: &'static str;
-    /// The declared schema: the output columns, then one HIDDEN column per argument.
-    const SCHEMA: &'static CStr;
-    /// The number of output columns (before the hidden ones).
-    const COLUMNS: usize;
-    /// The argument names, in call order.
-    const ARGS: &'static [&'static str];
-    /// How many leading arguments must be given.
-    const REQUIRED: usize;
-    /// The call shape, for the error when arguments are missing.
-    const SIGNATURE: &'static str;
+/// Registers a table-function registry row as an eponymous virtual table.
+pub(crate) fn install(conn: &Connection, def: &'static FunctionDef) -> Result<()> {
+    const M: Module<'static, Table> = Module::eponymous_only_module();
+    conn.create_module(def.name, &M, Some(def))
+}
 
-    /// The rows, `COLUMNS` values each, flattened. `args` holds one entry per argument:
-    /// `None` for an optional argument not given; never SQL NULL (that gives no rows
-    /// before this is called).
-    fn rows(args: &[Option<ValueRef<'_>>]) -> Result<Vec<Value>>;
+/// The table function's part of its row.
+fn imp(def: &FunctionDef) -> Result<TableImp> {
+    match def.imp {
+        Imp::Table(t) => Ok(t),
+        _ => Err(to_sqlite(fail(
+            def.name,
+            ArgError::Internal("not a table function".into()),
+        ))),
+    }
+}
+
+/// The declared schema: the output columns, then one HIDDEN column per argument.
+pub(crate) fn schema(t: &TableImp) -> String {
+    let columns = t
+        .columns
+        .iter()
+        .map(|(name, ty)| format!("{name} {ty}").trim_end().to_string())
+        .chain(t.args.iter().map(|a| format!("{a} HIDDEN")));
+    format!("CREATE TABLE x({})", columns.collect::<Vec<_>>().join(", "))
 }
 
 /// Runs a virtual-table method body, turning a panic into an error that names the
@@ -59,55 +69,64 @@ pub(crate) fn guard<T>(name: &'static str, body: impl FnOnce() -> Result<T>) -> 
                 .map(|s| s.to_string())
                 .or_else(|| panic.downcast_ref::<String>().cloned())
                 .unwrap_or_else(|| "a panic".to_string());
-            Err(fail(name, ArgError::Internal(what)))
+            Err(to_sqlite(fail(name, ArgError::Internal(what))))
         }
     }
 }
 
-/// The virtual table of a [`TableFunction`].
+/// The virtual table of a table function.
 #[repr(C)]
-pub(crate) struct Table<F: TableFunction> {
+pub(crate) struct Table {
     /// SQLite's part; must come first.
     base: ffi::sqlite3_vtab,
-    function: PhantomData<F>,
+    def: &'static FunctionDef,
 }
 
 /// The most arguments a table-valued function may take (bits of the plan number).
 const MAX_ARGS: usize = 8;
 
-unsafe impl<'vtab, F: TableFunction> VTab<'vtab> for Table<F> {
-    type Aux = ();
-    type Cursor = Cursor<'vtab, F>;
+unsafe impl<'vtab> VTab<'vtab> for Table {
+    type Aux = &'static FunctionDef;
+    type Cursor = Cursor<'vtab>;
 
     fn connect(
         db: &mut VTabConnection,
-        _aux: Option<&()>,
+        aux: Option<&&'static FunctionDef>,
         _module_name: &[u8],
         _database_name: &[u8],
         _table_name: &[u8],
         _args: &[&[u8]],
     ) -> Result<(Cow<'static, CStr>, Self)> {
-        guard(F::NAME, || {
+        let Some(&def) = aux else {
+            return Err(rusqlite::Error::ModuleError(
+                "ogive: a table function without its registry row".into(),
+            ));
+        };
+        guard(def.name, || {
             db.config(VTabConfig::Innocuous)?;
+            let sql = CString::new(schema(&imp(def)?))?;
             Ok((
-                Cow::Borrowed(F::SCHEMA),
+                Cow::Owned(sql),
                 Table {
                     base: ffi::sqlite3_vtab::default(),
-                    function: PhantomData,
+                    def,
                 },
             ))
         })
     }
 
     fn best_index(&self, info: &mut IndexInfo) -> Result<bool> {
-        guard(F::NAME, || {
-            let nargs = F::ARGS.len().min(MAX_ARGS);
+        let def = self.def;
+        guard(def.name, || {
+            let t = imp(def)?;
+            let columns = t.columns.len();
+            let nargs = t.args.len().min(MAX_ARGS);
             let mut given = [None; MAX_ARGS];
             let mut unusable = 0u32;
             for (i, c) in info.constraints().enumerate() {
                 let Some(j) = usize::try_from(c.column())
                     .ok()
-                    .and_then(|col| col.checked_sub(F::COLUMNS))
+                    .and_then(|col| col.checked_sub(columns))
                     .filter(|&j| j < nargs)
                 else {
                     continue;
@@ -135,7 +154,7 @@ unsafe impl<'vtab, F: TableFunction> VTab<'vtab> for Table<F> {
                 return Ok(false);
             }
             info.set_idx_num(mask as c_int);
-            let required = (1u32 << F::REQUIRED) - 1;
+            let required = (1u32 << def.required().min(MAX_ARGS)) - 1;
             if mask & required == required {
                 info.set_estimated_cost(10.0);
                 info.set_estimated_rows(100);
@@ -147,10 +166,13 @@ unsafe impl<'vtab, F: TableFunction> VTab<'vtab> for Table<F> {
         })
     }
 
-    fn open(&'vtab mut self) -> Result<Cursor<'vtab, F>> {
-        guard(F::NAME, || {
+    fn open(&'vtab mut self) -> Result<Cursor<'vtab>> {
+        let def = self.def;
+        guard(def.name, || {
             Ok(Cursor {
                 base: ffi::sqlite3_vtab_cursor::default(),
+                def,
+                columns: imp(def)?.columns.len(),
                 rows: Vec::new(),
                 args: Vec::new(),
                 at: 0,
@@ -162,29 +184,34 @@ unsafe impl<'vtab, F: TableFunction> VTab<'vtab> for Table<F> {
 
 /// A scan of a table-valued function: its rows, computed by `filter`.
 #[repr(C)]
-pub(crate) struct Cursor<'vtab, F: TableFunction> {
+pub(crate) struct Cursor<'vtab> {
     /// SQLite's part; must come first.
     base: ffi::sqlite3_vtab_cursor,
-    /// The rows, `F::COLUMNS` values each.
+    def: &'static FunctionDef,
+    /// The number of output columns.
+    columns: usize,
+    /// The rows, `columns` values each.
     rows: Vec<Value>,
     /// The argument values, for reads of the hidden columns.
     args: Vec<Value>,
     /// The current row.
     at: usize,
-    table: PhantomData<&'vtab Table<F>>,
+    table: PhantomData<&'vtab Table>,
 }
 
-impl<F: TableFunction> Cursor<'_, F> {
+impl Cursor<'_> {
     fn row_count(&self) -> usize {
-        self.rows.len() / F::COLUMNS.max(1)
+        self.rows.len() / self.columns.max(1)
     }
 }
 
-unsafe impl<F: TableFunction> VTabCursor for Cursor<'_, F> {
+unsafe impl VTabCursor for Cursor<'_> {
     fn filter(&mut self, idx_num: c_int, _idx_str: Option<&str>, args: &Filters<'_>) -> Result<()> {
-        guard(F::NAME, || {
+        let def = self.def;
+        guard(def.name, || {
+            let t = imp(def)?;
             let mut values = args.iter();
-            let given: Vec<Option<ValueRef<'_>>> = (0..F::ARGS.len())
+            let given: Vec<Option<ValueRef<'_>>> = (0..t.args.len())
                 .map(|j| {
                     if j < MAX_ARGS && idx_num & (1 << j) != 0 {
                         values.next()
@@ -202,81 +229,95 @@ unsafe impl<F: TableFunction> VTabCursor for Cursor<'_, F> {
                 })
                 .collect();
             self.rows = Vec::new();
-            if given.iter().take(F::REQUIRED).any(Option::is_none) {
-                return Err(fail(
-                    F::NAME,
+            if given.iter().take(def.required()).any(Option::is_none) {
+                return Err(to_sqlite(fail(
+                    def.name,
                     ArgError::Missing {
-                        signature: F::SIGNATURE,
+                        signature: def.signature,
                     },
-                ));
+                )));
             }
             if given.iter().flatten().any(|v| matches!(v, ValueRef::Null)) {
                 return Ok(());
             }
-            self.rows = F::rows(&given)?;
+            // The arguments given, in order, up to the first one not given.
+            let call_args: Vec<_> = given.iter().map_while(|v| v.map(arg)).collect();
+            let mut memo = NoMemo;
+            let mut call = Call::new(def.name, &call_args, &mut memo);
+            self.rows = (t.rows)(&mut call)
+                .map_err(to_sqlite)?
+                .into_iter()
+                .map(value)
+                .collect();
             Ok(())
         })
     }
 
     fn next(&mut self) -> Result<()> {
-        guard(F::NAME, || {
+        guard(self.def.name, || {
             self.at += 1;
             Ok(())
         })
     }
 
     fn eof(&self) -> bool {
-        guard(F::NAME, || Ok(self.at >= self.row_count())).unwrap_or(true)
+        guard(self.def.name, || Ok(self.at >= self.row_count())).unwrap_or(true)
     }
 
     fn column(&self, ctx: &mut Context, i: c_int) -> Result<()> {
-        guard(F::NAME, || {
+        guard(self.def.name, || {
             let i = usize::try_from(i).unwrap_or(usize::MAX);
-            let value = if i < F::COLUMNS {
-                self.rows.get(self.at * F::COLUMNS + i)
+            let value = if i < self.columns {
+                self.rows.get(self.at * self.columns + i)
             } else {
-                self.args.get(i - F::COLUMNS)
+                self.args.get(i - self.columns)
             };
             ctx.set_result(value.unwrap_or(&Value::Null))
         })
     }
 
     fn rowid(&self) -> Result<i64> {
-        guard(F::NAME, || Ok(self.at as i64 + 1))
+        guard(self.def.name, || Ok(self.at as i64 + 1))
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
-    use rusqlite::Connection;
-    use rusqlite::vtab::Module;
+    use crate::catalogue::Kind;
+    use crate::catalogue::args::FunctionError;
+    use crate::catalogue::value::Out;
 
     /// A table function that panics while computing its rows, to show the panic stays
     /// inside ogive.
-    struct Panics;
-
-    impl TableFunction for Panics {
-        const NAME: &'static str = "panics";
-        const SCHEMA: &'static CStr = c"CREATE TABLE x(v, a HIDDEN)";
-        const COLUMNS: usize = 1;
-        const ARGS: &'static [&'static str] = &["a"];
-        const REQUIRED: usize = 1;
-        const SIGNATURE: &'static str = "panics(a)";
-        fn rows(args: &[Option<ValueRef<'_>>]) -> Result<Vec<Value>> {
-            let n = args[0].map_or(0, |v| v.as_i64().unwrap_or(0));
-            if n > 2 {
-                panic!("row {n} is too many");
-            }
-            Ok((0..n).map(Value::Integer).collect())
+    fn panicking_rows(call: &mut Call<'_>) -> std::result::Result<Vec<Out>, FunctionError> {
+        let n = call.whole(0, "a")?.unwrap_or(0);
+        if n > 2 {
+            panic!("row {n} is too many");
         }
+        Ok((0..n).map(Out::Integer).collect())
     }
+
+    static PANICS: FunctionDef = FunctionDef {
+        name: "panics",
+        kind: Kind::Table,
+        arities: &[1],
+        signature: "panics(a)",
+        summary: "test",
+        help: "test",
+        example: "",
+        example_result: "",
+        imp: Imp::Table(TableImp {
+            columns: &[("v", "")],
+            args: &["a"],
+            rows: panicking_rows,
+        }),
+    };
 
     #[test]
     fn panics_become_errors_that_name_the_function() {
         let conn = Connection::open_in_memory().unwrap();
-        const M: Module<Table<Panics>> = Module::eponymous_only_module();
-        conn.create_module(c"panics", &M, None).unwrap();
+        install(&conn, &PANICS).unwrap();
         let count: i64 = conn
             .query_row("SELECT count(*) FROM panics(2)", [], |r| r.get(0))
             .unwrap();
@@ -297,6 +338,12 @@ mod tests {
             .query_row("SELECT count(*) FROM panics(NULL)", [], |r| r.get(0))
             .unwrap();
         assert_eq!(count, 0);
+    }
+
+    #[test]
+    fn schemas_come_from_the_row() {
+        let Imp::Table(t) = PANICS.imp else { panic!() };
+        assert_eq!(schema(&t), "CREATE TABLE x(v, a HIDDEN)");
     }
 
     #[test]

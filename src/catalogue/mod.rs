@@ -1,0 +1,154 @@
+//! The catalogue: every SQL function of ogive, engine-neutral, and the registry that
+//! drives every engine.
+//!
+//! [`REGISTRY`] has one row per SQL function (kept beside its entry, one slice per module):
+//! its name, kind, arities, signature, one-line summary, longer help, an example with its
+//! expected result, and its implementation ([`Imp`]): a scalar body, an aggregate state
+//! ([`state::State`]: step, merge, finalize, and for window functions inverse and value),
+//! or a table function's columns and rows. Arguments arrive as ogive's own
+//! [`value::Arg`] and results leave as [`value::Out`]; error texts are built here, once
+//! ([`args`]). The same rows drive the SQLite adapter ([`crate::sqlite`]), the shell's
+//! `functions` verb and the README's function table ([`markdown_table`]); tests fail when
+//! any of them drift apart, and every example is run and its result checked.
+//!
+//! Nothing here knows an engine: a new SQL function is one row and its kernel.
+
+pub mod args;
+pub mod column;
+pub mod compare;
+pub mod dist;
+pub mod models;
+pub mod reader;
+pub mod sketch;
+pub mod state;
+pub mod value;
+
+use args::FunctionError;
+use reader::Call;
+use state::AggregateImp;
+use value::Out;
+
+/// How a function is used in SQL.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Kind {
+    /// One value per row.
+    Scalar,
+    /// One value per group.
+    Aggregate,
+    /// One value per group, and usable with `OVER (...)`.
+    Window,
+    /// A table-valued function, used in `FROM`.
+    Table,
+}
+
+impl Kind {
+    /// The word used in listings.
+    pub fn word(self) -> &'static str {
+        match self {
+            Kind::Scalar => "scalar",
+            Kind::Aggregate => "aggregate",
+            Kind::Window => "window",
+            Kind::Table => "table",
+        }
+    }
+}
+
+/// One SQL function: everything the extension, the shell and the docs say about it.
+pub struct FunctionDef {
+    /// The SQL name.
+    pub name: &'static str,
+    /// How it is used.
+    pub kind: Kind,
+    /// The argument counts it accepts.
+    pub arities: &'static [i32],
+    /// The call shape, with optional arguments in brackets.
+    pub signature: &'static str,
+    /// One line: what it returns.
+    pub summary: &'static str,
+    /// Longer help: arguments, NULL handling, errors.
+    pub help: &'static str,
+    /// A self-contained SQL query that uses it.
+    pub example: &'static str,
+    /// The example's result, as the shell prints a single value.
+    pub example_result: &'static str,
+    /// What runs.
+    pub imp: Imp,
+}
+
+/// The body of a scalar function.
+pub type ScalarFn = fn(&mut Call<'_>) -> Result<Out, FunctionError>;
+
+/// A table-valued function: its output columns, its arguments, and its rows.
+#[derive(Clone, Copy)]
+pub struct TableImp {
+    /// The output columns: name and declared SQL type.
+    pub columns: &'static [(&'static str, &'static str)],
+    /// The argument names, in call order; the row's least arity says how many are
+    /// required.
+    pub args: &'static [&'static str],
+    /// The rows, `columns.len()` values each, flattened. The call holds the arguments
+    /// given, in order (none is NULL: a NULL argument gives no rows before this runs).
+    pub rows: fn(&mut Call<'_>) -> Result<Vec<Out>, FunctionError>,
+}
+
+/// How a function is implemented.
+#[derive(Clone, Copy)]
+pub enum Imp {
+    /// A scalar function.
+    Scalar(ScalarFn),
+    /// An aggregate (or window) function's state.
+    Aggregate(AggregateImp),
+    /// A table-valued function.
+    Table(TableImp),
+}
+
+impl FunctionDef {
+    /// How many arguments a table function requires (its least arity).
+    pub fn required(&self) -> usize {
+        self.arities
+            .iter()
+            .min()
+            .and_then(|&n| usize::try_from(n).ok())
+            .unwrap_or(0)
+    }
+}
+
+/// The registry: one slice of rows per adapter module, in the order the README lists
+/// them. A new module adds its `FUNCTIONS` here.
+pub static REGISTRY: &[&[FunctionDef]] = &[
+    column::FUNCTIONS,
+    dist::FUNCTIONS,
+    compare::FUNCTIONS,
+    models::FUNCTIONS,
+    sketch::FUNCTIONS,
+];
+
+/// Every registry row, in listing order.
+pub fn all() -> impl Iterator<Item = &'static FunctionDef> {
+    REGISTRY.iter().flat_map(|group| group.iter())
+}
+
+/// The registry row for a name, if ogive has such a function.
+pub fn find(name: &str) -> Option<&'static FunctionDef> {
+    all().find(|d| d.name.eq_ignore_ascii_case(name))
+}
+
+/// The README's function table, generated from the registry.
+pub fn markdown_table() -> String {
+    let mut out = String::from("| function | kind | result |\n|---|---|---|\n");
+    for d in all() {
+        out.push_str(&format!(
+            "| `{}` | {} | {} |\n",
+            d.signature,
+            d.kind.word(),
+            d.summary.replace('|', "\\|")
+        ));
+    }
+    out
+}
+
+/// Shows one SQL value as the shell and the registry examples print it (see
+/// [`Out::render`]).
+pub fn render_value(v: &Out) -> String {
+    v.render()
+}

@@ -1,0 +1,591 @@
+//! Aggregate states, engine-neutral: what one group (or one window frame, or one
+//! partition's share of a group) keeps between rows.
+//!
+//! Every aggregate of the registry has a [`State`]: `step` adds a row, `merge` combines the
+//! state of another part of the same group (so an engine may split a group across
+//! partitions or machines and combine the parts in any order), `finalize` gives the
+//! answer, and window functions add `inverse` (a row leaves the frame) and `value` (the
+//! answer for the current frame). `save` and `load` give the state's serialised form, for
+//! an engine that ships partial states between processes; its layout is in
+//! docs/state-format.md and begins with a magic, a version and the function's name, so a
+//! state is never read as another function's.
+//!
+//! Engines hold states as [`Aggregator`] trait objects, made by the registry row's
+//! [`AggregateImp`].
+
+use std::any::Any;
+
+use super::args::{ArgError, Constant, FunctionError, fail};
+use super::value::{Arg, Out};
+use crate::stats::ecdf::EcdfCounter;
+
+/// The arguments of one row.
+#[derive(Debug, Clone, Copy)]
+pub struct Args<'a> {
+    values: &'a [Arg<'a>],
+}
+
+impl<'a> Args<'a> {
+    /// Wraps a row's arguments.
+    pub fn new(values: &'a [Arg<'a>]) -> Self {
+        Args { values }
+    }
+
+    /// How many arguments the call has.
+    #[inline]
+    pub fn len(&self) -> usize {
+        self.values.len()
+    }
+
+    /// Whether the call has no arguments.
+    pub fn is_empty(&self) -> bool {
+        self.values.is_empty()
+    }
+
+    /// Argument `i`; a missing argument reads as NULL.
+    #[inline]
+    pub fn get(&self, i: usize) -> Arg<'a> {
+        self.values.get(i).copied().unwrap_or(Arg::Null)
+    }
+
+    /// Argument `i` if the call has it.
+    #[inline]
+    pub fn optional(&self, i: usize) -> Option<Arg<'a>> {
+        self.values.get(i).copied()
+    }
+}
+
+/// The typed state of one aggregate. `NAME` is the SQL name, used in errors and in the
+/// saved form.
+pub trait State: Default + Send + 'static {
+    /// The SQL name.
+    const NAME: &'static str;
+
+    /// Adds a row.
+    ///
+    /// # Errors
+    /// The function's argument errors.
+    fn step(&mut self, args: &Args<'_>) -> Result<(), FunctionError>;
+
+    /// Combines the state of another part of the same group.
+    ///
+    /// # Errors
+    /// When the parts disagree on a per-group constant, or memory runs out.
+    fn merge(&mut self, other: Self) -> Result<(), FunctionError>;
+
+    /// The answer for the group.
+    ///
+    /// # Errors
+    /// The function's kernel errors.
+    fn finalize(&mut self) -> Result<Out, FunctionError>;
+
+    /// Removes a row leaving a window frame. Only window functions have it.
+    ///
+    /// # Errors
+    /// An internal error for an aggregate that is not a window function.
+    fn inverse(&mut self, _args: &Args<'_>) -> Result<(), FunctionError> {
+        Err(fail(
+            Self::NAME,
+            ArgError::Internal("not a window function".into()),
+        ))
+    }
+
+    /// The answer for the current frame; the state lives on.
+    ///
+    /// # Errors
+    /// As [`State::finalize`].
+    fn value(&mut self) -> Result<Out, FunctionError> {
+        self.finalize()
+    }
+
+    /// Writes the state's fields (after the header [`Writer::new`] wrote).
+    fn save(&self, w: &mut Writer);
+
+    /// Reads the fields [`State::save`] wrote.
+    ///
+    /// # Errors
+    /// [`ArgError::BadState`] for bytes that are not such a state.
+    fn load(r: &mut Reader<'_>) -> Result<Self, ArgError>;
+
+    /// The per-row fast lane an engine may take, if the state offers one now: see [`Lane`].
+    fn lane(&mut self) -> Option<Lane<'_>> {
+        None
+    }
+}
+
+/// A state's offer to an engine's per-row fast path: once the group's constant argument
+/// (the second) is fixed, a row whose constant is a number (INTEGER or REAL) with the bits
+/// `key`, and whose first argument is a number, needs nothing but adding that number to
+/// `sink`. Every other row goes through [`State::step`] with its full checks, so errors do
+/// not depend on where a row sits in its group.
+pub struct Lane<'a> {
+    /// The bits of the group's constant, as `f64::to_bits`; never those of 0.0 or -0.0.
+    pub key: u64,
+    /// Where the number goes.
+    pub sink: Sink<'a>,
+}
+
+/// What the fast lane adds a number to.
+pub enum Sink<'a> {
+    /// A running count at or below a threshold (`ecdf`).
+    Count(&'a mut EcdfCounter),
+    /// A list of values (`quantile`); pushing must not abort on out-of-memory.
+    Collect(&'a mut Vec<f64>),
+}
+
+/// A state as engines hold it: [`State`] behind a trait object.
+pub trait Aggregator: Send {
+    /// [`State::step`].
+    ///
+    /// # Errors
+    /// As [`State::step`].
+    fn step(&mut self, args: &Args<'_>) -> Result<(), FunctionError>;
+    /// [`State::inverse`].
+    ///
+    /// # Errors
+    /// As [`State::inverse`].
+    fn inverse(&mut self, args: &Args<'_>) -> Result<(), FunctionError>;
+    /// [`State::value`].
+    ///
+    /// # Errors
+    /// As [`State::value`].
+    fn value(&mut self) -> Result<Out, FunctionError>;
+    /// [`State::finalize`].
+    ///
+    /// # Errors
+    /// As [`State::finalize`].
+    fn finalize(&mut self) -> Result<Out, FunctionError>;
+    /// The serialised state.
+    fn save(&self) -> Vec<u8>;
+    /// Merges a state of the same function given in its serialised form.
+    ///
+    /// # Errors
+    /// Bytes that are not this function's state; a failed [`State::merge`].
+    fn merge_saved(&mut self, bytes: &[u8]) -> Result<(), FunctionError>;
+    /// Merges another state of the same function.
+    ///
+    /// # Errors
+    /// A state of another function; a failed [`State::merge`].
+    fn merge_boxed(&mut self, other: Box<dyn Aggregator>) -> Result<(), FunctionError>;
+    /// [`State::lane`].
+    fn lane(&mut self) -> Option<Lane<'_>>;
+    /// For [`Aggregator::merge_boxed`].
+    fn into_any(self: Box<Self>) -> Box<dyn Any>;
+    /// The SQL name of the state's function.
+    fn name(&self) -> &'static str;
+}
+
+impl<S: State> Aggregator for S {
+    #[inline]
+    fn step(&mut self, args: &Args<'_>) -> Result<(), FunctionError> {
+        State::step(self, args)
+    }
+    fn inverse(&mut self, args: &Args<'_>) -> Result<(), FunctionError> {
+        State::inverse(self, args)
+    }
+    fn value(&mut self) -> Result<Out, FunctionError> {
+        State::value(self)
+    }
+    fn finalize(&mut self) -> Result<Out, FunctionError> {
+        State::finalize(self)
+    }
+    fn save(&self) -> Vec<u8> {
+        let mut w = Writer::new(S::NAME);
+        State::save(self, &mut w);
+        w.finish()
+    }
+    fn merge_saved(&mut self, bytes: &[u8]) -> Result<(), FunctionError> {
+        let other = load::<S>(bytes)?;
+        State::merge(self, other)
+    }
+    fn merge_boxed(&mut self, other: Box<dyn Aggregator>) -> Result<(), FunctionError> {
+        match other.into_any().downcast::<S>() {
+            Ok(other) => State::merge(self, *other),
+            Err(_) => Err(fail(
+                S::NAME,
+                ArgError::Internal("merged with a state of another function".into()),
+            )),
+        }
+    }
+    #[inline]
+    fn lane(&mut self) -> Option<Lane<'_>> {
+        State::lane(self)
+    }
+    fn into_any(self: Box<Self>) -> Box<dyn Any> {
+        self
+    }
+    fn name(&self) -> &'static str {
+        S::NAME
+    }
+}
+
+/// Reads a saved state of `S`.
+///
+/// # Errors
+/// [`ArgError::BadState`] for bytes that are not a state of `S`, of this version.
+pub fn load<S: State>(bytes: &[u8]) -> Result<S, FunctionError> {
+    let mut r = Reader::new(bytes, S::NAME).map_err(|e| fail(S::NAME, e))?;
+    let s = S::load(&mut r).map_err(|e| fail(S::NAME, e))?;
+    r.end().map_err(|e| fail(S::NAME, e))?;
+    Ok(s)
+}
+
+/// How an engine makes and restores the states of one aggregate: the registry row's part.
+#[derive(Clone, Copy)]
+pub struct AggregateImp {
+    /// A new, empty state.
+    pub new: fn() -> Box<dyn Aggregator>,
+    /// A state restored from its saved form.
+    pub load: fn(&[u8]) -> Result<Box<dyn Aggregator>, FunctionError>,
+}
+
+impl AggregateImp {
+    /// The implementation of `S`.
+    pub const fn of<S: State>() -> AggregateImp {
+        AggregateImp {
+            new: new_boxed::<S>,
+            load: load_boxed::<S>,
+        }
+    }
+}
+
+fn new_boxed<S: State>() -> Box<dyn Aggregator> {
+    Box::new(S::default())
+}
+
+fn load_boxed<S: State>(bytes: &[u8]) -> Result<Box<dyn Aggregator>, FunctionError> {
+    Ok(Box::new(load::<S>(bytes)?))
+}
+
+// ---------------------------------------------------------------------------------------
+// The saved form
+
+/// The first four bytes of a saved state.
+pub const STATE_MAGIC: [u8; 4] = [0x89, b'O', b'G', b'S'];
+/// The version of the saved form this build writes and reads.
+pub const STATE_VERSION: u8 = 1;
+
+/// Writes a saved state: the header, then fields in the order the state's `save` puts
+/// them, all little-endian.
+#[derive(Debug)]
+pub struct Writer {
+    out: Vec<u8>,
+}
+
+impl Writer {
+    /// A writer with the header for function `name`.
+    pub fn new(name: &str) -> Writer {
+        let mut out = Vec::with_capacity(64);
+        out.extend_from_slice(&STATE_MAGIC);
+        out.push(STATE_VERSION);
+        let mut w = Writer { out };
+        w.bytes(name.as_bytes());
+        w
+    }
+
+    /// A byte.
+    pub fn u8(&mut self, v: u8) {
+        self.out.push(v);
+    }
+
+    /// A `u64`.
+    pub fn u64(&mut self, v: u64) {
+        self.out.extend_from_slice(&v.to_le_bytes());
+    }
+
+    /// An `i64`.
+    pub fn i64(&mut self, v: i64) {
+        self.out.extend_from_slice(&v.to_le_bytes());
+    }
+
+    /// An `f64`, by its bits.
+    pub fn f64(&mut self, v: f64) {
+        self.u64(v.to_bits());
+    }
+
+    /// A length-prefixed byte string.
+    pub fn bytes(&mut self, b: &[u8]) {
+        self.u64(b.len() as u64);
+        self.out.extend_from_slice(b);
+    }
+
+    /// A length-prefixed list of `f64`.
+    pub fn f64s(&mut self, xs: &[f64]) {
+        self.u64(xs.len() as u64);
+        self.out.reserve(xs.len() * 8);
+        for &x in xs {
+            self.f64(x);
+        }
+    }
+
+    /// A flag.
+    pub fn bool(&mut self, b: bool) {
+        self.u8(u8::from(b));
+    }
+
+    /// A per-group constant: 0 unseen, 1 NULL, 2 then the value.
+    pub fn constant<T: Field>(&mut self, c: Option<Option<&T>>) {
+        match c {
+            None => self.u8(0),
+            Some(None) => self.u8(1),
+            Some(Some(v)) => {
+                self.u8(2);
+                v.put(self);
+            }
+        }
+    }
+
+    /// An optional byte string (0 absent, 1 then the bytes).
+    pub fn opt_bytes(&mut self, b: Option<&[u8]>) {
+        match b {
+            None => self.u8(0),
+            Some(b) => {
+                self.u8(1);
+                self.bytes(b);
+            }
+        }
+    }
+
+    /// The saved bytes.
+    pub fn finish(self) -> Vec<u8> {
+        self.out
+    }
+}
+
+/// A value a per-group constant can hold.
+pub trait Field: Sized {
+    /// Writes it.
+    fn put(&self, w: &mut Writer);
+    /// Reads it.
+    ///
+    /// # Errors
+    /// [`ArgError::BadState`] on short or invalid bytes.
+    fn take(r: &mut Reader<'_>) -> Result<Self, ArgError>;
+}
+
+impl Field for f64 {
+    fn put(&self, w: &mut Writer) {
+        w.f64(*self);
+    }
+    fn take(r: &mut Reader<'_>) -> Result<Self, ArgError> {
+        r.f64()
+    }
+}
+
+impl Field for i64 {
+    fn put(&self, w: &mut Writer) {
+        w.i64(*self);
+    }
+    fn take(r: &mut Reader<'_>) -> Result<Self, ArgError> {
+        r.i64()
+    }
+}
+
+impl Field for String {
+    fn put(&self, w: &mut Writer) {
+        w.bytes(self.as_bytes());
+    }
+    fn take(r: &mut Reader<'_>) -> Result<Self, ArgError> {
+        String::from_utf8(r.bytes()?.to_vec()).map_err(|_| bad("text that is not UTF-8"))
+    }
+}
+
+/// The error of a saved state that does not read.
+fn bad(what: &str) -> ArgError {
+    ArgError::BadState(what.to_string())
+}
+
+/// Reads a saved state.
+#[derive(Debug)]
+pub struct Reader<'a> {
+    rest: &'a [u8],
+}
+
+impl<'a> Reader<'a> {
+    /// Checks the header for function `name`.
+    ///
+    /// # Errors
+    /// [`ArgError::BadState`] for another magic, version or function.
+    pub fn new(bytes: &'a [u8], name: &str) -> Result<Reader<'a>, ArgError> {
+        let mut r = Reader { rest: bytes };
+        if r.take(4)? != STATE_MAGIC {
+            return Err(bad("not a saved ogive state"));
+        }
+        let version = r.u8()?;
+        if version != STATE_VERSION {
+            return Err(ArgError::BadState(format!(
+                "a saved state of version {version}; this ogive reads version {STATE_VERSION}"
+            )));
+        }
+        if r.bytes()? != name.as_bytes() {
+            return Err(bad("a saved state of another function"));
+        }
+        Ok(r)
+    }
+
+    fn take(&mut self, n: usize) -> Result<&'a [u8], ArgError> {
+        if self.rest.len() < n {
+            return Err(bad("truncated"));
+        }
+        let (head, tail) = self.rest.split_at(n);
+        self.rest = tail;
+        Ok(head)
+    }
+
+    /// A byte.
+    ///
+    /// # Errors
+    /// [`ArgError::BadState`] when the bytes run out.
+    pub fn u8(&mut self) -> Result<u8, ArgError> {
+        Ok(self.take(1)?[0])
+    }
+
+    /// A `u64`.
+    ///
+    /// # Errors
+    /// As [`Reader::u8`].
+    pub fn u64(&mut self) -> Result<u64, ArgError> {
+        let b = self.take(8)?;
+        let mut a = [0u8; 8];
+        a.copy_from_slice(b);
+        Ok(u64::from_le_bytes(a))
+    }
+
+    /// An `i64`.
+    ///
+    /// # Errors
+    /// As [`Reader::u8`].
+    pub fn i64(&mut self) -> Result<i64, ArgError> {
+        Ok(self.u64()? as i64)
+    }
+
+    /// An `f64`.
+    ///
+    /// # Errors
+    /// As [`Reader::u8`].
+    pub fn f64(&mut self) -> Result<f64, ArgError> {
+        Ok(f64::from_bits(self.u64()?))
+    }
+
+    /// A flag.
+    ///
+    /// # Errors
+    /// As [`Reader::u8`], and for a byte other than 0 or 1.
+    pub fn bool(&mut self) -> Result<bool, ArgError> {
+        match self.u8()? {
+            0 => Ok(false),
+            1 => Ok(true),
+            _ => Err(bad("a flag that is not 0 or 1")),
+        }
+    }
+
+    /// A length-prefixed byte string.
+    ///
+    /// # Errors
+    /// As [`Reader::u8`].
+    pub fn bytes(&mut self) -> Result<&'a [u8], ArgError> {
+        let n = usize::try_from(self.u64()?).map_err(|_| bad("a length beyond memory"))?;
+        self.take(n)
+    }
+
+    /// A length-prefixed list of `f64`, NaN refused.
+    ///
+    /// # Errors
+    /// As [`Reader::u8`]; [`ArgError::OutOfMemory`] when the list does not fit.
+    pub fn f64s(&mut self) -> Result<Vec<f64>, ArgError> {
+        let n = usize::try_from(self.u64()?).map_err(|_| bad("a length beyond memory"))?;
+        let bytes = self.take(
+            n.checked_mul(8)
+                .ok_or_else(|| bad("a length beyond memory"))?,
+        )?;
+        let mut out = Vec::new();
+        out.try_reserve_exact(n)
+            .map_err(|_| ArgError::OutOfMemory { held: 0 })?;
+        for c in bytes.chunks_exact(8) {
+            let mut a = [0u8; 8];
+            a.copy_from_slice(c);
+            let x = f64::from_le_bytes(a);
+            if x.is_nan() {
+                return Err(bad("a NaN value"));
+            }
+            out.push(x);
+        }
+        Ok(out)
+    }
+
+    /// A per-group constant written by [`Writer::constant`].
+    ///
+    /// # Errors
+    /// As [`Reader::u8`], and for an unknown tag.
+    pub fn constant<T: Field>(&mut self) -> Result<Option<Option<T>>, ArgError> {
+        match self.u8()? {
+            0 => Ok(None),
+            1 => Ok(Some(None)),
+            2 => Ok(Some(Some(T::take(self)?))),
+            _ => Err(bad("an unknown constant tag")),
+        }
+    }
+
+    /// A [`Constant`] written by [`Writer::constant`].
+    ///
+    /// # Errors
+    /// As [`Reader::constant`].
+    pub fn constant_of<T: Field + PartialEq + Clone + std::fmt::Debug>(
+        &mut self,
+    ) -> Result<Constant<T>, ArgError> {
+        Ok(Constant::from_raw(self.constant()?))
+    }
+
+    /// An optional byte string written by [`Writer::opt_bytes`].
+    ///
+    /// # Errors
+    /// As [`Reader::u8`], and for an unknown tag.
+    pub fn opt_bytes(&mut self) -> Result<Option<&'a [u8]>, ArgError> {
+        match self.u8()? {
+            0 => Ok(None),
+            1 => Ok(Some(self.bytes()?)),
+            _ => Err(bad("an unknown tag")),
+        }
+    }
+
+    /// Checks that nothing is left.
+    ///
+    /// # Errors
+    /// [`ArgError::BadState`] for trailing bytes.
+    pub fn end(&self) -> Result<(), ArgError> {
+        if self.rest.is_empty() {
+            Ok(())
+        } else {
+            Err(bad("trailing bytes"))
+        }
+    }
+}
+
+/// Appends `x`, asking the allocator instead of aborting: `false` when memory ran out
+/// (the vector is unchanged).
+#[inline(always)]
+pub fn try_push(xs: &mut Vec<f64>, x: f64) -> bool {
+    if xs.len() == xs.capacity() && !grow(xs) {
+        return false;
+    }
+    xs.push(x);
+    true
+}
+
+/// Grows a full vector (amortised doubling); `false` when memory ran out.
+#[cold]
+#[inline(never)]
+fn grow(xs: &mut Vec<f64>) -> bool {
+    xs.try_reserve(1).is_ok()
+}
+
+/// Appends all of `more` to `xs` without aborting on out-of-memory.
+///
+/// # Errors
+/// [`ArgError::OutOfMemory`] when memory ran out.
+pub fn try_extend<T: Copy>(xs: &mut Vec<T>, more: &[T]) -> Result<(), ArgError> {
+    xs.try_reserve(more.len())
+        .map_err(|_| ArgError::OutOfMemory { held: xs.len() })?;
+    xs.extend_from_slice(more);
+    Ok(())
+}

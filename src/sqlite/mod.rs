@@ -1,0 +1,164 @@
+//! The SQLite adapter: installs every registry row on a connection.
+//!
+//! It only converts: SQLite's values to the catalogue's [`Arg`] and back from [`Out`],
+//! catalogue errors to SQLite errors ([`to_sqlite`], the one place), and registry rows to
+//! `create_function` (scalars, with SQLite's auxiliary data as the reader's
+//! per-statement [`Memo`]), `sqlite3_create_window_function` (every aggregate, through
+//! the lean callbacks of [`raw`]) and eponymous virtual tables ([`table`]). The name,
+//! arities and columns of each function come from its row.
+
+pub(crate) mod raw;
+pub(crate) mod table;
+
+#[cfg(feature = "loadable")]
+pub mod extension;
+
+use rusqlite::Connection;
+use rusqlite::functions::{Context, FunctionFlags};
+use rusqlite::types::{Value, ValueRef};
+
+use crate::catalogue::args::FunctionError;
+use crate::catalogue::reader::{Call, Memo, Shared};
+use crate::catalogue::value::{Arg, Out};
+use crate::catalogue::{FunctionDef, Imp, ScalarFn};
+
+/// Installs every ogive SQL function on `conn`.
+///
+/// # Errors
+/// Whatever SQLite reports when creating a function (for example, out of memory).
+///
+/// # Example
+/// ```
+/// let conn = rusqlite::Connection::open_in_memory()?;
+/// ogive::sqlite::register(&conn)?;
+/// let share: f64 = conn.query_row(
+///     "SELECT ecdf(column1, 5) FROM (VALUES (3.5), (4.9), (6.2), (7.0))",
+///     [],
+///     |row| row.get(0),
+/// )?;
+/// assert_eq!(share, 0.5);
+/// # Ok::<(), rusqlite::Error>(())
+/// ```
+pub fn register(conn: &Connection) -> rusqlite::Result<()> {
+    for def in crate::catalogue::all() {
+        install(conn, def)?;
+    }
+    Ok(())
+}
+
+/// Installs one registry row.
+///
+/// # Errors
+/// Whatever SQLite reports when creating the function.
+pub fn install(conn: &Connection, def: &'static FunctionDef) -> rusqlite::Result<()> {
+    match def.imp {
+        Imp::Scalar(f) => {
+            for &n in def.arities {
+                conn.create_scalar_function(def.name, n, flags(), move |ctx| {
+                    scalar(def.name, f, ctx)
+                })?;
+            }
+            Ok(())
+        }
+        Imp::Aggregate(_) => raw::aggregate(conn, def),
+        Imp::Table(_) => table::install(conn, def),
+    }
+}
+
+/// The flags every ogive function carries: UTF-8, deterministic, harmless in triggers
+/// and views.
+pub(crate) fn flags() -> FunctionFlags {
+    FunctionFlags::SQLITE_UTF8
+        | FunctionFlags::SQLITE_DETERMINISTIC
+        | FunctionFlags::SQLITE_INNOCUOUS
+}
+
+/// A SQLite value as the catalogue's argument.
+#[inline(always)]
+pub fn arg(v: ValueRef<'_>) -> Arg<'_> {
+    match v {
+        ValueRef::Null => Arg::Null,
+        ValueRef::Integer(i) => Arg::Integer(i),
+        ValueRef::Real(r) => Arg::Real(r),
+        ValueRef::Text(t) => Arg::Text(t),
+        ValueRef::Blob(b) => Arg::Blob(b),
+    }
+}
+
+/// A catalogue result as a SQLite value.
+pub(crate) fn value(o: Out) -> Value {
+    match o {
+        Out::Null => Value::Null,
+        Out::Integer(i) => Value::Integer(i),
+        Out::Real(r) => Value::Real(r),
+        Out::Text(t) => Value::Text(t),
+        Out::Blob(b) => Value::Blob(b),
+    }
+}
+
+/// Shows a SQLite value as the shell and the registry examples print it (see
+/// [`Out::render`]).
+///
+/// # Example
+/// ```
+/// use ogive::rusqlite::types::Value;
+/// assert_eq!(ogive::sqlite::render(&Value::Real(2.0)), "2.0");
+/// ```
+pub fn render(v: &Value) -> String {
+    let out = match v {
+        Value::Null => Out::Null,
+        Value::Integer(i) => Out::Integer(*i),
+        Value::Real(r) => Out::Real(*r),
+        Value::Text(t) => Out::Text(t.clone()),
+        Value::Blob(b) => Out::Blob(b.clone()),
+    };
+    out.render()
+}
+
+/// The one helper that turns a catalogue error into the error SQLite reports.
+pub fn to_sqlite(e: FunctionError) -> rusqlite::Error {
+    rusqlite::Error::UserFunctionError(Box::new(e))
+}
+
+/// SQLite's auxiliary data as the reader's per-statement memory: SQLite keeps it for an
+/// argument that is constant in the statement, and drops it otherwise.
+struct AuxMemo<'c, 'a> {
+    ctx: &'c Context<'a>,
+}
+
+/// What is stored as auxiliary data.
+struct Held(Shared);
+
+impl Memo for AuxMemo<'_, '_> {
+    fn recall(&self, i: usize) -> Option<Shared> {
+        let i = std::ffi::c_int::try_from(i).ok()?;
+        self.ctx
+            .get_aux::<Held>(i)
+            .ok()
+            .flatten()
+            .map(|h| h.0.clone())
+    }
+
+    fn remember(&mut self, i: usize, value: Shared) {
+        if let Ok(i) = std::ffi::c_int::try_from(i) {
+            // Only an optimisation: a failure to keep it costs a decode on the next row.
+            let _ = self.ctx.set_aux(i, Held(value));
+        }
+    }
+}
+
+/// The most arguments an ogive function takes.
+pub const MAX_ARGS: usize = 8;
+
+/// Runs a scalar body on a SQLite call.
+fn scalar(name: &'static str, f: ScalarFn, ctx: &Context<'_>) -> rusqlite::Result<Value> {
+    // Every ogive function takes at most MAX_ARGS arguments (the registry test checks it).
+    let mut args = [Arg::Null; MAX_ARGS];
+    let n = ctx.len().min(MAX_ARGS);
+    for (i, slot) in args.iter_mut().enumerate().take(n) {
+        *slot = arg(ctx.get_raw(i));
+    }
+    let mut memo = AuxMemo { ctx };
+    let mut call = Call::new(name, &args[..n], &mut memo);
+    f(&mut call).map(value).map_err(to_sqlite)
+}
