@@ -201,7 +201,7 @@ def test_nulls_and_empty_groups(conn):
          "of a normal model are family, "
          "mean, sd, n, loglik, aic, bic"),
         ("SELECT * FROM dist_components('{\"family\": \"normal_mixture\", \"components\": []}')",
-         "dist_components: model field \"components\" must be an array of 1 to 16 objects"),
+         "dist_components: argument 1 is not a valid model: model field \"components\" must be an array of 1 to 16 objects"),
         ("SELECT * FROM dist_components", "dist_components: give the arguments, as in dist_components(model)"),
     ],
 )
