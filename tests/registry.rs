@@ -125,3 +125,62 @@ fn readme_table_matches_registry() {
         }
     }
 }
+
+/// Table functions are checked like the others: each row's arities, argument names and
+/// columns are what SQLite sees (hidden argument columns after the output columns), and
+/// every aggregate state carries its row's name.
+#[test]
+fn table_functions_and_states_follow_their_rows() {
+    use ogive::catalogue::Imp;
+    let conn = Connection::open_in_memory().unwrap();
+    ogive::register(&conn).unwrap();
+    for d in functions::all() {
+        assert!(
+            d.arities
+                .iter()
+                .all(|&n| (0..=ogive::sqlite::MAX_ARGS as i32).contains(&n)),
+            "{}: too many arguments",
+            d.name
+        );
+        match d.imp {
+            Imp::Table(t) => {
+                assert_eq!(d.kind, Kind::Table, "{}", d.name);
+                let mut stmt = conn
+                    .prepare(&format!(
+                        "SELECT name, hidden FROM pragma_table_xinfo('{}')",
+                        d.name
+                    ))
+                    .unwrap();
+                let cols: Vec<(String, i64)> = stmt
+                    .query_map([], |r| Ok((r.get(0)?, r.get(1)?)))
+                    .unwrap()
+                    .map(Result::unwrap)
+                    .collect();
+                let want: Vec<(String, i64)> = t
+                    .columns
+                    .iter()
+                    .map(|(c, _)| (c.to_string(), 0))
+                    .chain(t.args.iter().map(|a| (a.to_string(), 1)))
+                    .collect();
+                assert_eq!(cols, want, "{}", d.name);
+                let most = *d.arities.iter().max().unwrap() as usize;
+                assert_eq!(most, t.args.len(), "{}: arities and arguments", d.name);
+                assert!(
+                    d.signature
+                        .starts_with(&format!("{}({}", d.name, t.args[0])),
+                    "{}",
+                    d.name
+                );
+            }
+            Imp::Aggregate(a) => {
+                assert!(
+                    matches!(d.kind, Kind::Aggregate | Kind::Window),
+                    "{}",
+                    d.name
+                );
+                assert_eq!((a.new)().name(), d.name, "state name of {}", d.name);
+            }
+            Imp::Scalar(_) => assert_eq!(d.kind, Kind::Scalar, "{}", d.name),
+        }
+    }
+}

@@ -232,3 +232,20 @@ def test_lean_path_counts_what_the_full_path_counts(conn):
         "SELECT ecdf(column1, column2) FROM (VALUES (1.0, 0), (2.0, 0.0), (3.0, NULL))",
         "ecdf: t must be the same on every row of a group, got 0.0 and then NULL",
     )
+
+
+@pytest.mark.parametrize("where", ["first", "middle", "last"])
+@pytest.mark.parametrize(
+    "function, constant, message",
+    [
+        ("quantile", "p", "quantile: p must be a number (INTEGER or REAL), got TEXT '0.5abc'"),
+        ("ecdf", "t", "ecdf: t must be a number (INTEGER or REAL), got TEXT '0.5abc'"),
+    ],
+)
+def test_a_text_constant_is_refused_wherever_it_sits(conn, where, function, constant, message):
+    # SQLite reads TEXT '0.5abc' as the double 0.5 (its prefix), the same bits as the
+    # group's constant 0.5; the answer must not depend on where such a row sits.
+    rows = ["(1.0, 0.5)", "(2.0, 0.5)", "(3.0, 0.5)", "(4.0, 0.5)"]
+    at = {"first": 0, "middle": 2, "last": len(rows)}[where]
+    rows.insert(at, "(2.5, '0.5abc')")
+    expect_error(conn, f"SELECT {function}(column1, column2) FROM (VALUES {', '.join(rows)})", message)
