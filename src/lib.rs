@@ -28,6 +28,8 @@
 //! # Ok::<(), rusqlite::Error>(())
 //! ```
 
+#![warn(clippy::undocumented_unsafe_blocks)]
+
 pub mod catalogue;
 pub mod sqlite;
 pub mod stats;

@@ -13,6 +13,8 @@
 //!
 //! Nothing here knows an engine: a new SQL function is one row and its kernel.
 
+#![deny(unsafe_code)]
+
 pub mod args;
 pub mod column;
 pub mod compare;

@@ -979,6 +979,8 @@ impl Data {
     fn em_pass(&self, p: &Params) -> Option<(f64, Params)> {
         #[cfg(target_arch = "x86_64")]
         if std::arch::is_x86_feature_detected!("avx2") {
+            // The one justified `unsafe` of the mathematics: a run-time dispatch.
+            #[allow(unsafe_code)]
             // SAFETY: `em_pass_avx2` requires only AVX2, which this processor has.
             return unsafe { self.em_pass_avx2(p) };
         }
@@ -1266,11 +1268,7 @@ struct SplitMix64(u64);
 
 impl SplitMix64 {
     fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9e37_79b9_7f4a_7c15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-        z ^ (z >> 31)
+        super::rng::splitmix64(&mut self.0)
     }
 
     /// Uniform on `[0, 1)`.
@@ -1443,6 +1441,7 @@ mod tests {
             for k in 1..=5 {
                 let mut p = d.quantile_start(k).unwrap();
                 for _ in 0..5 {
+                    #[allow(unsafe_code)]
                     // SAFETY: AVX2 was detected above.
                     let fast = unsafe { d.em_pass_avx2(&p) }.unwrap();
                     let plain = d.em_pass_portable(&p).unwrap();

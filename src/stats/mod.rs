@@ -41,6 +41,10 @@
 //! like any other number, and a result that is undefined (for example interpolating between
 //! `-inf` and `+inf`) is reported as `None`, which SQL shows as NULL.
 
+// No `unsafe` in the mathematics but the one justified run-time dispatch of
+// `mixture::Data::em_pass` (allowed there, item by item).
+#![deny(unsafe_code)]
+
 pub mod band;
 pub mod ecdf;
 pub mod fit;

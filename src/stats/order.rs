@@ -73,25 +73,7 @@ impl Default for OrderStatistics {
     }
 }
 
-/// SplitMix64 (Steele, Lea and Flood, "Fast splittable pseudorandom number generators",
-/// OOPSLA 2014): one step of the generator, returning the next output. ogive's seeded
-/// randomness (tree priorities, sketch coins, test and benchmark data) all comes from it.
-///
-/// # Example
-/// ```
-/// use ogive::stats::order::splitmix64;
-/// let mut state = 0;
-/// // The first output from state 0 (value from memory of the reference implementation).
-/// assert_eq!(splitmix64(&mut state), 0xE220_A839_7B1D_CDAF);
-/// ```
-#[inline]
-pub fn splitmix64(state: &mut u64) -> u64 {
-    *state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
-    let mut z = *state;
-    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-    z ^ (z >> 31)
-}
+pub use super::rng::splitmix64;
 
 impl OrderStatistics {
     /// An empty multiset.

@@ -542,6 +542,68 @@ pub fn quantile_cumulative(
 
 #[cfg(test)]
 mod tests {
+    /// All nine types at interior p against numpy 2.4.6, so that `cargo test` alone
+    /// catches a swapped type. Expected values from
+    /// `numpy.quantile([3.1, -0.4, 7.25, 2.0, 2.0, 9.5, 0.0, 5.5], p, method=M)` for
+    /// p in (0.1, 0.3, 0.62, 0.8); tolerance 1e-12 (numpy's own arithmetic differs in the
+    /// last bits).
+    #[test]
+    fn nine_types_match_numpy_at_interior_p() {
+        let mut xs = vec![3.1, -0.4, 7.25, 2.0, 2.0, 9.5, 0.0, 5.5];
+        xs.sort_by(f64::total_cmp);
+        let numpy: [(i64, &str, [f64; 4]); 9] = [
+            (1, "inverted_cdf", [-0.4, 2.0, 3.1, 7.25]),
+            (2, "averaged_inverted_cdf", [-0.4, 2.0, 3.1, 7.25]),
+            (3, "closest_observation", [-0.4, 0.0, 3.1, 5.5]),
+            (
+                4,
+                "interpolated_inverted_cdf",
+                [-0.4, 0.7999999999999998, 3.056, 6.200000000000001],
+            ),
+            (
+                5,
+                "hazen",
+                [-0.28, 1.7999999999999998, 4.204, 7.075000000000001],
+            ),
+            (6, "weibull", [-0.4, 1.3999999999999995, 4.492, 7.7]),
+            (
+                7,
+                "linear",
+                [
+                    -0.11999999999999998,
+                    2.0,
+                    3.9159999999999995,
+                    6.550000000000001,
+                ],
+            ),
+            (
+                8,
+                "median_unbiased",
+                [-0.3333333333333333, 1.666666666666666, 4.3, 7.25],
+            ),
+            (
+                9,
+                "normal_unbiased",
+                [
+                    -0.31999999999999995,
+                    1.7000000000000002,
+                    4.276000000000001,
+                    7.206250000000001,
+                ],
+            ),
+        ];
+        for (t, method, want) in numpy {
+            let ty = QuantileType::new(t).unwrap();
+            for (p, w) in [0.1, 0.3, 0.62, 0.8].into_iter().zip(want) {
+                let got = quantile_sorted(&xs, p, ty).unwrap().unwrap();
+                assert!(
+                    (got - w).abs() <= 1e-12,
+                    "type {t} ({method}) at {p}: {got} vs {w}"
+                );
+            }
+        }
+    }
+
     use super::*;
 
     fn all_types() -> impl Iterator<Item = QuantileType> {

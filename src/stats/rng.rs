@@ -1,7 +1,74 @@
-//! A small seeded random number generator for simulations whose results must be repeatable
-//! (Monte Carlo p-values, calibration tests): xoshiro256++ (Blackman and Vigna 2021), seeded
-//! through SplitMix64 (Steele, Lea and Flood 2014), with uniform, standard normal (Marsaglia's
-//! polar method) and standard exponential (inversion) draws.
+//! ogive's one random-number module, for everything whose results must be repeatable:
+//! kernels (Monte Carlo p-values, mixture starts, treap priorities, sketch compaction),
+//! the demo's invented data and the tests.
+//!
+//! - [`splitmix64`]: SplitMix64 (Steele, Lea and Flood 2014), the seeder, and the small
+//!   stream behind treap priorities, the sketch and mixture starts;
+//! - [`Xoshiro256pp`]: xoshiro256++ (Blackman and Vigna 2021), seeded through SplitMix64,
+//!   with uniform, standard normal (Marsaglia's polar method) and standard exponential
+//!   (inversion) draws;
+//! - [`Xoshiro256ss`]: xoshiro256** (Blackman and Vigna 2021), the stream of the demo
+//!   data (kept so that the demo's recorded outputs stay as they are).
+
+/// One step of SplitMix64: advances `state` and returns 64 random bits.
+///
+/// # Example
+/// ```
+/// use ogive::stats::rng::splitmix64;
+/// let mut state = 0;
+/// // The first output from state 0 (value from memory of the reference implementation).
+/// assert_eq!(splitmix64(&mut state), 0xE220_A839_7B1D_CDAF);
+/// ```
+#[inline]
+pub fn splitmix64(state: &mut u64) -> u64 {
+    *state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
+    let mut z = *state;
+    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+    z ^ (z >> 31)
+}
+
+/// The xoshiro256** generator, seeded through SplitMix64.
+///
+/// # Example
+/// ```
+/// use ogive::stats::rng::Xoshiro256ss;
+/// let (mut a, mut b) = (Xoshiro256ss::new(7), Xoshiro256ss::new(7));
+/// assert_eq!(a.next_u64(), b.next_u64());
+/// ```
+#[derive(Debug, Clone)]
+pub struct Xoshiro256ss {
+    s: [u64; 4],
+}
+
+impl Xoshiro256ss {
+    /// A generator whose state is filled from `seed` by SplitMix64.
+    pub fn new(seed: u64) -> Self {
+        let mut z = seed;
+        Xoshiro256ss {
+            s: [
+                splitmix64(&mut z),
+                splitmix64(&mut z),
+                splitmix64(&mut z),
+                splitmix64(&mut z),
+            ],
+        }
+    }
+
+    /// The next 64 random bits.
+    pub fn next_u64(&mut self) -> u64 {
+        let s = &mut self.s;
+        let out = s[1].wrapping_mul(5).rotate_left(7).wrapping_mul(9);
+        let t = s[1] << 17;
+        s[2] ^= s[0];
+        s[3] ^= s[1];
+        s[1] ^= s[2];
+        s[0] ^= s[3];
+        s[2] ^= t;
+        s[3] = s[3].rotate_left(45);
+        out
+    }
+}
 
 /// The xoshiro256++ generator.
 ///
@@ -24,13 +91,7 @@ impl Xoshiro256pp {
     /// A generator whose state is filled from `seed` by SplitMix64.
     pub fn new(seed: u64) -> Self {
         let mut z = seed;
-        let mut next = || {
-            z = z.wrapping_add(0x9e37_79b9_7f4a_7c15);
-            let mut x = z;
-            x = (x ^ (x >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-            x = (x ^ (x >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-            x ^ (x >> 31)
-        };
+        let mut next = || splitmix64(&mut z);
         Xoshiro256pp {
             s: [next(), next(), next(), next()],
             spare_normal: None,

@@ -20,6 +20,8 @@
 //! the quantiles of an empirical distribution that holds an infinite value. An undefined
 //! answer is `None` (SQL NULL), never NaN.
 
+#![deny(unsafe_code)]
+
 pub mod empirical;
 pub mod model;
 pub mod sketch;

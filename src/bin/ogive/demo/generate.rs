@@ -25,46 +25,23 @@ pub const DEGRADING: &str = "TR07";
 /// Day (0-based) on which the degradation starts.
 const DEGRADE_FROM: f64 = 21.0;
 
-/// SplitMix64 (Steele, Lea and Flood 2014), used to seed [`Rng`].
-fn splitmix(state: &mut u64) -> u64 {
-    *state = state.wrapping_add(0x9e37_79b9_7f4a_7c15);
-    let mut z = *state;
-    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-    z ^ (z >> 31)
-}
-
-/// xoshiro256** (Blackman and Vigna 2018): small, fast and good enough for invented data.
+/// The demo's generator: xoshiro256** from ogive's one random-number module, with the
+/// draws the invented data needs.
 pub struct Rng {
-    s: [u64; 4],
+    core: ogive::stats::rng::Xoshiro256ss,
     spare: Option<f64>,
 }
 
 impl Rng {
     pub fn new(seed: u64) -> Rng {
-        let mut st = seed;
         Rng {
-            s: [
-                splitmix(&mut st),
-                splitmix(&mut st),
-                splitmix(&mut st),
-                splitmix(&mut st),
-            ],
+            core: ogive::stats::rng::Xoshiro256ss::new(seed),
             spare: None,
         }
     }
 
     pub fn next_u64(&mut self) -> u64 {
-        let s = &mut self.s;
-        let out = s[1].wrapping_mul(5).rotate_left(7).wrapping_mul(9);
-        let t = s[1] << 17;
-        s[2] ^= s[0];
-        s[3] ^= s[1];
-        s[1] ^= s[2];
-        s[0] ^= s[3];
-        s[2] ^= t;
-        s[3] = s[3].rotate_left(45);
-        out
+        self.core.next_u64()
     }
 
     /// Uniform on [0, 1).

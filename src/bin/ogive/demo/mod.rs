@@ -6,7 +6,7 @@
 
 pub mod generate;
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 use rusqlite::Connection;
 use rusqlite::types::Value;
@@ -107,34 +107,76 @@ pub fn build(conn: &Connection) -> Result<u64, Failure> {
     Ok(n)
 }
 
-/// The demo's SQL files: `./sql` when it exists, else the sql/ directory of the source
-/// tree this binary was built from.
-fn sql_dir() -> PathBuf {
-    let here = PathBuf::from("sql");
-    if here.join("demo").is_dir() {
-        here
-    } else {
-        Path::new(env!("CARGO_MANIFEST_DIR")).join("sql")
-    }
-}
+/// The demo's SQL files, compiled into the binary so that an installed `ogive demo` needs
+/// no source tree: (name, text), in name order within each folder. A test checks that the
+/// list is exactly the `.sql` files under sql/.
+pub const EMBEDDED: &[(&str, &str)] = &[
+    (
+        "sql/demo/01_depot_profiles.sql",
+        include_str!("../../../../sql/demo/01_depot_profiles.sql"),
+    ),
+    (
+        "sql/demo/02_share_above_limit.sql",
+        include_str!("../../../../sql/demo/02_share_above_limit.sql"),
+    ),
+    (
+        "sql/demo/03_route_percentiles.sql",
+        include_str!("../../../../sql/demo/03_route_percentiles.sql"),
+    ),
+    (
+        "sql/demo/04_drift_this_week.sql",
+        include_str!("../../../../sql/demo/04_drift_this_week.sql"),
+    ),
+    (
+        "sql/demo/05_pallet_weighted.sql",
+        include_str!("../../../../sql/demo/05_pallet_weighted.sql"),
+    ),
+    (
+        "sql/demo/06_two_regimes.sql",
+        include_str!("../../../../sql/demo/06_two_regimes.sql"),
+    ),
+    (
+        "sql/demo/07_which_model_fits.sql",
+        include_str!("../../../../sql/demo/07_which_model_fits.sql"),
+    ),
+    (
+        "sql/checks/cold_chain.sql",
+        include_str!("../../../../sql/checks/cold_chain.sql"),
+    ),
+    (
+        "sql/checks/logger.sql",
+        include_str!("../../../../sql/checks/logger.sql"),
+    ),
+    (
+        "sql/checks/regimes.sql",
+        include_str!("../../../../sql/checks/regimes.sql"),
+    ),
+    (
+        "sql/plots/ecdf_week6.sql",
+        include_str!("../../../../sql/plots/ecdf_week6.sql"),
+    ),
+    (
+        "sql/plots/model_vs_ecdf.sql",
+        include_str!("../../../../sql/plots/model_vs_ecdf.sql"),
+    ),
+    (
+        "sql/plots/share_above_limit.sql",
+        include_str!("../../../../sql/plots/share_above_limit.sql"),
+    ),
+    (
+        "sql/plots/weekly_p95.sql",
+        include_str!("../../../../sql/plots/weekly_p95.sql"),
+    ),
+];
 
-/// The `.sql` files of a directory, in name order, as paths relative to the working
-/// directory when possible (they name the files in the output).
-fn sql_files(dir: &Path) -> Result<Vec<String>, Failure> {
-    let entries = std::fs::read_dir(dir).map_err(|e| {
-        Failure::usage(format!(
-            "cannot read the demo files in {}: {e}",
-            dir.display()
-        ))
-    })?;
-    let mut files: Vec<String> = entries
-        .filter_map(Result::ok)
-        .map(|e| e.path())
-        .filter(|p| p.extension().is_some_and(|x| x == "sql"))
-        .map(|p| p.display().to_string())
-        .collect();
-    files.sort();
-    Ok(files)
+/// The embedded files of one folder of sql/ (`demo`, `checks` or `plots`).
+fn sql_files(folder: &str) -> Vec<Source> {
+    let prefix = format!("sql/{folder}/");
+    EMBEDDED
+        .iter()
+        .filter(|(name, _)| name.starts_with(&prefix))
+        .map(|(name, text)| Source::from_text(name, (*text).to_string()))
+        .collect()
 }
 
 /// The `demo` verb.
@@ -153,10 +195,9 @@ pub fn demo(out_dir: &Path, db_path: Option<&Path>, format: Format) -> Result<i3
              json or markdown (or `ogive run --format csv --out-dir DIR` on the demo's files)",
         ));
     }
-    let dir = sql_dir();
-    let questions = Source::load_all(&sql_files(&dir.join("demo"))?)?;
-    let checks = Source::load_all(&sql_files(&dir.join("checks"))?)?;
-    let plots = Source::load_all(&sql_files(&dir.join("plots"))?)?;
+    let questions = sql_files("demo");
+    let checks = sql_files("checks");
+    let plots = sql_files("plots");
 
     let conn = db::open(db_path, db::Access::Create)?;
     let n = build(&conn)?;
@@ -243,4 +284,31 @@ pub fn demo(out_dir: &Path, db_path: Option<&Path>, format: Format) -> Result<i3
     };
     printer.print(&Block::note(explore))?;
     Ok(i32::from(failed))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn embedded_files_are_the_sql_folder() {
+        let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+        let mut on_disk = Vec::new();
+        for folder in ["demo", "checks", "plots"] {
+            let mut names: Vec<String> = std::fs::read_dir(root.join("sql").join(folder))
+                .unwrap()
+                .filter_map(Result::ok)
+                .map(|e| e.file_name().to_string_lossy().into_owned())
+                .filter(|n| n.ends_with(".sql"))
+                .map(|n| format!("sql/{folder}/{n}"))
+                .collect();
+            names.sort();
+            on_disk.extend(names);
+        }
+        let embedded: Vec<String> = EMBEDDED.iter().map(|(n, _)| n.to_string()).collect();
+        assert_eq!(embedded, on_disk, "add new demo files to demo::EMBEDDED");
+        for (name, text) in EMBEDDED {
+            assert_eq!(std::fs::read_to_string(root.join(name)).unwrap(), *text);
+        }
+    }
 }
