@@ -44,7 +44,7 @@ fn rows_for(name: &str, xs: &[Option<f64>], pick: &[u8]) -> Option<Vec<Vec<V>>> 
             .iter()
             .enumerate()
             .map(|(i, v)| {
-                if pick[0] % 2 == 0 {
+                if pick[0].is_multiple_of(2) {
                     vec![x(v), V::R(3.5)]
                 } else {
                     vec![x(v), V::R(3.5), w(i)]
@@ -54,7 +54,7 @@ fn rows_for(name: &str, xs: &[Option<f64>], pick: &[u8]) -> Option<Vec<Vec<V>>> 
         "quantile" => xs
             .iter()
             .map(|v| {
-                if pick[0] % 2 == 0 {
+                if pick[0].is_multiple_of(2) {
                     vec![x(v), V::R(0.3)]
                 } else {
                     vec![x(v), V::R(0.3), V::I(i64::from(pick[0] % 9) + 1)]
@@ -81,7 +81,7 @@ fn rows_for(name: &str, xs: &[Option<f64>], pick: &[u8]) -> Option<Vec<Vec<V>>> 
             .iter()
             .enumerate()
             .map(|(i, v)| {
-                if pick[0] % 2 == 0 {
+                if pick[0].is_multiple_of(2) {
                     vec![x(v)]
                 } else {
                     vec![x(v), w(i)]

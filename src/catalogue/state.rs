@@ -230,13 +230,16 @@ pub fn load<S: State>(bytes: &[u8]) -> Result<S, FunctionError> {
     Ok(s)
 }
 
+/// Restores a state from its saved form.
+pub type LoadFn = fn(&[u8]) -> Result<Box<dyn Aggregator>, FunctionError>;
+
 /// How an engine makes and restores the states of one aggregate: the registry row's part.
 #[derive(Clone, Copy)]
 pub struct AggregateImp {
     /// A new, empty state.
     pub new: fn() -> Box<dyn Aggregator>,
     /// A state restored from its saved form.
-    pub load: fn(&[u8]) -> Result<Box<dyn Aggregator>, FunctionError>,
+    pub load: LoadFn,
 }
 
 impl AggregateImp {

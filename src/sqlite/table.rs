@@ -85,6 +85,8 @@ pub(crate) struct Table {
 /// The most arguments a table-valued function may take (bits of the plan number).
 const MAX_ARGS: usize = 8;
 
+// SAFETY: `Table` is `repr(C)` with SQLite's `sqlite3_vtab` as its first field, as
+// rusqlite requires.
 unsafe impl<'vtab> VTab<'vtab> for Table {
     type Aux = &'static FunctionDef;
     type Cursor = Cursor<'vtab>;
@@ -205,6 +207,8 @@ impl Cursor<'_> {
     }
 }
 
+// SAFETY: `Cursor` is `repr(C)` with SQLite's `sqlite3_vtab_cursor` as its first field,
+// as rusqlite requires.
 unsafe impl VTabCursor for Cursor<'_> {
     fn filter(&mut self, idx_num: c_int, _idx_str: Option<&str>, args: &Filters<'_>) -> Result<()> {
         let def = self.def;
