@@ -460,18 +460,107 @@ fn band(call: &mut Call<'_>) -> Result<Out> {
 // ---------------------------------------------------------------------------------------
 // Aggregates
 
-/// State of `dist_empirical(x [, w])`: the values (and weights) so far.
-#[derive(Debug, Default)]
-pub struct DistEmpiricalState {
+/// The state of an aggregate that builds an empirical distribution: the values (and
+/// weights) so far. `K` says how a row adds to it.
+#[derive(Debug)]
+pub struct BuilderState<K> {
     b: Option<SampleBuilder>,
+    kind: std::marker::PhantomData<K>,
 }
 
-impl State for DistEmpiricalState {
-    const NAME: &'static str = "dist_empirical";
+impl<K> Default for BuilderState<K> {
+    fn default() -> Self {
+        BuilderState {
+            b: None,
+            kind: std::marker::PhantomData,
+        }
+    }
+}
+
+/// How a row adds to a [`BuilderState`].
+pub trait BuildRow: Send + 'static {
+    /// The SQL name.
+    const NAME: &'static str;
+    /// Adds a row.
+    ///
+    /// # Errors
+    /// The function's argument errors.
+    fn step(b: &mut Option<SampleBuilder>, args: &Args<'_>) -> Result<()>;
+}
+
+impl<K: BuildRow> State for BuilderState<K> {
+    const NAME: &'static str = K::NAME;
 
     fn step(&mut self, args: &Args<'_>) -> Result<()> {
+        K::step(&mut self.b, args)
+    }
+
+    fn merge(&mut self, other: Self) -> Result<()> {
+        let Some(theirs) = other.b else {
+            return Ok(());
+        };
+        let Some(b) = self.b.as_mut() else {
+            self.b = Some(theirs);
+            return Ok(());
+        };
+        let part = theirs.finish().map_err(|e| fail(K::NAME, e))?;
+        b.extend(&part);
+        Ok(())
+    }
+
+    fn finalize(&mut self) -> Result<Out> {
+        let Some(b) = self.b.take() else {
+            return Ok(Out::Null);
+        };
+        let s = b.finish().map_err(|e| fail(K::NAME, e))?;
+        Ok(if s.is_empty() {
+            Out::Null
+        } else {
+            Out::Blob(empirical::encode(&s))
+        })
+    }
+
+    /// The saved form: a flag for "weighted" (a builder of `dist_empirical(x, w)` whose
+    /// rows all had zero weight holds nothing, yet stays weighted), then the existing BLOB
+    /// (docs/empirical-blob.md) of what the part holds.
+    fn save(&self, w: &mut Writer) {
+        match &self.b {
+            None => w.u8(0),
+            Some(b) => {
+                w.u8(if b.is_weighted() { 2 } else { 1 });
+                let blob = b.clone().finish().ok().filter(|s| !s.is_empty());
+                w.opt_bytes(blob.as_ref().map(empirical::encode).as_deref());
+            }
+        }
+    }
+
+    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        let tag = r.u8()?;
+        let mut state = Self::default();
+        if tag == 0 {
+            return Ok(state);
+        }
+        let mut b = SampleBuilder::new(tag == 2);
+        if let Some(bytes) = r.opt_bytes()? {
+            let s = empirical::decode(bytes)
+                .map_err(|e| ArgError::BadState(format!("its distribution BLOB: {e}")))?;
+            b.extend(&s);
+        }
+        state.b = Some(b);
+        Ok(state)
+    }
+}
+
+/// `dist_empirical(x [, w])`: rows of values (and weights).
+#[derive(Debug)]
+pub struct FromRows;
+
+impl BuildRow for FromRows {
+    const NAME: &'static str = "dist_empirical";
+
+    fn step(b: &mut Option<SampleBuilder>, args: &Args<'_>) -> Result<()> {
         let weighted = args.len() > 1;
-        let b = self.b.get_or_insert_with(|| SampleBuilder::new(weighted));
+        let b = b.get_or_insert_with(|| SampleBuilder::new(weighted));
         let mut go = || -> std::result::Result<(), ArgError> {
             let x = number(args.get(0), "x")?;
             if weighted {
@@ -489,93 +578,17 @@ impl State for DistEmpiricalState {
         };
         go().map_err(|e| fail(Self::NAME, e))
     }
-
-    fn merge(&mut self, other: Self) -> Result<()> {
-        merge_builders(Self::NAME, &mut self.b, other.b)
-    }
-
-    fn finalize(&mut self) -> Result<Out> {
-        blob(Self::NAME, self.b.take())
-    }
-
-    fn save(&self, w: &mut Writer) {
-        save_builder(w, &self.b);
-    }
-
-    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
-        Ok(DistEmpiricalState {
-            b: load_builder(r)?,
-        })
-    }
 }
 
-/// Merges the builder of another part of a group.
-fn merge_builders(
-    name: &'static str,
-    mine: &mut Option<SampleBuilder>,
-    theirs: Option<SampleBuilder>,
-) -> Result<()> {
-    let Some(theirs) = theirs else { return Ok(()) };
-    let Some(b) = mine.as_mut() else {
-        *mine = Some(theirs);
-        return Ok(());
-    };
-    let part = theirs.finish().map_err(|e| fail(name, e))?;
-    b.extend(&part);
-    Ok(())
-}
+/// `dist_merge(d)`: rows of empirical distributions.
+#[derive(Debug)]
+pub struct FromDists;
 
-/// Saves a builder as the existing BLOB (docs/empirical-blob.md) of what it holds, after
-/// a flag for "weighted" (a builder of `dist_empirical(x, w)` whose rows all had zero
-/// weight holds nothing, yet stays weighted).
-fn save_builder(w: &mut Writer, b: &Option<SampleBuilder>) {
-    match b {
-        None => w.u8(0),
-        Some(b) => {
-            w.u8(if b.is_weighted() { 2 } else { 1 });
-            let blob = b.clone().finish().ok().filter(|s| !s.is_empty());
-            w.opt_bytes(blob.as_ref().map(empirical::encode).as_deref());
-        }
-    }
-}
-
-/// Reads a builder written by [`save_builder`].
-fn load_builder(r: &mut Reader<'_>) -> std::result::Result<Option<SampleBuilder>, ArgError> {
-    let tag = r.u8()?;
-    if tag == 0 {
-        return Ok(None);
-    }
-    let mut b = SampleBuilder::new(tag == 2);
-    if let Some(bytes) = r.opt_bytes()? {
-        let s = empirical::decode(bytes)
-            .map_err(|e| ArgError::BadState(format!("its distribution BLOB: {e}")))?;
-        b.extend(&s);
-    }
-    Ok(Some(b))
-}
-
-/// The BLOB of a finished builder, NULL when it holds nothing.
-fn blob(name: &'static str, b: Option<SampleBuilder>) -> Result<Out> {
-    let Some(b) = b else { return Ok(Out::Null) };
-    let s = b.finish().map_err(|e| fail(name, e))?;
-    Ok(if s.is_empty() {
-        Out::Null
-    } else {
-        Out::Blob(empirical::encode(&s))
-    })
-}
-
-/// State of `dist_merge(d)`: the union so far.
-#[derive(Debug, Default)]
-pub struct DistMergeState {
-    b: Option<SampleBuilder>,
-}
-
-impl State for DistMergeState {
+impl BuildRow for FromDists {
     const NAME: &'static str = "dist_merge";
 
-    fn step(&mut self, args: &Args<'_>) -> Result<()> {
-        let b = self.b.get_or_insert_with(|| SampleBuilder::new(false));
+    fn step(b: &mut Option<SampleBuilder>, args: &Args<'_>) -> Result<()> {
+        let b = b.get_or_insert_with(|| SampleBuilder::new(false));
         let row = [args.get(0)];
         let mut memo = NoMemo;
         let Some(d) = Call::new(Self::NAME, &row, &mut memo).dist(0)? else {
@@ -590,25 +603,13 @@ impl State for DistMergeState {
         b.extend(s);
         Ok(())
     }
-
-    fn merge(&mut self, other: Self) -> Result<()> {
-        merge_builders(Self::NAME, &mut self.b, other.b)
-    }
-
-    fn finalize(&mut self) -> Result<Out> {
-        blob(Self::NAME, self.b.take())
-    }
-
-    fn save(&self, w: &mut Writer) {
-        save_builder(w, &self.b);
-    }
-
-    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
-        Ok(DistMergeState {
-            b: load_builder(r)?,
-        })
-    }
 }
+
+/// State of `dist_empirical(x [, w])`.
+pub type DistEmpiricalState = BuilderState<FromRows>;
+
+/// State of `dist_merge(d)`.
+pub type DistMergeState = BuilderState<FromDists>;
 
 // ---------------------------------------------------------------------------------------
 // Table-valued functions

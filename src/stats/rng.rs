@@ -28,6 +28,19 @@ pub fn splitmix64(state: &mut u64) -> u64 {
     z ^ (z >> 31)
 }
 
+/// The state transition shared by xoshiro256++ and xoshiro256** (they differ only in
+/// the output function).
+#[inline]
+fn advance(s: &mut [u64; 4]) {
+    let t = s[1] << 17;
+    s[2] ^= s[0];
+    s[3] ^= s[1];
+    s[1] ^= s[2];
+    s[0] ^= s[3];
+    s[2] ^= t;
+    s[3] = s[3].rotate_left(45);
+}
+
 /// The xoshiro256** generator, seeded through SplitMix64.
 ///
 /// # Example
@@ -57,15 +70,8 @@ impl Xoshiro256ss {
 
     /// The next 64 random bits.
     pub fn next_u64(&mut self) -> u64 {
-        let s = &mut self.s;
-        let out = s[1].wrapping_mul(5).rotate_left(7).wrapping_mul(9);
-        let t = s[1] << 17;
-        s[2] ^= s[0];
-        s[3] ^= s[1];
-        s[1] ^= s[2];
-        s[0] ^= s[3];
-        s[2] ^= t;
-        s[3] = s[3].rotate_left(45);
+        let out = self.s[1].wrapping_mul(5).rotate_left(7).wrapping_mul(9);
+        advance(&mut self.s);
         out
     }
 }
@@ -100,15 +106,9 @@ impl Xoshiro256pp {
 
     /// The next 64 random bits.
     pub fn next_u64(&mut self) -> u64 {
-        let s = &mut self.s;
+        let s = &self.s;
         let result = s[0].wrapping_add(s[3]).rotate_left(23).wrapping_add(s[0]);
-        let t = s[1] << 17;
-        s[2] ^= s[0];
-        s[3] ^= s[1];
-        s[1] ^= s[2];
-        s[0] ^= s[3];
-        s[2] ^= t;
-        s[3] = s[3].rotate_left(45);
+        advance(&mut self.s);
         result
     }
 
