@@ -152,17 +152,68 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     },
 ];
 
-/// The JSON text of a two-sample result.
-pub fn ks_json(r: &KsResult) -> String {
-    json!({
-        "d": r.d,
-        "p": r.p,
-        "n1": r.n1,
-        "n2": r.n2,
-        "method": r.method.name(),
-        "alternative": r.alternative.name(),
-    })
-    .to_string()
+/// A Kolmogorov-Smirnov result, two-sample or one-sample, as the functions report it.
+pub struct KsReport<'a> {
+    /// The statistic.
+    pub d: f64,
+    /// The p-value.
+    pub p: f64,
+    /// The sizes: null on a model's side.
+    pub n1: serde_json::Value,
+    /// See `n1`.
+    pub n2: serde_json::Value,
+    /// How p was computed.
+    pub method: &'a str,
+    /// The alternative.
+    pub alternative: Alternative,
+    /// For a one-sample test, the model's family.
+    pub family: Option<&'a str>,
+}
+
+impl KsReport<'_> {
+    /// The report of a two-sample result.
+    pub fn two_sample(r: &KsResult) -> KsReport<'static> {
+        KsReport {
+            d: r.d,
+            p: r.p,
+            n1: json!(r.n1),
+            n2: json!(r.n2),
+            method: r.method.name(),
+            alternative: r.alternative,
+            family: None,
+        }
+    }
+}
+
+/// The one JSON form of a Kolmogorov-Smirnov result. As a test (`ks_test`, `dist_ks`):
+/// `{d, p, n1, n2, method, alternative}`; as a distance (`dist_distance` with metric
+/// 'ks', always two-sided): `{metric, statistic, p, method, n1, n2}`. A one-sample result
+/// adds `test: "one-sample"` and the model's `family`.
+pub fn ks_json(k: &KsReport<'_>, as_distance: bool) -> serde_json::Value {
+    let mut v = if as_distance {
+        json!({
+            "metric": "ks",
+            "statistic": k.d,
+            "p": k.p,
+            "method": k.method,
+            "n1": k.n1,
+            "n2": k.n2,
+        })
+    } else {
+        json!({
+            "d": k.d,
+            "p": k.p,
+            "n1": k.n1,
+            "n2": k.n2,
+            "method": k.method,
+            "alternative": k.alternative.name(),
+        })
+    };
+    if let (Some(family), Some(map)) = (k.family, v.as_object_mut()) {
+        map.insert("test".into(), json!("one-sample"));
+        map.insert("family".into(), json!(family));
+    }
+    v
 }
 
 /// State of `ks_test`: the two samples and the per-group options.
@@ -240,7 +291,9 @@ impl State for KsTestState {
             self.method.get().copied().unwrap_or_default(),
         )
         .map_err(|e| fail(Self::NAME, e))?;
-        Ok(Out::Text(ks_json(&r)))
+        Ok(Out::Text(
+            ks_json(&KsReport::two_sample(&r), false).to_string(),
+        ))
     }
 
     fn save(&self, w: &mut Writer) {
@@ -421,20 +474,18 @@ impl<'a> OneSample<'a> {
         }
     }
 
-    /// The one-sample result as JSON: the two-sample shape, plus `test` and the model's
-    /// `family`.
-    fn json(&self, r: &KsOneResult, method: &str) -> serde_json::Value {
+    /// The report of a one-sample result, its p-value computed by `method`.
+    fn report<'r>(&'r self, r: &KsOneResult, method: &'r str) -> KsReport<'r> {
         let (n1, n2) = self.sizes(r.n);
-        json!({
-            "d": r.d,
-            "p": r.p,
-            "n1": n1,
-            "n2": n2,
-            "method": method,
-            "alternative": r.alternative.name(),
-            "test": "one-sample",
-            "family": self.model.family_name(),
-        })
+        KsReport {
+            d: r.d,
+            p: r.p,
+            n1,
+            n2,
+            method,
+            alternative: r.alternative,
+            family: Some(self.model.family_name()),
+        }
     }
 
     /// The Lilliefors test: the statistic against the model, which must be the sample's
@@ -477,7 +528,7 @@ impl<'a> OneSample<'a> {
         self.model.check_fit_of(&rows)?;
         let mut r = self.ks(&rows, Alternative::TwoSided, PMethod::Auto)?;
         r.p = lilliefors_p(r.d, r.n, family, Scale::MaximumLikelihood);
-        let mut out = self.json(&r, "lilliefors");
+        let mut out = ks_json(&self.report(&r, "lilliefors"), false);
         out["replicates"] = json!(lilliefors::REPLICATES);
         Ok(out)
     }
@@ -506,7 +557,9 @@ fn dist_ks(call: &mut Call<'_>) -> Result<Out> {
             let x = rows_of(x, 1).map_err(|e| fail(NAME, e))?;
             let y = rows_of(y, 2).map_err(|e| fail(NAME, e))?;
             let r = ks_2samp(&x, &y, alternative, method).map_err(|e| fail(NAME, e))?;
-            return Ok(Out::Text(ks_json(&r)));
+            return Ok(Out::Text(
+                ks_json(&KsReport::two_sample(&r), false).to_string(),
+            ));
         }
         (Pair::Two(..), KsMethod::Lilliefors) => {
             return Err(fail(
@@ -525,7 +578,7 @@ fn dist_ks(call: &mut Call<'_>) -> Result<Out> {
             let r = one
                 .ks(&rows, alternative, method)
                 .map_err(|e| fail(NAME, e))?;
-            one.json(&r, r.method.name())
+            ks_json(&one.report(&r, r.method.name()), false)
         }
         (Pair::One(one), KsMethod::Lilliefors) => {
             one.lilliefors(alternative).map_err(|e| fail(NAME, e))?
@@ -618,16 +671,8 @@ fn dist_distance(call: &mut Call<'_>) -> Result<Out> {
         }
         Metric::Ks => {
             let (xs, ys) = rows()?;
-            ks_2samp(&xs, &ys, Alternative::TwoSided, PMethod::Auto).map(|r| {
-                json!({
-                    "metric": metric.name(),
-                    "statistic": r.d,
-                    "p": r.p,
-                    "method": r.method.name(),
-                    "n1": r.n1,
-                    "n2": r.n2,
-                })
-            })
+            ks_2samp(&xs, &ys, Alternative::TwoSided, PMethod::Auto)
+                .map(|r| ks_json(&KsReport::two_sample(&r), true))
         }
         Metric::Cvm => {
             let (xs, ys) = rows()?;
@@ -687,19 +732,8 @@ fn one_sample_distance(one: &OneSample<'_>, metric: Metric) -> std::result::Resu
     }
     let rows = one.rows()?;
     let r = one.ks(&rows, Alternative::TwoSided, PMethod::Auto)?;
-    let (n1, n2) = one.sizes(r.n);
     Ok(Out::Text(
-        json!({
-            "metric": metric.name(),
-            "statistic": r.d,
-            "p": r.p,
-            "method": r.method.name(),
-            "n1": n1,
-            "n2": n2,
-            "test": "one-sample",
-            "family": one.model.family_name(),
-        })
-        .to_string(),
+        ks_json(&one.report(&r, r.method.name()), true).to_string(),
     ))
 }
 
