@@ -1078,6 +1078,59 @@ fn bracket(f: impl Fn(f64) -> f64, start: f64) -> Option<(f64, f64)> {
     (f(lo) <= 0.0 && f(hi) >= 0.0 && lo > 0.0 && hi.is_finite()).then_some((lo, hi))
 }
 
+/// Checks that `p` is the maximum-likelihood fit [`fit`] makes of `xs`: its `n` (when
+/// known) is the number of values and its parameters equal those of `fit(xs, family)`
+/// within `tolerance` relative (a location, the normal mean, lognormal mu or uniform
+/// ends, within `tolerance` times its size plus the spread). Tests whose null
+/// distribution assumes the parameters were estimated from the same data (Lilliefors)
+/// use it to refuse any other model.
+///
+/// # Errors
+/// A sentence saying what differs: another `n`, values that admit no fit of the family,
+/// or a parameter.
+///
+/// # Example
+/// ```
+/// use ogive::stats::fit::{Family, check_is_fit_of, fit};
+/// let xs = [0.5, 1.5, 2.0, 4.0];
+/// let f = fit(&xs, Family::Exponential).unwrap();
+/// assert!(check_is_fit_of(&f.distribution, Some(4), &xs, 1e-9).is_ok());
+/// assert!(check_is_fit_of(&f.distribution, None, &[0.5, 1.5, 2.0, 5.0], 1e-9).is_err());
+/// ```
+pub fn check_is_fit_of(
+    p: &Parametric,
+    n: Option<u64>,
+    xs: &[f64],
+    tolerance: f64,
+) -> Result<(), String> {
+    let family = p.family();
+    if let Some(n) = n
+        && n != xs.len() as u64
+    {
+        return Err(format!(
+            "it was fitted to {n} values, the sample has {}",
+            xs.len()
+        ));
+    }
+    let refit = fit(xs, family).map_err(|e| format!("the values admit no {family} fit: {e}"))?;
+    let theirs = refit.distribution.parameters();
+    let spread = match family {
+        Family::Normal | Family::LogNormal => theirs[1].1,
+        Family::Uniform => theirs[1].1 - theirs[0].1,
+        _ => 0.0,
+    };
+    for ((name, mine), (_, want)) in p.parameters().into_iter().zip(theirs) {
+        let location = matches!(name, "mean" | "mu" | "min" | "max");
+        let size = want.abs() + if location { spread } else { 0.0 };
+        if (mine - want).abs() > tolerance * size {
+            return Err(format!(
+                "its {name} is {mine}; the fit of the sample gives {want}"
+            ));
+        }
+    }
+    Ok(())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

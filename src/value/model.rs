@@ -35,7 +35,7 @@ use std::fmt;
 use serde_json::{Map, Value, json};
 
 use crate::stats::StatsError;
-use crate::stats::fit::{Family, FitError, Parametric, ParametricFit, fit};
+use crate::stats::fit::{Family, FitError, Parametric, ParametricFit};
 use crate::stats::mixture::{
     Candidate, Component, MAX_COMPONENTS, Mixture, MixtureError, MixtureFit,
 };
@@ -927,33 +927,7 @@ impl Model {
                 "a {MIXTURE_FAMILY} is not a maximum-likelihood fit of one family"
             )));
         };
-        let family = p.family();
-        if let Some(n) = self.n
-            && n != xs.len() as u64
-        {
-            return Err(ModelError::NotTheFit(format!(
-                "it was fitted to {n} values, the sample has {}",
-                xs.len()
-            )));
-        }
-        let refit = fit(xs, family)
-            .map_err(|e| ModelError::NotTheFit(format!("the values admit no {family} fit: {e}")))?;
-        let theirs = refit.distribution.parameters();
-        let spread = match family {
-            Family::Normal | Family::LogNormal => theirs[1].1,
-            Family::Uniform => theirs[1].1 - theirs[0].1,
-            _ => 0.0,
-        };
-        for ((name, mine), (_, want)) in p.parameters().into_iter().zip(theirs) {
-            let location = matches!(name, "mean" | "mu" | "min" | "max");
-            let size = want.abs() + if location { spread } else { 0.0 };
-            if (mine - want).abs() > FIT_MATCH * size {
-                return Err(ModelError::NotTheFit(format!(
-                    "its {name} is {mine}; the fit of the sample gives {want}"
-                )));
-            }
-        }
-        Ok(())
+        crate::stats::fit::check_is_fit_of(p, self.n, xs, FIT_MATCH).map_err(ModelError::NotTheFit)
     }
 }
 
