@@ -1,4 +1,5 @@
-//! Column aggregates: `ecdf`, `quantile`, `weighted_quantile`, `quantiles`, `profile`.
+//! Column aggregates: `ecdf`, `quantile`, `median`, `weighted_quantile`, `quantiles`,
+//! `profile`.
 //!
 //! Adapters only: they read and check arguments, keep the rows a kernel needs, and hand
 //! them to [`crate::stats`]. NULL x is skipped, as SQL aggregates do; a group with no
@@ -65,6 +66,20 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         example: "SELECT quantile(column1, 0.9) FROM (VALUES (1), (2), (3), (4), (5))",
         example_result: "4.6",
         imp: Imp::Aggregate(AggregateImp::of::<QuantileState>()),
+    },
+    FunctionDef {
+        name: "median",
+        kind: Kind::Window,
+        arities: &[1],
+        signature: "median(x)",
+        summary: "the median of x: quantile(x, 0.5), also over window frames",
+        help: "Exactly quantile(x, 0.5) with the default type 7 (the mean of the two middle \
+               values of an even count), as an aggregate and as a window function (OVER \
+               (... ROWS BETWEEN ...), O(log w) per row). NULL x is skipped; no rows gives NULL. \
+               Errors: non-numeric x.",
+        example: "SELECT median(column1) FROM (VALUES (1), (2), (3), (10))",
+        example_result: "2.5",
+        imp: Imp::Aggregate(AggregateImp::of::<MedianState>()),
     },
     FunctionDef {
         name: "weighted_quantile",
@@ -488,6 +503,57 @@ impl State for QuantileState {
             key: p.to_bits(),
             sink: Sink::Collect(&mut self.xs),
         })
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// median(x)
+
+/// State of `median(x)`: the state of `quantile(x, 0.5)`, under its own name.
+#[derive(Debug, Default)]
+pub struct MedianState(QuantileState);
+
+/// The row `(x, 0.5)` of the quantile state.
+fn median_row<'a>(args: &Args<'a>) -> [Arg<'a>; 2] {
+    [args.get(0), Arg::Real(0.5)]
+}
+
+/// Renames an error of the quantile state.
+fn as_median(e: FunctionError) -> FunctionError {
+    fail(MedianState::NAME, e.error)
+}
+
+impl State for MedianState {
+    const NAME: &'static str = "median";
+
+    fn step(&mut self, args: &Args<'_>) -> Result<()> {
+        let row = median_row(args);
+        self.0.step(&Args::new(&row)).map_err(as_median)
+    }
+
+    fn inverse(&mut self, args: &Args<'_>) -> Result<()> {
+        let row = median_row(args);
+        self.0.inverse(&Args::new(&row)).map_err(as_median)
+    }
+
+    fn merge(&mut self, other: Self) -> Result<()> {
+        self.0.merge(other.0).map_err(as_median)
+    }
+
+    fn value(&mut self) -> Result<Out> {
+        self.0.value().map_err(as_median)
+    }
+
+    fn finalize(&mut self) -> Result<Out> {
+        self.0.finalize().map_err(as_median)
+    }
+
+    fn save(&self, w: &mut Writer) {
+        self.0.save(w);
+    }
+
+    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        QuantileState::load(r).map(MedianState)
     }
 }
 

@@ -249,3 +249,23 @@ def test_a_text_constant_is_refused_wherever_it_sits(conn, where, function, cons
     at = {"first": 0, "middle": 2, "last": len(rows)}[where]
     rows.insert(at, "(2.5, '0.5abc')")
     expect_error(conn, f"SELECT {function}(column1, column2) FROM (VALUES {', '.join(rows)})", message)
+
+
+def test_median_is_numpy_median_as_aggregate_and_window(conn):
+    # Reference: numpy.median (the mean of the two middle values of an even count),
+    # per group and per sliding frame of 5 rows; exact equality (both are one addition and
+    # one halving of the same two values, or one value).
+    rng = np.random.default_rng(1216)
+    xs = np.round(rng.normal(4.0, 2.0, 200), 1)
+    load_column(conn, "m", xs.tolist(), groups=[i % 3 for i in range(200)])
+    got = dict(rows(conn, "SELECT g, median(x) FROM m GROUP BY g"))
+    for g in range(3):
+        assert got[g] == float(np.median(xs[g::3]))
+    frames = rows(
+        conn,
+        "SELECT median(x) OVER (ORDER BY rowid ROWS BETWEEN 4 PRECEDING AND CURRENT ROW) FROM m",
+    )
+    for i, (m,) in enumerate(frames):
+        assert m == float(np.median(xs[max(0, i - 4) : i + 1])), i
+    expect_error(conn, "SELECT median(column1) FROM (VALUES (1), ('warm'))",
+                 "median: x must be a number (INTEGER or REAL), got TEXT 'warm'")
