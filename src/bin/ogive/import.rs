@@ -380,10 +380,20 @@ pub struct Progress {
     start: Instant,
     last: Option<Instant>,
     terminal: bool,
+    after: Duration,
 }
 
 /// How long an import runs before it shows progress.
 const PROGRESS_AFTER: Duration = Duration::from_secs(1);
+
+/// [`PROGRESS_AFTER`], or the milliseconds in `OGIVE_PROGRESS_AFTER_MS` (the shell's
+/// tests set it to 0 so that they need not depend on the machine's speed).
+fn progress_after() -> Duration {
+    std::env::var("OGIVE_PROGRESS_AFTER_MS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .map_or(PROGRESS_AFTER, Duration::from_millis)
+}
 
 impl Progress {
     fn new(label: String, total: usize, start: Instant) -> Self {
@@ -393,12 +403,13 @@ impl Progress {
             start,
             last: None,
             terminal: std::io::stderr().is_terminal(),
+            after: progress_after(),
         }
     }
 
     fn tick(&mut self, done: usize, rows: u64) {
         let elapsed = self.start.elapsed();
-        if elapsed < PROGRESS_AFTER {
+        if elapsed < self.after {
             return;
         }
         let every = if self.terminal {
