@@ -25,8 +25,9 @@ use ogive::catalogue::args::{fail, number};
 use ogive::rusqlite::functions::{Aggregate, Context, FunctionFlags, WindowAggregate};
 use ogive::rusqlite::{Connection, params};
 use ogive::sqlite::{arg, to_sqlite};
-use ogive::stats::order::{OrderStatistics, splitmix64};
+use ogive::stats::order::OrderStatistics;
 use ogive::stats::quantile::{QuantileType, quantile_ranked, quantile_sorted};
+use ogive::stats::rng::splitmix64;
 use ogive::stats::sketch::{DEFAULT_EPSILON, QuantileSketch, max_retained};
 use ogive::value::sketch::encode;
 

@@ -150,7 +150,7 @@ fn both(
     // A random order of the parts (Fisher-Yates with a splitmix64 stream).
     let mut state = order;
     for i in (1..parts.len()).rev() {
-        let j = (ogive::stats::order::splitmix64(&mut state) % (i as u64 + 1)) as usize;
+        let j = (ogive::stats::rng::splitmix64(&mut state) % (i as u64 + 1)) as usize;
         parts.swap(i, j);
     }
     let Imp::Aggregate(imp) = def.imp else {

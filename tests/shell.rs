@@ -930,8 +930,14 @@ fn a_session_at_the_prompt_runs_a_query_cancels_one_and_leaves() {
 
 /// Runs the shell in `dir` (not the fixtures) under a UTF-8 locale.
 fn ogive_at(dir: &Path, args: &[&str], stdin: Option<&str>) -> Output {
+    ogive_at_with(dir, args, stdin, &[])
+}
+
+/// [`ogive_at`] with extra environment variables.
+fn ogive_at_with(dir: &Path, args: &[&str], stdin: Option<&str>, env: &[(&str, &str)]) -> Output {
     let mut cmd = Command::new(BIN);
     cmd.args(args)
+        .envs(env.iter().copied())
         .current_dir(dir)
         .env("LANG", "C.UTF-8")
         .env_remove("LC_ALL")
@@ -1363,14 +1369,12 @@ fn long_imports_show_progress() {
         let _ = writeln!(text, "{i},{}.25,t{}", i % 977, i % 13);
     }
     std::fs::write(tmp.path("big.csv"), text).unwrap();
-    let out = Command::new(BIN)
-        .args(["import", "big.csv", "--db", "big.db"])
-        .current_dir(&tmp.0)
-        .env("LANG", "C.UTF-8")
-        .env("OGIVE_PROGRESS_AFTER_MS", "0")
-        .stdin(Stdio::null())
-        .output()
-        .unwrap();
+    let out = ogive_at_with(
+        &tmp.0,
+        &["import", "big.csv", "--db", "big.db"],
+        None,
+        &[("OGIVE_PROGRESS_AFTER_MS", "0")],
+    );
     assert!(out.status.success(), "{}", stderr_of(&out));
     let err = stderr_of(&out);
     assert!(

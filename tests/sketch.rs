@@ -6,7 +6,7 @@
 //! The same for merges of 64 shard sketches. The reference is exact sorting, which the
 //! issue accepts as the outside reference by enumeration.
 
-use ogive::stats::order::splitmix64;
+use ogive::stats::rng::splitmix64;
 use ogive::stats::sketch::{DEFAULT_EPSILON, QuantileSketch, epsilon_for_k, max_retained};
 use ogive::value::sketch::{decode, encode};
 

@@ -7,7 +7,7 @@
 //! order-statistic tree, removals), so agreement is a real check; equality is exact (bit
 //! for bit, NULL for NULL). Data: seeded, with NULLs, heavy ties, and infinities.
 
-use ogive::stats::order::splitmix64;
+use ogive::stats::rng::splitmix64;
 use rusqlite::Connection;
 use rusqlite::types::Value;
 

@@ -16,7 +16,7 @@
 use serde_json::json;
 
 use super::args::{ArgError, Constant, FunctionError, TextConstant, fail, number, whole};
-use super::state::{AggregateImp, Args, Lane, Reader, Sink, State, Writer, try_extend, try_push};
+use super::state::{AggregateImp, Args, Lane, Reader, Sink, State, Writer, push, try_extend};
 use super::value::{Arg, Out};
 use super::{FunctionDef, Imp, Kind};
 use crate::stats::ecdf::{EcdfCounter, WeightedEcdfCounter};
@@ -184,15 +184,6 @@ fn read_p(v: Arg<'_>, seen: &mut Constant<f64>) -> std::result::Result<(), ArgEr
         check_probability(p)?;
     }
     Ok(())
-}
-
-/// A list of values, grown without aborting when memory runs out.
-fn push_value(xs: &mut Vec<f64>, x: f64) -> std::result::Result<(), ArgError> {
-    if try_push(xs, x) {
-        Ok(())
-    } else {
-        Err(ArgError::OutOfMemory { held: xs.len() })
-    }
 }
 
 // ---------------------------------------------------------------------------------------
@@ -417,7 +408,7 @@ impl QuantileState {
         if let Some(x) = number(args.get(0), "x")? {
             match self.tree.as_mut() {
                 Some(tree) => tree.insert(x)?,
-                None => push_value(&mut self.xs, x)?,
+                None => push(&mut self.xs, x)?,
             }
         }
         Ok(())
@@ -604,10 +595,8 @@ impl State for WeightedQuantileState {
         let (Some(&p), Some(ty)) = (self.p.get(), self.ty.chosen()) else {
             return Ok(Out::Null);
         };
-        // Sorted by value then weight, so the answer does not depend on row order.
-        let mut pairs = std::mem::take(&mut self.pairs);
-        pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1)));
-        let sorted = WeightedSorted::new(pairs).map_err(|e| fail(Self::NAME, e))?;
+        let sorted = WeightedSorted::new(std::mem::take(&mut self.pairs))
+            .map_err(|e| fail(Self::NAME, e))?;
         Ok(Out::real(
             sorted.quantile(p, ty).map_err(|e| fail(Self::NAME, e))?,
         ))
@@ -686,7 +675,7 @@ impl State for QuantilesState {
             self.ps.observe(args.get(1), "ps", parse_probabilities)?;
             self.ty.observe(args.optional(2))?;
             if let Some(x) = number(args.get(0), "x")? {
-                push_value(&mut self.xs, x)?;
+                push(&mut self.xs, x)?;
             }
             Ok(())
         };
@@ -770,7 +759,7 @@ impl State for ProfileState {
 
     fn step(&mut self, args: &Args<'_>) -> Result<()> {
         if let Some(x) = number(args.get(0), "x").map_err(|e| fail(Self::NAME, e))? {
-            push_value(&mut self.xs, x).map_err(|e| fail(Self::NAME, e))?;
+            push(&mut self.xs, x).map_err(|e| fail(Self::NAME, e))?;
         }
         Ok(())
     }

@@ -35,7 +35,7 @@ use serde_json::json;
 
 use super::args::{ArgError, FunctionError, TextConstant, fail, number, text};
 use super::reader::Call;
-use super::state::{AggregateImp, Args, Reader, State, Writer, try_extend, try_push};
+use super::state::{AggregateImp, Args, Reader, State, Writer, push, try_extend};
 use super::value::Out;
 use super::{FunctionDef, Imp, Kind};
 use crate::stats::fit::Family;
@@ -255,9 +255,7 @@ impl State for KsTestState {
                 } else {
                     &mut self.first
                 };
-                if !try_push(side, x) {
-                    return Err(ArgError::OutOfMemory { held: side.len() });
-                }
+                push(side, x)?;
             }
             Ok(())
         };

@@ -7,7 +7,7 @@
 
 use super::args::{ArgError, Constant, FunctionError, TextConstant, fail, number, text, whole};
 use super::reader::{Call, model_of};
-use super::state::{AggregateImp, Args, Reader, State, Writer, try_extend, try_push};
+use super::state::{AggregateImp, Args, Reader, State, Writer, push, try_extend};
 use super::value::Out;
 use super::{FunctionDef, Imp, Kind, TableImp};
 use crate::stats::fit::{Family, fit};
@@ -124,15 +124,6 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         }),
     },
 ];
-
-/// Pushes a value of a fit's group.
-fn push(xs: &mut Vec<f64>, x: f64) -> std::result::Result<(), ArgError> {
-    if try_push(xs, x) {
-        Ok(())
-    } else {
-        Err(ArgError::OutOfMemory { held: xs.len() })
-    }
-}
 
 // ---------------------------------------------------------------------------------------
 // dist_fit(x, family)
@@ -251,7 +242,7 @@ impl State for DistMixtureState {
         if self.xs.is_empty() {
             return Ok(Out::Null);
         }
-        self.xs.sort_unstable_by(f64::total_cmp);
+        // The kernel sorts and merges ties itself, so row order does not matter.
         let f = fit_mixture(&self.xs, k).map_err(|e| fail(Self::NAME, e))?;
         Ok(Out::Text(Model::from(f).to_json()))
     }

@@ -582,6 +582,19 @@ fn grow(xs: &mut Vec<f64>) -> bool {
     xs.try_reserve(1).is_ok()
 }
 
+/// [`try_push`] as a result: [`ArgError::OutOfMemory`] when memory ran out.
+///
+/// # Errors
+/// [`ArgError::OutOfMemory`].
+#[inline]
+pub fn push(xs: &mut Vec<f64>, x: f64) -> Result<(), ArgError> {
+    if try_push(xs, x) {
+        Ok(())
+    } else {
+        Err(ArgError::OutOfMemory { held: xs.len() })
+    }
+}
+
 /// Appends all of `more` to `xs` without aborting on out-of-memory.
 ///
 /// # Errors

@@ -80,6 +80,7 @@ pub(crate) struct Table {
     /// SQLite's part; must come first.
     base: ffi::sqlite3_vtab,
     def: &'static FunctionDef,
+    t: TableImp,
 }
 
 /// The most arguments a table-valued function may take (bits of the plan number).
@@ -106,21 +107,22 @@ unsafe impl<'vtab> VTab<'vtab> for Table {
         };
         guard(def.name, || {
             db.config(VTabConfig::Innocuous)?;
-            let sql = CString::new(schema(&imp(def)?))?;
+            let t = imp(def)?;
+            let sql = CString::new(schema(&t))?;
             Ok((
                 Cow::Owned(sql),
                 Table {
                     base: ffi::sqlite3_vtab::default(),
                     def,
+                    t,
                 },
             ))
         })
     }
 
     fn best_index(&self, info: &mut IndexInfo) -> Result<bool> {
-        let def = self.def;
+        let (def, t) = (self.def, self.t);
         guard(def.name, || {
-            let t = imp(def)?;
             let columns = t.columns.len();
             let nargs = t.args.len().min(MAX_ARGS);
             let mut given = [None; MAX_ARGS];
@@ -169,12 +171,12 @@ unsafe impl<'vtab> VTab<'vtab> for Table {
     }
 
     fn open(&'vtab mut self) -> Result<Cursor<'vtab>> {
-        let def = self.def;
+        let (def, t) = (self.def, self.t);
         guard(def.name, || {
             Ok(Cursor {
                 base: ffi::sqlite3_vtab_cursor::default(),
                 def,
-                columns: imp(def)?.columns.len(),
+                t,
                 rows: Vec::new(),
                 args: Vec::new(),
                 at: 0,
@@ -190,9 +192,8 @@ pub(crate) struct Cursor<'vtab> {
     /// SQLite's part; must come first.
     base: ffi::sqlite3_vtab_cursor,
     def: &'static FunctionDef,
-    /// The number of output columns.
-    columns: usize,
-    /// The rows, `columns` values each.
+    t: TableImp,
+    /// The rows, `t.columns.len()` values each.
     rows: Vec<Value>,
     /// The argument values, for reads of the hidden columns.
     args: Vec<Value>,
@@ -202,8 +203,12 @@ pub(crate) struct Cursor<'vtab> {
 }
 
 impl Cursor<'_> {
+    fn columns(&self) -> usize {
+        self.t.columns.len()
+    }
+
     fn row_count(&self) -> usize {
-        self.rows.len() / self.columns.max(1)
+        self.rows.len() / self.columns().max(1)
     }
 }
 
@@ -211,9 +216,8 @@ impl Cursor<'_> {
 // as rusqlite requires.
 unsafe impl VTabCursor for Cursor<'_> {
     fn filter(&mut self, idx_num: c_int, _idx_str: Option<&str>, args: &Filters<'_>) -> Result<()> {
-        let def = self.def;
+        let (def, t) = (self.def, self.t);
         guard(def.name, || {
-            let t = imp(def)?;
             let mut values = args.iter();
             let given: Vec<Option<ValueRef<'_>>> = (0..t.args.len())
                 .map(|j| {
@@ -271,10 +275,11 @@ unsafe impl VTabCursor for Cursor<'_> {
     fn column(&self, ctx: &mut Context, i: c_int) -> Result<()> {
         guard(self.def.name, || {
             let i = usize::try_from(i).unwrap_or(usize::MAX);
-            let value = if i < self.columns {
-                self.rows.get(self.at * self.columns + i)
+            let columns = self.columns();
+            let value = if i < columns {
+                self.rows.get(self.at * columns + i)
             } else {
-                self.args.get(i - self.columns)
+                self.args.get(i - columns)
             };
             ctx.set_result(value.unwrap_or(&Value::Null))
         })

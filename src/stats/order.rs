@@ -27,6 +27,7 @@
 use std::cmp::Ordering;
 
 use super::StatsError;
+use super::rng::splitmix64;
 
 const NIL: u32 = u32::MAX;
 
@@ -72,8 +73,6 @@ impl Default for OrderStatistics {
         Self::new()
     }
 }
-
-pub use super::rng::splitmix64;
 
 impl OrderStatistics {
     /// An empty multiset.

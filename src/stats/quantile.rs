@@ -457,7 +457,9 @@ impl WeightedSorted {
             check_weight(w)?;
         }
         pairs.retain(|&(_, w)| w > 0.0);
-        pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
+        // By value, then weight: a total order, so the cumulative weights (and so the
+        // answer, to the bit) do not depend on the order the pairs came in.
+        pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1)));
         let (values, weights): (Vec<f64>, Vec<f64>) = pairs.into_iter().unzip();
         let cumulative = sum::cumulative(&weights);
         if cumulative.last().is_some_and(|w| !w.is_finite()) {

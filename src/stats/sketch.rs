@@ -76,7 +76,7 @@
 
 use std::fmt;
 
-use super::order::splitmix64;
+use super::rng::splitmix64;
 
 /// The rank error (as a share of n) of `quantile_sketch` when none is given: 0.5%.
 pub const DEFAULT_EPSILON: f64 = 0.005;

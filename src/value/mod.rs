@@ -138,7 +138,7 @@ impl Dist {
     pub fn from_text(t: &[u8], arg: usize) -> Result<Dist, ValueError> {
         let not_json = || ValueError::NotADistribution {
             arg,
-            got: String::from_utf8_lossy(t).into_owned(),
+            got: String::new(),
         };
         let text = std::str::from_utf8(t).map_err(|_| not_json())?;
         match Model::parse(text) {
