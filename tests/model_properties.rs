@@ -30,7 +30,7 @@ proptest! {
         let params = f.distribution.parameters();
         let best = Model::from(f.clone());
         let at_best = loglik(&best, &xs);
-        prop_assert!((at_best - f.loglik).abs() <= 1e-9 * f.loglik.abs().max(1.0));
+        prop_assert!((at_best - f.summary.loglik).abs() <= 1e-9 * f.summary.loglik.abs().max(1.0));
         for i in 0..params.len() {
             for factor in [0.999, 1.001] {
                 let mut moved: Vec<f64> = params.iter().map(|p| p.1).collect();

@@ -769,33 +769,48 @@ fn weibull_log_pdf(shape: f64, scale: f64, t: f64) -> f64 {
     shape.ln() - scale.ln() + (shape - 1.0) * lr - (shape * lr).exp()
 }
 
+/// What every maximum-likelihood fit reports (parametric and mixture fits alike): the
+/// number of values, the maximised log-likelihood and the two information criteria.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FitSummary {
+    /// The number of values.
+    pub n: u64,
+    /// The maximised log-likelihood.
+    pub loglik: f64,
+    /// Akaike's information criterion (Akaike 1974), `2p - 2 loglik`.
+    pub aic: f64,
+    /// Schwarz's Bayesian information criterion (Schwarz 1978), `p ln n - 2 loglik`.
+    pub bic: f64,
+}
+
+impl FitSummary {
+    /// The summary of a log-likelihood reached with `parameters` free parameters on `n`
+    /// values.
+    ///
+    /// # Example
+    /// ```
+    /// let s = ogive::stats::fit::FitSummary::new(-10.0, 2, 100);
+    /// assert_eq!(s.aic, 24.0);
+    /// assert_eq!(s.bic, 2.0 * 100f64.ln() + 20.0);
+    /// ```
+    pub fn new(loglik: f64, parameters: usize, n: u64) -> FitSummary {
+        let p = parameters as f64;
+        FitSummary {
+            n,
+            loglik,
+            aic: 2.0 * p - 2.0 * loglik,
+            bic: p * (n as f64).ln() - 2.0 * loglik,
+        }
+    }
+}
+
 /// A maximum-likelihood fit: the fitted distribution and how well it fits.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ParametricFit {
     /// The fitted distribution.
     pub distribution: Parametric,
-    /// The number of values.
-    pub n: u64,
-    /// The maximised log-likelihood.
-    pub loglik: f64,
-    /// Akaike's information criterion, `2p - 2 loglik`.
-    pub aic: f64,
-    /// Schwarz's Bayesian information criterion, `p ln n - 2 loglik`.
-    pub bic: f64,
-}
-
-/// `(AIC, BIC)` for a log-likelihood with `p` parameters on `n` values:
-/// `2p - 2 loglik` and `p ln n - 2 loglik`.
-///
-/// # Example
-/// ```
-/// let (aic, bic) = ogive::stats::fit::information_criteria(-10.0, 2, 100);
-/// assert_eq!(aic, 24.0);
-/// assert_eq!(bic, 2.0 * 100f64.ln() + 20.0);
-/// ```
-pub fn information_criteria(loglik: f64, p: usize, n: u64) -> (f64, f64) {
-    let p = p as f64;
-    (2.0 * p - 2.0 * loglik, p * (n as f64).ln() - 2.0 * loglik)
+    /// n, log-likelihood, AIC and BIC.
+    pub summary: FitSummary,
 }
 
 /// Fits `family` to `xs` by maximum likelihood.
@@ -811,7 +826,7 @@ pub fn information_criteria(loglik: f64, p: usize, n: u64) -> (f64, f64) {
 /// let f = fit(&[1.0, 2.0, 3.0, 2.0], Family::Exponential)?;
 /// let rate = f.distribution.parameters()[0].1;
 /// assert_eq!(rate, 0.5); // one over the mean
-/// assert_eq!(f.loglik, 4.0 * (0.5f64.ln() - 1.0));
+/// assert_eq!(f.summary.loglik, 4.0 * (0.5f64.ln() - 1.0));
 /// # Ok::<(), ogive::stats::fit::FitError>(())
 /// ```
 pub fn fit(xs: &[f64], family: Family) -> Result<ParametricFit, FitError> {
@@ -866,13 +881,9 @@ pub fn fit(xs: &[f64], family: Family) -> Result<ParametricFit, FitError> {
     }
     let distribution = Parametric::new(family, &parameters[..need])
         .map_err(|_| FitError::Degenerate { family })?;
-    let (aic, bic) = information_criteria(loglik, need, xs.len() as u64);
     Ok(ParametricFit {
         distribution,
-        n: xs.len() as u64,
-        loglik,
-        aic,
-        bic,
+        summary: FitSummary::new(loglik, need, xs.len() as u64),
     })
 }
 
@@ -1179,9 +1190,9 @@ mod tests {
             vec![("mean", 5.0), ("sd", 5f64.sqrt())]
         );
         let ll = -2.0 * ((2.0 * std::f64::consts::PI).ln() + 5f64.ln() + 1.0);
-        assert!(rel(f.loglik, ll) < 1e-15);
-        assert!(rel(f.aic, 4.0 - 2.0 * ll) < 1e-15);
-        assert!(rel(f.bic, 2.0 * 4f64.ln() - 2.0 * ll) < 1e-15);
+        assert!(rel(f.summary.loglik, ll) < 1e-15);
+        assert!(rel(f.summary.aic, 4.0 - 2.0 * ll) < 1e-15);
+        assert!(rel(f.summary.bic, 2.0 * 4f64.ln() - 2.0 * ll) < 1e-15);
     }
 
     #[test]
@@ -1203,9 +1214,9 @@ mod tests {
                 })
                 .sum();
             assert!(
-                rel(f.loglik, direct) < 1e-12,
+                rel(f.summary.loglik, direct) < 1e-12,
                 "{family}: {} vs {direct}",
-                f.loglik
+                f.summary.loglik
             );
         }
     }
@@ -1266,7 +1277,7 @@ mod tests {
         // the log-likelihood n (ln rate - 1) = -4 by the closed form. Only zeros: no MLE.
         let z = fit(&[0.0, 0.0, 1.0, 3.0], Family::Exponential).unwrap();
         assert_eq!(z.distribution.parameters(), vec![("rate", 1.0)]);
-        assert_eq!(z.loglik, -4.0);
+        assert_eq!(z.summary.loglik, -4.0);
         assert_eq!(
             fit(&[0.0, 0.0], Family::Exponential),
             Err(FitError::AllEqual {
@@ -1504,10 +1515,10 @@ mod tests {
         // form it came out as 0.
         let normal = fit(&xs, Family::Normal).unwrap();
         assert!(
-            (f.loglik - normal.loglik).abs() < 1e-4 * normal.loglik.abs(),
+            (f.summary.loglik - normal.summary.loglik).abs() < 1e-4 * normal.summary.loglik.abs(),
             "{} vs {}",
-            f.loglik,
-            normal.loglik
+            f.summary.loglik,
+            normal.summary.loglik
         );
     }
 

@@ -3,7 +3,7 @@
 //! the demo's invented data and the tests.
 //!
 //! - [`splitmix64`]: SplitMix64 (Steele, Lea and Flood 2014), the seeder, and the small
-//!   stream behind treap priorities, the sketch and mixture starts;
+//!   stream behind treap priorities, the sketch and (as [`SplitMix64`]) mixture starts;
 //! - [`Xoshiro256pp`]: xoshiro256++ (Blackman and Vigna 2021), seeded through SplitMix64,
 //!   with uniform, standard normal (Marsaglia's polar method) and standard exponential
 //!   (inversion) draws;
@@ -26,6 +26,36 @@ pub fn splitmix64(state: &mut u64) -> u64 {
     z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
     z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
     z ^ (z >> 31)
+}
+
+/// SplitMix64 as a stream: 64-bit words and uniform doubles, for small jobs such as
+/// choosing a mixture fit's starting points.
+///
+/// # Example
+/// ```
+/// use ogive::stats::rng::SplitMix64;
+/// let mut r = SplitMix64::new(0);
+/// assert_eq!(r.next_u64(), 0xE220_A839_7B1D_CDAF);
+/// assert!((0.0..1.0).contains(&r.next_f64()));
+/// ```
+#[derive(Debug, Clone)]
+pub struct SplitMix64(u64);
+
+impl SplitMix64 {
+    /// A stream whose state starts at `seed`.
+    pub fn new(seed: u64) -> Self {
+        SplitMix64(seed)
+    }
+
+    /// The next 64 random bits.
+    pub fn next_u64(&mut self) -> u64 {
+        splitmix64(&mut self.0)
+    }
+
+    /// Uniform on `[0, 1)`: the top 53 bits of the next word.
+    pub fn next_f64(&mut self) -> f64 {
+        (self.next_u64() >> 11) as f64 * (1.0 / (1u64 << 53) as f64)
+    }
 }
 
 /// The state transition shared by xoshiro256++ and xoshiro256** (they differ only in

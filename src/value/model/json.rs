@@ -376,10 +376,10 @@ impl Model {
     }
 
     fn read_fit_fields<'a>(&mut self, r: &mut Reader<'a>) -> Result<(), ModelError> {
-        self.n = r.optional_count("n")?;
-        self.loglik = r.optional_number("loglik")?;
-        self.aic = r.optional_number("aic")?;
-        self.bic = r.optional_number("bic")?;
+        self.fit.n = r.optional_count("n")?;
+        self.fit.loglik = r.optional_number("loglik")?;
+        self.fit.aic = r.optional_number("aic")?;
+        self.fit.bic = r.optional_number("bic")?;
         Ok(())
     }
 
@@ -457,13 +457,13 @@ impl Model {
                 out.insert("components".into(), Value::Array(comps));
             }
         }
-        if let Some(n) = self.n {
+        if let Some(n) = self.fit.n {
             out.insert("n".into(), json!(n));
         }
         for (name, v) in [
-            ("loglik", self.loglik),
-            ("aic", self.aic),
-            ("bic", self.bic),
+            ("loglik", self.fit.loglik),
+            ("aic", self.fit.aic),
+            ("bic", self.fit.bic),
         ] {
             if let Some(v) = v {
                 out.insert(name.into(), json!(v));

@@ -35,7 +35,7 @@ mod json;
 use std::fmt;
 
 use crate::stats::StatsError;
-use crate::stats::fit::{Family, Parametric, ParametricFit};
+use crate::stats::fit::{Family, FitSummary, Parametric, ParametricFit};
 use crate::stats::mixture::{Candidate, Component, Mixture, MixtureFit};
 
 /// The family name of a Gaussian mixture.
@@ -159,22 +159,37 @@ pub enum Law {
 #[derive(Debug, Clone, PartialEq)]
 pub struct Model {
     law: Law,
-    n: Option<u64>,
-    loglik: Option<f64>,
-    aic: Option<f64>,
-    bic: Option<f64>,
+    fit: FitFields,
     iterations: Option<u64>,
     converged: Option<bool>,
     k_candidates: Option<Vec<Candidate>>,
 }
 
+/// A model's fit statistics: all of a [`FitSummary`] when ogive fitted it; any of them,
+/// or none, when it was read from JSON.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+struct FitFields {
+    n: Option<u64>,
+    loglik: Option<f64>,
+    aic: Option<f64>,
+    bic: Option<f64>,
+}
+
+impl From<FitSummary> for FitFields {
+    fn from(s: FitSummary) -> Self {
+        FitFields {
+            n: Some(s.n),
+            loglik: Some(s.loglik),
+            aic: Some(s.aic),
+            bic: Some(s.bic),
+        }
+    }
+}
+
 impl From<ParametricFit> for Model {
     fn from(f: ParametricFit) -> Self {
         Model {
-            n: Some(f.n),
-            loglik: Some(f.loglik),
-            aic: Some(f.aic),
-            bic: Some(f.bic),
+            fit: f.summary.into(),
             ..Model::of(Law::Parametric(f.distribution))
         }
     }
@@ -183,10 +198,7 @@ impl From<ParametricFit> for Model {
 impl From<MixtureFit> for Model {
     fn from(f: MixtureFit) -> Self {
         Model {
-            n: Some(f.n),
-            loglik: Some(f.loglik),
-            aic: Some(f.aic),
-            bic: Some(f.bic),
+            fit: f.summary.into(),
             iterations: Some(u64::from(f.iterations)),
             converged: Some(f.converged),
             k_candidates: Some(f.candidates),
@@ -200,10 +212,7 @@ impl Model {
     fn of(law: Law) -> Model {
         Model {
             law,
-            n: None,
-            loglik: None,
-            aic: None,
-            bic: None,
+            fit: FitFields::default(),
             iterations: None,
             converged: None,
             k_candidates: None,
@@ -262,7 +271,7 @@ impl Model {
     /// # Ok::<(), ogive::value::model::ModelError>(())
     /// ```
     pub fn n(&self) -> Option<u64> {
-        self.n
+        self.fit.n
     }
 
     /// The maximised log-likelihood, when the model was fitted.
@@ -275,7 +284,7 @@ impl Model {
     /// # Ok::<(), ogive::value::model::ModelError>(())
     /// ```
     pub fn loglik(&self) -> Option<f64> {
-        self.loglik
+        self.fit.loglik
     }
 
     /// The cumulative distribution function at `t`, in `[0, 1]`: 0 at `-inf`, 1 at
@@ -448,7 +457,8 @@ impl Model {
                 "a {MIXTURE_FAMILY} is not a maximum-likelihood fit of one family"
             )));
         };
-        crate::stats::fit::check_is_fit_of(p, self.n, xs, FIT_MATCH).map_err(ModelError::NotTheFit)
+        crate::stats::fit::check_is_fit_of(p, self.fit.n, xs, FIT_MATCH)
+            .map_err(ModelError::NotTheFit)
     }
 }
 

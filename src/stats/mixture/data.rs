@@ -1,0 +1,135 @@
+//! The merged, standardised data and its thinned copy.
+
+use super::*;
+use crate::stats::sum::NeumaierSum;
+
+/// The merged, standardised data.
+pub(super) struct Data {
+    /// Distinct standardised values, increasing.
+    pub(super) x: Vec<f64>,
+    /// Their counts.
+    pub(super) count: Vec<f64>,
+    /// `prefix_count[i]`: the count of points before `i` (length m + 1).
+    pub(super) prefix_count: Vec<f64>,
+    /// `prefix_sum[i]`: the sum of count times value of the points before `i`.
+    pub(super) prefix_sum: Vec<f64>,
+    /// Total count n.
+    pub(super) total: f64,
+    /// Mean and standard deviation used to standardise.
+    pub(super) centre: f64,
+    pub(super) scale: f64,
+}
+
+impl Data {
+    pub(super) fn new(xs: &[f64]) -> Result<Data, MixtureError> {
+        // Ties are merged in place: the distinct values move to the front of the
+        // sorted copy, their counts alongside.
+        let mut x = crate::stats::sorting::sorted_total(xs);
+        let mut count: Vec<f64> = Vec::with_capacity(x.len());
+        let mut distinct = 0;
+        for i in 0..x.len() {
+            let v = x[i];
+            if distinct > 0 && x[distinct - 1] == v {
+                count[distinct - 1] += 1.0;
+            } else {
+                x[distinct] = v;
+                count.push(1.0);
+                distinct += 1;
+            }
+        }
+        x.truncate(distinct);
+        count.shrink_to_fit();
+        let total = xs.len() as f64;
+        if x.len() == 1 {
+            return Err(MixtureError::AllEqual(x[0]));
+        }
+        let centre = weighted_sum(&x, &count, |v| v) / total;
+        // The values are sorted, so the farthest from the centre is an end.
+        let spread = (x[0] - centre).abs().max((x[x.len() - 1] - centre).abs());
+        let var = weighted_sum(&x, &count, |v| ((v - centre) / spread).powi(2)) / total;
+        let scale = spread * var.sqrt();
+        if !(scale > 0.0 && scale.is_finite()) {
+            return Err(MixtureError::AllEqual(x[0]));
+        }
+        for v in &mut x {
+            *v = (*v - centre) / scale;
+        }
+        Ok(Data::with_prefixes(x, count, total, centre, scale))
+    }
+
+    /// The data from merged standardised points, with their prefix sums.
+    pub(super) fn with_prefixes(
+        x: Vec<f64>,
+        count: Vec<f64>,
+        total: f64,
+        centre: f64,
+        scale: f64,
+    ) -> Data {
+        let mut prefix_count = Vec::with_capacity(x.len() + 1);
+        let mut prefix_sum = Vec::with_capacity(x.len() + 1);
+        let (mut pc, mut ps) = (0.0, NeumaierSum::default());
+        prefix_count.push(0.0);
+        prefix_sum.push(0.0);
+        for (&v, &c) in x.iter().zip(&count) {
+            pc += c;
+            ps.add(c * v);
+            prefix_count.push(pc);
+            prefix_sum.push(ps.value());
+        }
+        Data {
+            x,
+            count,
+            prefix_count,
+            prefix_sum,
+            total,
+            centre,
+            scale,
+        }
+    }
+
+    /// For many distinct points, a thinned copy on which the short runs rank the starts:
+    /// the sorted points in consecutive runs of at most `g` (so that at most `thin_to`
+    /// runs are full) spanning at most `span` (so that at most `thin_to + 1` runs end
+    /// early, their starts being more than `span` apart), each replaced by its
+    /// count-weighted mean carrying the run's total count. The total
+    /// count, and so the scale of the log-likelihood, is unchanged. `None` when there are
+    /// at most `thin_to` distinct points (then the starts are ranked on the data).
+    pub(super) fn thinned(&self, thin_to: usize) -> Option<Data> {
+        let m = self.x.len();
+        if m <= thin_to {
+            return None;
+        }
+        let g = m.div_ceil(thin_to);
+        let range = self.x[m - 1] - self.x[0];
+        let span = THIN_SPAN.max(range / thin_to as f64);
+        let (mut x, mut count) = (Vec::with_capacity(thin_to), Vec::with_capacity(thin_to));
+        let mut start = 0;
+        while start < m {
+            let limit = (start + g).min(m);
+            let reach = self.x[start] + span;
+            let end = start + 1 + self.x[start + 1..limit].partition_point(|&v| v <= reach);
+            let (xs, cs) = (&self.x[start..end], &self.count[start..end]);
+            let c: f64 = cs.iter().sum();
+            let weighted: f64 = xs.iter().zip(cs).map(|(&v, &w)| v * w).sum();
+            x.push(weighted / c);
+            count.push(c);
+            start = end;
+        }
+        Some(Data::with_prefixes(
+            x,
+            count,
+            self.total,
+            self.centre,
+            self.scale,
+        ))
+    }
+}
+
+/// `sum count_i f(x_i)`, compensated.
+pub(super) fn weighted_sum(x: &[f64], count: &[f64], f: impl Fn(f64) -> f64) -> f64 {
+    let mut s = NeumaierSum::default();
+    for (&v, &c) in x.iter().zip(count) {
+        s.add(c * f(v));
+    }
+    s.value()
+}

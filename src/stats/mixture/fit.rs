@@ -1,0 +1,231 @@
+//! The fit for one k or the k of least BIC; the winning start's last run; mapping back to the data's units.
+
+use super::data::Data;
+use super::em::{Params, Run};
+use super::*;
+use crate::stats::fit::FitSummary;
+
+/// The outcome of one candidate k when k is chosen by BIC.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Candidate {
+    /// Number of components.
+    pub k: usize,
+    /// The best log-likelihood found, `None` when every start lost a component.
+    pub loglik: Option<f64>,
+    /// Its BIC, `None` likewise.
+    pub bic: Option<f64>,
+}
+
+/// A fitted mixture and how the fit went.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MixtureFit {
+    /// The mixture, components sorted by mean.
+    pub mixture: Mixture,
+    /// n, log-likelihood, AIC and BIC, with `p = 3k - 1` parameters.
+    pub summary: FitSummary,
+    /// Passes over the data made by the winning start (its short run included).
+    pub iterations: u32,
+    /// Whether the winning start met the convergence rule.
+    pub converged: bool,
+    /// Every k tried, in increasing order (just one when k was given).
+    pub candidates: Vec<Candidate>,
+}
+
+/// Fits a Gaussian mixture with `k` components, or with the k in `1..=6` of least BIC
+/// when `k` is `None`.
+///
+/// # Errors
+/// [`MixtureError::BadK`], [`MixtureError::NotFinite`], [`MixtureError::TooFewPoints`],
+/// [`MixtureError::AllEqual`], [`MixtureError::TooFewDistinct`], [`MixtureError::NoFit`];
+/// see the [module documentation](self).
+///
+/// # Example
+/// ```
+/// use ogive::stats::mixture::fit_mixture;
+/// let xs = [1.0, 1.2, 0.9, 1.1, 5.0, 5.2, 4.9, 5.1];
+/// let fit = fit_mixture(&xs, Some(2))?;
+/// let c = fit.mixture.components();
+/// assert!((c[0].mean - 1.05).abs() < 1e-6 && (c[1].mean - 5.05).abs() < 1e-6);
+/// # Ok::<(), ogive::stats::mixture::MixtureError>(())
+/// ```
+pub fn fit_mixture(xs: &[f64], k: Option<usize>) -> Result<MixtureFit, MixtureError> {
+    fit_thinned(xs, k, THIN_TO)
+}
+
+/// [`fit_mixture`], ranking the starts on at most `thin_to` merged values.
+pub(super) fn fit_thinned(
+    xs: &[f64],
+    k: Option<usize>,
+    thin_to: usize,
+) -> Result<MixtureFit, MixtureError> {
+    if let Some(k) = k
+        && !(1..=MAX_COMPONENTS).contains(&k)
+    {
+        return Err(MixtureError::BadK(k as i64));
+    }
+    if let Some(&bad) = xs.iter().find(|x| !x.is_finite()) {
+        return Err(MixtureError::NotFinite(bad));
+    }
+    let n = xs.len() as u64;
+    let need = |k: usize| 3 * k - 1;
+    let first_k = k.unwrap_or(1);
+    if n < need(first_k) as u64 {
+        return Err(MixtureError::TooFewPoints {
+            k: first_k,
+            need: need(first_k),
+            got: n,
+        });
+    }
+    let data = Data::new(xs)?;
+    let distinct = data.x.len();
+    if distinct < first_k {
+        return Err(MixtureError::TooFewDistinct {
+            k: first_k,
+            distinct,
+        });
+    }
+    let ks: Vec<usize> = match k {
+        Some(k) => vec![k],
+        None => (1..=MAX_BIC_K)
+            .filter(|&k| k <= distinct && need(k) as u64 <= n)
+            .collect(),
+    };
+    let thin = data.thinned(thin_to);
+    let mut candidates = Vec::with_capacity(ks.len());
+    let mut best: Option<(f64, usize, Run)> = None;
+    for &k in &ks {
+        let run = data.best_run(k, thin.as_ref());
+        let scored = run.map(|r| {
+            let loglik = data.loglik_in_x(r.loglik);
+            (loglik, FitSummary::new(loglik, need(k), n).bic, r)
+        });
+        candidates.push(Candidate {
+            k,
+            loglik: scored.map(|s| s.0),
+            bic: scored.map(|s| s.1),
+        });
+        if let Some((_, bic, r)) = scored
+            && best.as_ref().is_none_or(|(b, _, _)| bic < *b)
+        {
+            best = Some((bic, candidates.len() - 1, r));
+        }
+    }
+    let k_last = *ks.last().unwrap_or(&first_k);
+    let Some((_, slot, run)) = best else {
+        return Err(MixtureError::NoFit { k: k_last });
+    };
+    let run = data.resume(run, TOLERANCE).unwrap_or(run);
+    let k = run.params.k;
+    let mixture = if k == 1 {
+        // One component's MLE is the sample mean and the sd with divisor n: exactly the
+        // centre and scale of the standardisation (compensated sums over the values
+        // themselves). Mapping the EM's standardised mean back would add the rounding
+        // of every (x - centre) / scale, of the order of 1e-16 max |x - centre|.
+        Mixture::new(vec![Component {
+            weight: 1.0,
+            mean: data.centre,
+            sd: data.scale,
+        }])
+        .map_err(|_| MixtureError::NoFit { k })?
+    } else {
+        data.to_mixture(&run.params)
+            .ok_or(MixtureError::NoFit { k })?
+    };
+    let loglik = data.loglik_in_x(run.loglik);
+    let summary = FitSummary::new(loglik, need(k), n);
+    candidates[slot] = Candidate {
+        k,
+        loglik: Some(loglik),
+        bic: Some(summary.bic),
+    };
+    Ok(MixtureFit {
+        mixture,
+        summary,
+        iterations: run.iterations,
+        converged: run.converged,
+        candidates,
+    })
+}
+
+impl Data {
+    /// The log-likelihood in the data's units from a standardised one.
+    pub(super) fn loglik_in_x(&self, standardised: f64) -> f64 {
+        standardised - self.total * (0.5 * (2.0 * std::f64::consts::PI).ln() + self.scale.ln())
+    }
+
+    /// The mixture in the data's units, components sorted by mean.
+    pub(super) fn to_mixture(&self, p: &Params) -> Option<Mixture> {
+        let mut components: Vec<Component> = (0..p.k)
+            .map(|j| Component {
+                weight: p.weight[j],
+                mean: self.centre + self.scale * p.mean[j],
+                sd: self.scale * p.var[j].sqrt(),
+            })
+            .collect();
+        components.sort_by(|a, b| a.mean.total_cmp(&b.mean).then(a.sd.total_cmp(&b.sd)));
+        let total: f64 = components.iter().map(|c| c.weight).sum();
+        for c in &mut components {
+            c.weight /= total;
+        }
+        Mixture::new(components).ok()
+    }
+
+    /// The best EM run for k components over all starts, converged to the selection
+    /// tolerance. When `thin` is given (see [`Data::thinned`]) the starts are drawn,
+    /// ranked and the finalists compared on it; the winner is polished there (to
+    /// [`POLISH_TOLERANCE`], at most [`POLISH_PASSES`] more passes) and then continues
+    /// on these data.
+    pub(super) fn best_run(&self, k: usize, thin: Option<&Data>) -> Option<Run> {
+        let tolerance = SELECTION_TOLERANCE;
+        let ranking = thin.unwrap_or(self);
+        let mut starts: Vec<Params> = Vec::new();
+        if let Some(p) = ranking.quantile_start(k) {
+            starts.push(p);
+        }
+        if k > 1 {
+            for seed in 0..KMEANS_STARTS {
+                // k-means often settles on the same partition from different seeds;
+                // each distinct start runs once.
+                if let Some(p) = ranking.kmeans_start(k, seed)
+                    && !starts.iter().any(|q| q.same_as(&p))
+                {
+                    starts.push(p);
+                }
+            }
+        }
+        let mut short: Vec<Run> = starts
+            .into_iter()
+            .filter_map(|p| ranking.em(p, 0, SHORT_ITERATIONS, tolerance))
+            .collect();
+        short.sort_by(|a, b| b.loglik.total_cmp(&a.loglik));
+        let best = short
+            .into_iter()
+            .take(FINALISTS)
+            .filter_map(|r| ranking.resume(r, tolerance))
+            .max_by(|a, b| a.loglik.total_cmp(&b.loglik))?;
+        match thin {
+            // The winner on the thinned points continues here, on all of them.
+            Some(thin) => {
+                let best = thin
+                    .em(
+                        best.params,
+                        best.iterations,
+                        best.iterations + POLISH_PASSES,
+                        POLISH_TOLERANCE,
+                    )
+                    .unwrap_or(best);
+                self.em(best.params, best.iterations, MAX_ITERATIONS, tolerance)
+            }
+            None => Some(best),
+        }
+    }
+
+    /// Continues a run to `tolerance` (at most [`MAX_ITERATIONS`] passes in all).
+    pub(super) fn resume(&self, run: Run, tolerance: f64) -> Option<Run> {
+        if run.converged && run.tolerance <= tolerance {
+            Some(run)
+        } else {
+            self.em(run.params, run.iterations, MAX_ITERATIONS, tolerance)
+        }
+    }
+}
