@@ -18,7 +18,7 @@ use serde_json::json;
 use super::args::{ArgError, Constant, FunctionError, TextConstant, fail, number, whole};
 use super::state::{AggregateImp, Args, Lane, Reader, Sink, State, Writer, push, try_extend};
 use super::value::{Arg, Out};
-use super::{FunctionDef, Imp, Kind};
+use super::{FunctionDef, Imp, Kind, Returns};
 use crate::stats::ecdf::{EcdfCounter, WeightedEcdfCounter};
 use crate::stats::moments::Profile;
 use crate::stats::order::OrderStatistics;
@@ -35,6 +35,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "ecdf",
         kind: Kind::Window,
+        returns: Returns::Real,
         arities: &[2, 3],
         signature: "ecdf(x, t [, w])",
         summary: "share of x at or below t (weighted by w), in [0, 1]; O(1) memory, O(1) per row in a window",
@@ -52,6 +53,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "quantile",
         kind: Kind::Window,
+        returns: Returns::Real,
         arities: &[2, 3],
         signature: "quantile(x, p [, type])",
         summary: "empirical p-quantile of x; type 1..9 (Hyndman and Fan 1996), default 7; O(log w) per row in a window",
@@ -70,6 +72,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "median",
         kind: Kind::Window,
+        returns: Returns::Real,
         arities: &[1],
         signature: "median(x)",
         summary: "the median of x: quantile(x, 0.5), also over window frames",
@@ -84,6 +87,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "weighted_quantile",
         kind: Kind::Aggregate,
+        returns: Returns::Real,
         arities: &[3, 4],
         signature: "weighted_quantile(x, w, p [, type])",
         summary: "p-quantile of x with frequency weights w; equals quantile on replicated rows",
@@ -99,6 +103,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "quantiles",
         kind: Kind::Aggregate,
+        returns: Returns::Text,
         arities: &[2, 3],
         signature: "quantiles(x, ps [, type])",
         summary: "JSON array of the quantiles of x at each probability of the JSON array ps",
@@ -113,6 +118,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "profile",
         kind: Kind::Aggregate,
+        returns: Returns::Text,
         arities: &[1],
         signature: "profile(x)",
         summary: "JSON summary: n, mean, sd, min, q1, median, q3, max, skewness, excess_kurtosis",

@@ -37,7 +37,7 @@ use super::args::{ArgError, FunctionError, TextConstant, fail, number, text};
 use super::reader::Call;
 use super::state::{AggregateImp, Args, Reader, State, Writer, push, try_extend};
 use super::value::Out;
-use super::{FunctionDef, Imp, Kind};
+use super::{FunctionDef, Imp, Kind, Returns};
 use crate::stats::fit::Family;
 use crate::stats::gof::{anderson_darling_ksamp, cramer_von_mises_2samp, wasserstein_1};
 use crate::stats::ks::{
@@ -55,6 +55,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "ks_test",
         kind: Kind::Aggregate,
+        returns: Returns::Text,
         arities: &[2, 3, 4],
         signature: "ks_test(x, in_second [, alternative [, method]])",
         summary: "two-sample Kolmogorov-Smirnov test of x split by a boolean: JSON {d, p, n1, n2, method, alternative}",
@@ -80,6 +81,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_ks",
         kind: Kind::Scalar,
+        returns: Returns::Text,
         arities: &[2, 3, 4],
         signature: "dist_ks(d1, d2 [, alternative [, method]])",
         summary: "Kolmogorov-Smirnov test of two empirical distributions, or of one against a model: JSON {d, p, n1, n2, method, alternative}",
@@ -119,6 +121,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_distance",
         kind: Kind::Scalar,
+        returns: Returns::Text,
         arities: &[3],
         signature: "dist_distance(d1, d2, metric)",
         summary: "how far apart two distributions are: metric 'ks', 'wasserstein', 'cvm' or 'ad' (against a model 'ks'); JSON {metric, statistic, p, method, n1, n2}",

@@ -30,7 +30,7 @@ use super::reader::{Call, NoMemo};
 use super::state::{AggregateImp, Args, Reader, State, Writer};
 use super::value::{Arg, Out, describe};
 
-use super::{FunctionDef, Imp, Kind, TableImp};
+use super::{FunctionDef, Imp, Kind, Returns, TableImp};
 use crate::stats::band::dkw_band;
 use crate::stats::check_probability;
 use crate::stats::grid::{check_grid, linspace};
@@ -47,6 +47,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_empirical",
         kind: Kind::Aggregate,
+        returns: Returns::Blob,
         arities: &[1, 2],
         signature: "dist_empirical(x [, w])",
         summary: "the empirical distribution of x (with frequency weights w) as a BLOB value",
@@ -63,6 +64,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_merge",
         kind: Kind::Aggregate,
+        returns: Returns::Blob,
         arities: &[1],
         signature: "dist_merge(d)",
         summary: "the union of empirical distributions (shards, days, groups) as one BLOB",
@@ -81,6 +83,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_cdf",
         kind: Kind::Scalar,
+        returns: Returns::Real,
         arities: &[2],
         signature: "dist_cdf(d, t)",
         summary: "cdf of distribution d at t: the share of its mass at or below t",
@@ -97,6 +100,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_quantile",
         kind: Kind::Scalar,
+        returns: Returns::Real,
         arities: &[2, 3],
         signature: "dist_quantile(d, p [, type])",
         summary: "p-quantile of distribution d; type 1..9 as in quantile, default 7",
@@ -116,6 +120,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_pdf",
         kind: Kind::Scalar,
+        returns: Returns::Real,
         arities: &[2, 3],
         signature: "dist_pdf(d, t [, bandwidth])",
         summary: "density of d at t: a model's own, or a Gaussian kernel estimate, bandwidth 'scott' (default), 'silverman' or h",
@@ -134,6 +139,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_n",
         kind: Kind::Scalar,
+        returns: Returns::Count,
         arities: &[1],
         signature: "dist_n(d)",
         summary: "number of observations in d (INTEGER), its total weight (REAL) when weighted, a model's fitted n",
@@ -148,6 +154,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_mean",
         kind: Kind::Scalar,
+        returns: Returns::Real,
         arities: &[1],
         signature: "dist_mean(d)",
         summary: "mean of distribution d",
@@ -161,6 +168,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_sd",
         kind: Kind::Scalar,
+        returns: Returns::Real,
         arities: &[1],
         signature: "dist_sd(d)",
         summary: "standard deviation of distribution d (divisor n - 1; a model's own sd)",
@@ -177,6 +185,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_profile",
         kind: Kind::Scalar,
+        returns: Returns::Text,
         arities: &[1],
         signature: "dist_profile(d)",
         summary: "JSON summary of d, as profile(x) gives it for the raw values",
@@ -193,6 +202,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_band",
         kind: Kind::Scalar,
+        returns: Returns::Text,
         arities: &[3],
         signature: "dist_band(d, t, alpha)",
         summary: "JSON {lower, upper}: DKW confidence band of the empirical cdf of d at t",
@@ -210,6 +220,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_steps",
         kind: Kind::Table,
+        returns: Returns::Rows,
         arities: &[1],
         signature: "dist_steps(d)",
         summary: "rows (x, cdf): the step points of the empirical cdf of d, for plotting",
@@ -229,6 +240,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_curve",
         kind: Kind::Table,
+        returns: Returns::Rows,
         arities: &[4, 5],
         signature: "dist_curve(d, lo, hi, n [, bandwidth])",
         summary: "rows (x, cdf, pdf) of d on n evenly spaced points from lo to hi",
@@ -252,6 +264,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_histogram",
         kind: Kind::Table,
+        returns: Returns::Rows,
         arities: &[1, 2],
         signature: "dist_histogram(d [, rule])",
         summary: "rows (lo, hi, count, density): equal-width histogram of d; rule sturges, scott, fd, sqrt or a bin count",

@@ -55,12 +55,75 @@ impl Kind {
     }
 }
 
+/// The SQL type of a function's result: SQLite ignores it; engines with static types
+/// (DataFusion) declare it. `tests/registry.rs` checks each row against the type its
+/// example returns.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Returns {
+    /// A double (or NULL).
+    Real,
+    /// A 64-bit integer (or NULL).
+    Integer,
+    /// Text: JSON for every ogive function that returns text.
+    Text,
+    /// A BLOB value (a distribution or a sketch).
+    Blob,
+    /// A count: INTEGER, or REAL when it is a total of frequency weights (`dist_n`).
+    /// Engines with static types declare it a double.
+    Count,
+    /// Rows: a table function (its columns say their types).
+    Rows,
+}
+
+impl Returns {
+    /// Whether a result fits the declared type (NULL fits every type). The adapters
+    /// check every result in debug builds, so a row whose declaration drifts from its
+    /// body fails the tests.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::catalogue::{Returns, value::Out};
+    /// assert!(Returns::Count.admits(&Out::Real(2.5)));
+    /// assert!(!Returns::Blob.admits(&Out::Text("{}".into())));
+    /// ```
+    pub fn admits(self, out: &Out) -> bool {
+        matches!(
+            (self, out),
+            (_, Out::Null)
+                | (Returns::Real, Out::Real(_))
+                | (Returns::Integer, Out::Integer(_))
+                | (Returns::Count, Out::Integer(_) | Out::Real(_))
+                | (Returns::Text, Out::Text(_))
+                | (Returns::Blob, Out::Blob(_))
+        )
+    }
+
+    /// In debug builds, a message when a result does not fit the declared type of the
+    /// row named `name`; always `None` in release builds.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::catalogue::{Returns, value::Out};
+    /// assert_eq!(Returns::drift("dist_mean", &Out::Real(1.0)), None);
+    /// ```
+    #[inline(always)]
+    pub fn drift(name: &str, out: &Out) -> Option<String> {
+        if cfg!(debug_assertions) && find(name).is_some_and(|d| !d.returns.admits(out)) {
+            Some(format!("{name} returned {out:?}, not its declared type"))
+        } else {
+            None
+        }
+    }
+}
+
 /// One SQL function: everything the extension, the shell and the docs say about it.
 pub struct FunctionDef {
     /// The SQL name.
     pub name: &'static str,
     /// How it is used.
     pub kind: Kind,
+    /// The type of its result.
+    pub returns: Returns,
     /// The argument counts it accepts.
     pub arities: &'static [i32],
     /// The call shape, with optional arguments in brackets.

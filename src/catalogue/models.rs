@@ -9,7 +9,7 @@ use super::args::{ArgError, Constant, FunctionError, TextConstant, fail, number,
 use super::reader::{Call, model_of};
 use super::state::{AggregateImp, Args, Reader, State, Writer, push, try_extend};
 use super::value::Out;
-use super::{FunctionDef, Imp, Kind, TableImp};
+use super::{FunctionDef, Imp, Kind, Returns, TableImp};
 use crate::stats::fit::{Family, fit};
 use crate::stats::mixture::{MAX_COMPONENTS, MixtureError, fit_mixture};
 use crate::value::model::Model;
@@ -21,6 +21,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_fit",
         kind: Kind::Aggregate,
+        returns: Returns::Text,
         arities: &[2],
         signature: "dist_fit(x, family)",
         summary: "model JSON: maximum-likelihood fit of normal, lognormal, exponential, gamma, \
@@ -41,6 +42,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_mixture",
         kind: Kind::Aggregate,
+        returns: Returns::Text,
         arities: &[1, 2],
         signature: "dist_mixture(x [, k])",
         summary: "model JSON: Gaussian mixture by EM with k components, or k from 1..6 by BIC",
@@ -65,6 +67,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_model",
         kind: Kind::Scalar,
+        returns: Returns::Text,
         arities: &[2],
         signature: "dist_model(family, params)",
         summary: "model JSON from a family and a JSON object of its parameters",
@@ -82,6 +85,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_component",
         kind: Kind::Scalar,
+        returns: Returns::Integer,
         arities: &[2],
         signature: "dist_component(model, t)",
         summary: "number (from 1) of the mixture component most probable for t: clustering",
@@ -100,6 +104,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
     FunctionDef {
         name: "dist_components",
         kind: Kind::Table,
+        returns: Returns::Rows,
         arities: &[1],
         signature: "dist_components(model)",
         summary: "table (component, weight, mean, sd) of a model's mixture components",

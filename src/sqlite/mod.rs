@@ -20,7 +20,7 @@ use rusqlite::types::{Value, ValueRef};
 use crate::catalogue::args::FunctionError;
 use crate::catalogue::reader::{Call, Memo, Shared};
 use crate::catalogue::value::{Arg, Out};
-use crate::catalogue::{FunctionDef, Imp, ScalarFn};
+use crate::catalogue::{FunctionDef, Imp, Returns, ScalarFn};
 
 /// Installs every ogive SQL function on `conn`.
 ///
@@ -160,5 +160,12 @@ fn scalar(name: &'static str, f: ScalarFn, ctx: &Context<'_>) -> rusqlite::Resul
     }
     let mut memo = AuxMemo { ctx };
     let mut call = Call::new(name, &args[..n], &mut memo);
-    f(&mut call).map(value).map_err(to_sqlite)
+    f(&mut call)
+        .map(|o| {
+            if let Some(e) = Returns::drift(name, &o) {
+                panic!("{e}");
+            }
+            value(o)
+        })
+        .map_err(to_sqlite)
 }

@@ -259,6 +259,15 @@ unsafe fn report<T>(
 /// # Safety
 /// `ctx` must be the context of the running callback.
 unsafe fn answer(ctx: *mut sqlite3_context, out: Out) {
+    if cfg!(debug_assertions)
+        // SAFETY: per the contract.
+        && let Some(def) = unsafe { def_of(ctx) }
+        && let Some(e) = crate::catalogue::Returns::drift(def.name, &out)
+    {
+        // SAFETY: per the contract; SQLite copies the message.
+        unsafe { ffi::sqlite3_result_error(ctx, e.as_ptr().cast(), e.len() as c_int) };
+        return;
+    }
     // SAFETY: per the contract; SQLite copies TEXT and BLOB results (SQLITE_TRANSIENT).
     unsafe {
         match out {

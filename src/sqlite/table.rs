@@ -310,6 +310,7 @@ mod tests {
     static PANICS: FunctionDef = FunctionDef {
         name: "panics",
         kind: Kind::Table,
+        returns: crate::catalogue::Returns::Rows,
         arities: &[1],
         signature: "panics(a)",
         summary: "test",
