@@ -31,6 +31,8 @@
 #![warn(clippy::undocumented_unsafe_blocks)]
 
 pub mod catalogue;
+#[cfg(feature = "datafusion")]
+pub mod datafusion;
 pub mod sqlite;
 pub mod stats;
 pub mod value;

@@ -491,7 +491,7 @@ impl<K> Default for BuilderState<K> {
 }
 
 /// How a row adds to a [`BuilderState`].
-pub trait BuildRow: Send + 'static {
+pub trait BuildRow: Send + Sync + 'static {
     /// The SQL name.
     const NAME: &'static str;
     /// Adds a row.

@@ -57,7 +57,7 @@ impl<'a> Args<'a> {
 
 /// The typed state of one aggregate. `NAME` is the SQL name, used in errors and in the
 /// saved form.
-pub trait State: Default + Send + 'static {
+pub trait State: Default + Send + Sync + 'static {
     /// The SQL name.
     const NAME: &'static str;
 
@@ -134,7 +134,7 @@ pub enum Sink<'a> {
 }
 
 /// A state as engines hold it: [`State`] behind a trait object.
-pub trait Aggregator: Send {
+pub trait Aggregator: Send + Sync {
     /// [`State::step`].
     ///
     /// # Errors

@@ -1,0 +1,194 @@
+//! Aggregate and window registry rows as DataFusion `AggregateUDF`s.
+//!
+//! The partial state DataFusion ships between its partial and final aggregation (and
+//! between processes) is one BINARY value: the catalogue's saved form of the state
+//! (`docs/state-format.md`), merged on arrival by the state's own `merge`. A window row
+//! (`Kind::Window`) supports retraction through the state's `inverse`, so sliding frames
+//! cost what they cost in SQLite. An aggregate row used with `OVER` on a growing frame is
+//! answered by its `value` after every row, like a window row; an aggregate row that has
+//! been finalised refuses further rows instead of answering from a consumed state.
+
+use std::sync::Arc;
+
+use ::datafusion::arrow::array::{Array, ArrayRef, AsArray};
+use ::datafusion::arrow::datatypes::{DataType, Field, FieldRef};
+use ::datafusion::common::ScalarValue;
+use ::datafusion::error::DataFusionError;
+use ::datafusion::logical_expr::function::{AccumulatorArgs, StateFieldsArgs};
+use ::datafusion::logical_expr::{Accumulator, AggregateUDF, AggregateUDFImpl, Signature};
+
+use super::convert::{Column, data_type, out_array};
+use super::scalar::signature;
+use super::to_datafusion;
+use crate::catalogue::state::{Aggregator, Args};
+use crate::catalogue::value::{Arg, Out};
+use crate::catalogue::{FunctionDef, Imp, Kind};
+use crate::sqlite::MAX_ARGS;
+
+/// The DataFusion function of an aggregate (or window) registry row.
+pub fn udaf(def: &'static FunctionDef) -> AggregateUDF {
+    AggregateUDF::new_from_impl(Aggregate {
+        def,
+        signature: signature(def),
+    })
+}
+
+/// An aggregate registry row.
+struct Aggregate {
+    def: &'static FunctionDef,
+    signature: Signature,
+}
+
+by_name!(Aggregate);
+
+impl AggregateUDFImpl for Aggregate {
+    fn name(&self) -> &str {
+        self.def.name
+    }
+
+    fn signature(&self) -> &Signature {
+        &self.signature
+    }
+
+    fn return_type(&self, _: &[DataType]) -> Result<DataType, DataFusionError> {
+        Ok(data_type(self.def.returns))
+    }
+
+    fn accumulator(&self, _: AccumulatorArgs) -> Result<Box<dyn Accumulator>, DataFusionError> {
+        let Imp::Aggregate(imp) = self.def.imp else {
+            return Err(DataFusionError::Internal(format!(
+                "{} is not an aggregate",
+                self.def.name
+            )));
+        };
+        Ok(Box::new(Acc {
+            def: self.def,
+            state: (imp.new)(),
+            rows: 0,
+            finished: false,
+        }))
+    }
+
+    fn state_fields(&self, args: StateFieldsArgs) -> Result<Vec<FieldRef>, DataFusionError> {
+        Ok(vec![Arc::new(Field::new(
+            format!("{}[ogive state]", args.name),
+            DataType::Binary,
+            true,
+        ))])
+    }
+}
+
+/// One group's state.
+struct Acc {
+    def: &'static FunctionDef,
+    state: Box<dyn Aggregator>,
+    /// Rows stepped in, for the size estimate.
+    rows: usize,
+    /// An aggregate row's state after `finalize`.
+    finished: bool,
+}
+
+by_name!(Acc);
+
+impl Acc {
+    /// Runs `body` on every row of a batch.
+    fn each_row(
+        &mut self,
+        values: &[ArrayRef],
+        body: fn(
+            &mut dyn Aggregator,
+            &Args<'_>,
+        ) -> Result<(), crate::catalogue::args::FunctionError>,
+    ) -> Result<(), DataFusionError> {
+        if self.finished {
+            return Err(self.finished_error());
+        }
+        let name = self.def.name;
+        let cols = values
+            .iter()
+            .enumerate()
+            .map(|(i, a)| Column::new(name, i, Arc::clone(a), false))
+            .collect::<Result<Vec<_>, _>>()?;
+        let rows = values.first().map_or(0, |a| a.len());
+        let n = cols.len().min(MAX_ARGS);
+        let mut args = [Arg::Null; MAX_ARGS];
+        for row in 0..rows {
+            for (slot, c) in args.iter_mut().zip(&cols) {
+                *slot = c.get(row);
+            }
+            body(self.state.as_mut(), &Args::new(&args[..n])).map_err(to_datafusion)?;
+        }
+        self.rows = self.rows.saturating_add(rows);
+        Ok(())
+    }
+
+    fn finished_error(&self) -> DataFusionError {
+        DataFusionError::Execution(format!(
+            "{}: is an aggregate, not a window function: use it with GROUP BY, or on a \
+             frame through a subquery",
+            self.def.name
+        ))
+    }
+}
+
+/// A result as a DataFusion scalar of the row's declared type.
+fn scalar_of(def: &FunctionDef, out: Out) -> Result<ScalarValue, DataFusionError> {
+    let a = out_array(def.name, def.returns, vec![out])?;
+    ScalarValue::try_from_array(&a, 0)
+}
+
+impl Accumulator for Acc {
+    fn update_batch(&mut self, values: &[ArrayRef]) -> Result<(), DataFusionError> {
+        self.each_row(values, |s, a| s.step(a))
+    }
+
+    fn retract_batch(&mut self, values: &[ArrayRef]) -> Result<(), DataFusionError> {
+        self.each_row(values, |s, a| s.inverse(a))
+    }
+
+    fn supports_retract_batch(&self) -> bool {
+        self.def.kind == Kind::Window
+    }
+
+    fn evaluate(&mut self) -> Result<ScalarValue, DataFusionError> {
+        if self.finished {
+            return Err(self.finished_error());
+        }
+        let out = if self.def.kind == Kind::Window {
+            self.state.value()
+        } else {
+            self.finished = true;
+            self.state.finalize()
+        };
+        scalar_of(self.def, out.map_err(to_datafusion)?)
+    }
+
+    fn size(&self) -> usize {
+        // An estimate: DataFusion calls this often, so it must not serialise the state;
+        // the states that grow keep about one double (and a tree node in window use)
+        // per row.
+        size_of::<Self>() + 16 * self.rows
+    }
+
+    fn state(&mut self) -> Result<Vec<ScalarValue>, DataFusionError> {
+        Ok(vec![ScalarValue::Binary(Some(self.state.save()))])
+    }
+
+    fn merge_batch(&mut self, states: &[ArrayRef]) -> Result<(), DataFusionError> {
+        let Some(saved) = states.first() else {
+            return Ok(());
+        };
+        let saved = saved.as_binary_opt::<i32>().ok_or_else(|| {
+            DataFusionError::Internal(format!("{}: partial state is not BINARY", self.def.name))
+        })?;
+        for i in 0..saved.len() {
+            if saved.is_valid(i) {
+                self.state
+                    .merge_saved(saved.value(i))
+                    .map_err(to_datafusion)?;
+                self.rows = self.rows.saturating_add(saved.value(i).len() / 16);
+            }
+        }
+        Ok(())
+    }
+}

@@ -1,0 +1,234 @@
+//! Arrow arrays to the catalogue's [`Arg`], and [`Out`] back to arrays.
+
+use std::sync::Arc;
+
+use ::datafusion::arrow::array::{
+    Array, ArrayRef, AsArray, BinaryBuilder, Float64Builder, Int64Builder, StringBuilder,
+};
+use ::datafusion::arrow::compute::{CastOptions, cast_with_options};
+use ::datafusion::arrow::datatypes::{DataType, Float64Type, Int64Type};
+use ::datafusion::error::DataFusionError;
+
+use crate::catalogue::Returns;
+use crate::catalogue::value::{Arg, Out};
+
+/// One argument column of a batch, in the form SQLite would see it: integers, reals,
+/// text, BLOBs or NULL.
+pub struct Column {
+    array: ArrayRef,
+    /// Which reader applies.
+    shape: Shape,
+    /// A constant column (one value for every row).
+    constant: bool,
+}
+
+#[derive(Clone, Copy)]
+enum Shape {
+    Null,
+    Integer,
+    Real,
+    Text,
+    LargeText,
+    TextView,
+    Blob,
+    LargeBlob,
+    BlobView,
+}
+
+impl Column {
+    /// Wraps an argument array; `constant` when it holds one value for every row.
+    ///
+    /// # Errors
+    /// An Arrow type that SQLite has no storage class for (dates, lists, structs):
+    /// the message names the function and the argument and says to cast it.
+    pub fn new(
+        name: &str,
+        i: usize,
+        array: ArrayRef,
+        constant: bool,
+    ) -> Result<Column, DataFusionError> {
+        use DataType as T;
+        let to = |array: &ArrayRef, ty: &DataType| {
+            cast_with_options(
+                array,
+                ty,
+                &CastOptions {
+                    safe: false,
+                    ..Default::default()
+                },
+            )
+        };
+        let (array, shape) = match array.data_type() {
+            T::Null => (array, Shape::Null),
+            T::Int64 => (array, Shape::Integer),
+            T::Float64 => (array, Shape::Real),
+            T::Boolean
+            | T::Int8
+            | T::Int16
+            | T::Int32
+            | T::UInt8
+            | T::UInt16
+            | T::UInt32
+            | T::UInt64 => (to(&array, &T::Int64)?, Shape::Integer),
+            T::Float16 | T::Float32 | T::Decimal128(..) | T::Decimal256(..) => {
+                (to(&array, &T::Float64)?, Shape::Real)
+            }
+            T::Utf8 => (array, Shape::Text),
+            T::LargeUtf8 => (array, Shape::LargeText),
+            T::Utf8View => (array, Shape::TextView),
+            T::Binary => (array, Shape::Blob),
+            T::LargeBinary => (array, Shape::LargeBlob),
+            T::BinaryView => (array, Shape::BlobView),
+            T::FixedSizeBinary(_) => (to(&array, &T::Binary)?, Shape::Blob),
+            T::Dictionary(_, v) if v.is_string() => (to(&array, &T::Utf8)?, Shape::Text),
+            other => {
+                return Err(DataFusionError::Execution(format!(
+                    "{name}: argument {} has type {other}, which ogive does not read; cast it \
+                     to a number or to text (for example CAST(... AS DOUBLE))",
+                    i + 1
+                )));
+            }
+        };
+        Ok(Column {
+            array,
+            shape,
+            constant,
+        })
+    }
+
+    /// Whether the column is one value for every row.
+    pub fn is_constant(&self) -> bool {
+        self.constant
+    }
+
+    /// The argument at `row` (row 0 for a constant column).
+    #[inline]
+    pub fn get(&self, row: usize) -> Arg<'_> {
+        let row = if self.constant { 0 } else { row };
+        let a = &self.array;
+        if a.is_null(row) {
+            return Arg::Null;
+        }
+        match self.shape {
+            Shape::Null => Arg::Null,
+            Shape::Integer => Arg::Integer(a.as_primitive::<Int64Type>().value(row)),
+            Shape::Real => {
+                let v = a.as_primitive::<Float64Type>().value(row);
+                if v.is_nan() { Arg::Null } else { Arg::Real(v) }
+            }
+            Shape::Text => Arg::Text(a.as_string::<i32>().value(row).as_bytes()),
+            Shape::LargeText => Arg::Text(a.as_string::<i64>().value(row).as_bytes()),
+            Shape::TextView => Arg::Text(a.as_string_view().value(row).as_bytes()),
+            Shape::Blob => Arg::Blob(a.as_binary::<i32>().value(row)),
+            Shape::LargeBlob => Arg::Blob(a.as_binary::<i64>().value(row)),
+            Shape::BlobView => Arg::Blob(a.as_binary_view().value(row)),
+        }
+    }
+}
+
+/// The value at `row` of an array, as the catalogue reads it, owned: how the shell and
+/// the tests read DataFusion's results.
+///
+/// # Errors
+/// As [`Column::new`].
+///
+/// # Example
+/// ```
+/// use std::sync::Arc;
+/// use datafusion::arrow::array::{ArrayRef, Float64Array};
+/// use ogive::catalogue::value::Out;
+/// let a: ArrayRef = Arc::new(Float64Array::from(vec![Some(1.5), None]));
+/// assert_eq!(ogive::datafusion::value_at(&a, 0).unwrap(), Out::Real(1.5));
+/// assert_eq!(ogive::datafusion::value_at(&a, 1).unwrap(), Out::Null);
+/// ```
+pub fn value_at(array: &ArrayRef, row: usize) -> Result<Out, DataFusionError> {
+    let c = Column::new("value_at", 0, Arc::clone(array), false)?;
+    Ok(match c.get(row) {
+        Arg::Null => Out::Null,
+        Arg::Integer(i) => Out::Integer(i),
+        Arg::Real(r) => Out::Real(r),
+        Arg::Text(t) => Out::Text(String::from_utf8_lossy(t).into_owned()),
+        Arg::Blob(b) => Out::Blob(b.to_vec()),
+    })
+}
+
+/// The Arrow type of a declared result.
+pub fn data_type(returns: Returns) -> DataType {
+    match returns {
+        Returns::Real | Returns::Count => DataType::Float64,
+        Returns::Integer => DataType::Int64,
+        Returns::Text | Returns::Rows => DataType::Utf8,
+        Returns::Blob => DataType::Binary,
+    }
+}
+
+/// Results as an array of the declared type.
+///
+/// # Errors
+/// A result of another type than declared (a registry row that drifted from its body).
+///
+/// # Example
+/// ```
+/// use ogive::catalogue::{Returns, value::Out};
+/// let a = ogive::datafusion::out_array("f", Returns::Count, vec![Out::Integer(3), Out::Null]).unwrap();
+/// assert_eq!(a.len(), 2);
+/// ```
+pub fn out_array(
+    name: &str,
+    returns: Returns,
+    outs: Vec<Out>,
+) -> Result<ArrayRef, DataFusionError> {
+    let drift = |o: &Out| {
+        DataFusionError::Internal(format!(
+            "{name} returned {o:?}, not its declared {returns:?}"
+        ))
+    };
+    let n = outs.len();
+    Ok(match returns {
+        Returns::Real | Returns::Count => {
+            let mut b = Float64Builder::with_capacity(n);
+            for o in &outs {
+                match o {
+                    Out::Null => b.append_null(),
+                    Out::Real(r) => b.append_value(*r),
+                    Out::Integer(i) if returns == Returns::Count => b.append_value(*i as f64),
+                    o => return Err(drift(o)),
+                }
+            }
+            Arc::new(b.finish())
+        }
+        Returns::Integer => {
+            let mut b = Int64Builder::with_capacity(n);
+            for o in &outs {
+                match o {
+                    Out::Null => b.append_null(),
+                    Out::Integer(i) => b.append_value(*i),
+                    o => return Err(drift(o)),
+                }
+            }
+            Arc::new(b.finish())
+        }
+        Returns::Text | Returns::Rows => {
+            let mut b = StringBuilder::with_capacity(n, 64 * n);
+            for o in &outs {
+                match o {
+                    Out::Null => b.append_null(),
+                    Out::Text(t) => b.append_value(t),
+                    o => return Err(drift(o)),
+                }
+            }
+            Arc::new(b.finish())
+        }
+        Returns::Blob => {
+            let mut b = BinaryBuilder::with_capacity(n, 64 * n);
+            for o in &outs {
+                match o {
+                    Out::Null => b.append_null(),
+                    Out::Blob(v) => b.append_value(v),
+                    o => return Err(drift(o)),
+                }
+            }
+            Arc::new(b.finish())
+        }
+    })
+}
