@@ -11,5 +11,5 @@ FROM (SELECT r.route,
              quantile(r.temp_c, 0.95) AS p95,
              quantiles(r.temp_c, '[0.5, 0.99]') AS qs
       FROM readings AS r JOIN routes AS ro USING (route)
-      GROUP BY r.route)
+      GROUP BY r.route, ro.kind)
 ORDER BY p95 DESC;

@@ -17,5 +17,5 @@ SELECT r.trailer,
        CASE WHEN 1 - ecdf(r.temp_c, b.p95) > 0.25 THEN 'drifting' ELSE 'steady' END AS verdict
 FROM readings AS r, baseline AS b
 WHERE r.route IS NULL AND r.week = 6
-GROUP BY r.trailer
+GROUP BY r.trailer, b.p50, b.p95
 ORDER BY share_above_fleet_p95 DESC;

@@ -21,7 +21,7 @@ use rusqlite::types::Value;
 use serde_json::{Map, json};
 
 use crate::Failure;
-use crate::db::{self, Access, Outcome, Params, ResultSet};
+use crate::db::{Access, Engine, EngineKind, Opened, Outcome, Params, ResultSet};
 use crate::output::{Block, Format, Printer, origin};
 use crate::run::{Source, Step, step, warn_unused};
 
@@ -83,7 +83,7 @@ fn passes(v: &Value) -> bool {
 
 /// Runs the checks of every file in order.
 pub fn run_checks(
-    conn: &rusqlite::Connection,
+    engine: Engine<'_>,
     sources: &[Source],
     params: &mut Params,
 ) -> Result<Vec<CheckResult>, Failure> {
@@ -102,7 +102,7 @@ pub fn run_checks(
                 failing: ResultSet::default(),
                 error: None,
             };
-            match step(conn, src, stmt, params)? {
+            match step(engine, src, stmt, params)? {
                 Step::Failed(description) => {
                     result.status = Status::Error;
                     result.error = Some(description);
@@ -319,6 +319,7 @@ pub fn check(
     format: Format,
     report_path: Option<&Path>,
     allow_writes: bool,
+    engine: (EngineKind, &[String]),
 ) -> Result<i32, Failure> {
     let mut params = Params::parse(params)?;
     let sources = Source::load_all(files)?;
@@ -335,8 +336,8 @@ pub fn check(
     } else {
         Access::ReadOnly
     };
-    let conn = db::open(db_path, access)?;
-    let results = run_checks(&conn, &sources, &mut params)?;
+    let opened = Opened::open(engine.0, engine.1, db_path, access, &params)?;
+    let results = run_checks(opened.engine(), &sources, &mut params)?;
     let names: Vec<String> = sources.iter().map(|s| s.name.clone()).collect();
     if results.is_empty() {
         return Err(Failure::usage(format!(

@@ -112,6 +112,113 @@ fn is_name_char(c: char) -> bool {
     c.is_ascii_alphanumeric() || c == '_' || !c.is_ascii()
 }
 
+/// The engine a verb's statements run on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, clap::ValueEnum)]
+pub enum EngineKind {
+    /// SQLite: the database file of --db, or a new in-memory one.
+    #[default]
+    Sqlite,
+    /// Apache DataFusion over the Parquet and CSV files of --table (needs a build with
+    /// `--features datafusion`).
+    Datafusion,
+}
+
+/// Where statements run: a SQLite connection, or a DataFusion session.
+#[derive(Clone, Copy)]
+pub enum Engine<'a> {
+    Sqlite(&'a Connection),
+    #[cfg(feature = "datafusion")]
+    Fusion(&'a crate::fusion::Fusion),
+}
+
+impl Engine<'_> {
+    /// Runs one statement (see [`execute`]).
+    pub fn execute(self, sql: &str, params: &mut Params) -> Result<Outcome, StatementError> {
+        match self {
+            Engine::Sqlite(conn) => execute(conn, sql, params),
+            #[cfg(feature = "datafusion")]
+            Engine::Fusion(f) => f.execute(sql),
+        }
+    }
+}
+
+/// An opened engine.
+pub enum Opened {
+    Sqlite(Connection),
+    #[cfg(feature = "datafusion")]
+    Fusion(crate::fusion::Fusion),
+}
+
+impl Opened {
+    /// Opens the engine a `run` or `check` asked for: SQLite on `db` (see [`open`]), or
+    /// DataFusion on the `--table` files.
+    pub fn open(
+        kind: EngineKind,
+        tables: &[String],
+        db: Option<&Path>,
+        access: Access,
+        params: &Params,
+    ) -> Result<Opened, Failure> {
+        match kind {
+            EngineKind::Sqlite => {
+                if let Some(t) = tables.first() {
+                    return Err(Failure::usage(format!(
+                        "--table {t} is for --engine datafusion; SQLite reads the tables of --db \
+                         (ogive import loads a CSV file into one)"
+                    )));
+                }
+                open(db, access).map(Opened::Sqlite)
+            }
+            EngineKind::Datafusion => {
+                if db.is_some() {
+                    return Err(Failure::usage(
+                        "--db is SQLite's; DataFusion reads files given as --table NAME=PATH \
+                         (ogive export writes a SQLite table as Parquet)",
+                    ));
+                }
+                if !params.values.is_empty() {
+                    return Err(Failure::usage(
+                        "--param is not supported with --engine datafusion; write the value \
+                         into the statement",
+                    ));
+                }
+                Opened::fusion(tables)
+            }
+        }
+    }
+
+    #[cfg(feature = "datafusion")]
+    fn fusion(tables: &[String]) -> Result<Opened, Failure> {
+        crate::fusion::Fusion::open(tables).map(Opened::Fusion)
+    }
+
+    #[cfg(not(feature = "datafusion"))]
+    fn fusion(_: &[String]) -> Result<Opened, Failure> {
+        Err(Failure::usage(
+            "this ogive was built without DataFusion: build it with \
+             `cargo build --release --features datafusion`",
+        ))
+    }
+
+    /// The engine to run statements on.
+    pub fn engine(&self) -> Engine<'_> {
+        match self {
+            Opened::Sqlite(c) => Engine::Sqlite(c),
+            #[cfg(feature = "datafusion")]
+            Opened::Fusion(f) => Engine::Fusion(f),
+        }
+    }
+
+    /// The SQLite connection, when the engine is SQLite (transactions are SQLite's).
+    pub fn sqlite(&self) -> Option<&Connection> {
+        match self {
+            Opened::Sqlite(c) => Some(c),
+            #[cfg(feature = "datafusion")]
+            Opened::Fusion(_) => None,
+        }
+    }
+}
+
 /// How a verb opens its database file.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Access {

@@ -11,6 +11,8 @@ mod catalogue;
 mod check;
 mod db;
 mod demo;
+#[cfg(feature = "datafusion")]
+mod fusion;
 mod glyphs;
 mod import;
 mod infer;
@@ -120,6 +122,19 @@ struct On {
     params: Vec<String>,
 }
 
+/// Which engine runs the statements.
+#[derive(Args)]
+struct EngineArgs {
+    /// sqlite (the --db file) or datafusion (the --table files; needs a build with
+    /// --features datafusion)
+    #[arg(long, value_enum, default_value_t = db::EngineKind::Sqlite)]
+    engine: db::EngineKind,
+    /// With --engine datafusion: a table of Parquet or CSV files (a file, a glob or a
+    /// folder); repeat for more
+    #[arg(long = "table", value_name = "NAME=PATH")]
+    tables: Vec<String>,
+}
+
 #[derive(Subcommand)]
 enum Verb {
     /// Run .sql files: every statement, each result set under a line naming its file and statement
@@ -141,6 +156,8 @@ enum Verb {
         /// Commit each statement as it runs (default: each file in one transaction)
         #[arg(long)]
         no_transaction: bool,
+        #[command(flatten)]
+        engine: EngineArgs,
     },
     /// Run check files: each query is a check that fails when a row's ok column is false or NULL
     Check {
@@ -157,6 +174,24 @@ enum Verb {
         /// Let the checks write to the database file (default: it is opened read-only)
         #[arg(long)]
         allow_writes: bool,
+        #[command(flatten)]
+        engine: EngineArgs,
+    },
+    /// Write a SQLite table (or view) as Parquet, for --engine datafusion (needs a build
+    /// with --features datafusion)
+    Export {
+        /// The SQLite database file
+        #[arg(long, value_name = "PATH")]
+        db: PathBuf,
+        /// The table or view to write
+        #[arg(long, value_name = "NAME")]
+        table: String,
+        /// FILE.parquet, or a folder for --files N above 1
+        #[arg(long, value_name = "PATH")]
+        to: PathBuf,
+        /// Split the rows, in order, over this many files in the folder --to
+        #[arg(long, value_name = "N", default_value_t = 1)]
+        files: usize,
     },
     /// Import a CSV file (header row; INTEGER, REAL or TEXT columns; empty cells NULL) in one transaction
     Import {
@@ -219,6 +254,24 @@ enum Verb {
     },
 }
 
+#[cfg(feature = "datafusion")]
+fn export(
+    db: &std::path::Path,
+    table: &str,
+    to: &std::path::Path,
+    files: usize,
+) -> Result<i32, Failure> {
+    fusion::export(db, table, to, files)
+}
+
+#[cfg(not(feature = "datafusion"))]
+fn export(_: &std::path::Path, _: &str, _: &std::path::Path, _: usize) -> Result<i32, Failure> {
+    Err(Failure::usage(
+        "export writes Parquet, which this ogive was built without: build it with \
+         `cargo build --release --features datafusion`",
+    ))
+}
+
 fn main() {
     interrupt::install();
     let cli = Cli::parse();
@@ -230,6 +283,7 @@ fn main() {
             format,
             out_dir,
             no_transaction,
+            engine,
         }) => run::run(
             &files,
             on.db.as_deref(),
@@ -238,6 +292,8 @@ fn main() {
                 format,
                 out_dir: out_dir.as_deref(),
                 no_transaction,
+                engine: engine.engine,
+                tables: &engine.tables,
             },
         ),
         Some(Verb::Check {
@@ -246,6 +302,7 @@ fn main() {
             format,
             report,
             allow_writes,
+            engine,
         }) => check::check(
             &files,
             on.db.as_deref(),
@@ -253,7 +310,14 @@ fn main() {
             format,
             report.as_deref(),
             allow_writes,
+            (engine.engine, &engine.tables),
         ),
+        Some(Verb::Export {
+            db,
+            table,
+            to,
+            files,
+        }) => export(&db, &table, &to, files),
         Some(Verb::Import {
             file,
             table,

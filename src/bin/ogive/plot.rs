@@ -619,7 +619,7 @@ pub fn plot_source(
 ) -> Result<usize, Failure> {
     let mut last = None;
     for stmt in &src.statements {
-        match step(conn, src, stmt, params)? {
+        match step(crate::db::Engine::Sqlite(conn), src, stmt, params)? {
             Step::Failed(description) => return Err(Failure::failed(description)),
             Step::Ran(Outcome::Rows(rows)) => last = Some((stmt, rows)),
             Step::Ran(Outcome::Changed(_)) => {}

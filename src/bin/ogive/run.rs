@@ -11,10 +11,8 @@
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
-use rusqlite::Connection;
-
 use crate::Failure;
-use crate::db::{self, Access, Outcome, Params, StatementError};
+use crate::db::{self, Access, Engine, EngineKind, Opened, Outcome, Params, StatementError};
 use crate::glyphs;
 use crate::output::{Block, CsvSink, Format, Printer, origin};
 use crate::script::{self, Statement, line_col};
@@ -151,12 +149,12 @@ pub enum Step {
 
 /// Runs one statement of a source, describing a failure. Ctrl-C is a [`Failure`].
 pub fn step(
-    conn: &Connection,
+    engine: Engine<'_>,
     src: &Source,
     stmt: &Statement,
     params: &mut Params,
 ) -> Result<Step, Failure> {
-    match db::execute(conn, &stmt.text, params) {
+    match engine.execute(&stmt.text, params) {
         Ok(out) if crate::interrupt::requested() => {
             drop(out);
             Err(Failure::interrupted())
@@ -196,6 +194,9 @@ pub struct RunOptions<'a> {
     pub out_dir: Option<&'a Path>,
     /// Commit each statement as it runs instead of each file as a whole.
     pub no_transaction: bool,
+    /// The engine, and its tables when it is DataFusion.
+    pub engine: EngineKind,
+    pub tables: &'a [String],
 }
 
 /// Checks `--out-dir` before anything runs, creating the directory when missing.
@@ -223,7 +224,7 @@ pub fn run(
 ) -> Result<i32, Failure> {
     let mut params = Params::parse(params)?;
     let sources = Source::load_all(files)?;
-    if !options.no_transaction {
+    if !options.no_transaction && options.engine == EngineKind::Sqlite {
         for src in &sources {
             if let Some((line, word)) = src.manages_transactions() {
                 return Err(Failure::usage(format!(
@@ -235,7 +236,13 @@ pub fn run(
         }
     }
     let dir = csv_dir(options.out_dir, options.format)?;
-    let conn = db::open(db_path, Access::Existing)?;
+    let opened = Opened::open(
+        options.engine,
+        options.tables,
+        db_path,
+        Access::Existing,
+        &params,
+    )?;
     let stdout = std::io::stdout();
     let mut printer = Printer::new(options.format, stdout.lock());
     if let Some(dir) = dir {
@@ -249,16 +256,15 @@ pub fn run(
             eprintln!("ogive: warning: {} has no statements", src.name);
             continue;
         }
-        let tx = if options.no_transaction {
-            None
-        } else {
-            Some(
+        let tx = match opened.sqlite() {
+            Some(conn) if !options.no_transaction => Some(
                 conn.unchecked_transaction()
                     .map_err(|e| Failure::failed(format!("{}: cannot begin: {e}", src.name)))?,
-            )
+            ),
+            _ => None,
         };
         for stmt in &src.statements {
-            match step(&conn, src, stmt, &mut params)? {
+            match step(opened.engine(), src, stmt, &mut params)? {
                 Step::Ran(out) => printer.print(&outcome_block(src, stmt, out))?,
                 Step::Failed(description) => {
                     std::io::stdout().flush().ok();

@@ -14,6 +14,7 @@ use serde_json::{Map, json};
 
 use crate::Failure;
 use crate::check::{self, Status};
+use crate::db::Engine;
 use crate::db::{self, Params, ResultSet};
 use crate::interrupt;
 use crate::output::{Block, Format, Printer};
@@ -228,7 +229,7 @@ pub fn demo(out_dir: &Path, db_path: Option<&Path>, format: Format) -> Result<i3
     let mut failed = false;
     for src in &questions {
         for stmt in &src.statements {
-            match run::step(&conn, src, stmt, &mut params)? {
+            match run::step(Engine::Sqlite(&conn), src, stmt, &mut params)? {
                 Step::Ran(out) => printer.print(&run::outcome_block(src, stmt, out))?,
                 Step::Failed(description) => {
                     eprintln!("ogive: {description}");
@@ -240,7 +241,7 @@ pub fn demo(out_dir: &Path, db_path: Option<&Path>, format: Format) -> Result<i3
 
     // The checks.
     if !checks.is_empty() {
-        let results = check::run_checks(&conn, &checks, &mut params)?;
+        let results = check::run_checks(Engine::Sqlite(&conn), &checks, &mut params)?;
         check::report(&results, &mut printer)?;
         failed |= results.iter().any(|r| r.status == Status::Error);
     }

@@ -1,0 +1,304 @@
+//! `--engine datafusion`: the same run and check files over Parquet and CSV files, on an
+//! Apache DataFusion session with every ogive function registered; and `export`, which
+//! writes a SQLite table as Parquet so that it can move across.
+
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+use std::time::Duration;
+
+use datafusion::arrow::array::{
+    ArrayRef, BinaryBuilder, Float64Builder, Int64Builder, RecordBatch, StringBuilder,
+};
+use datafusion::arrow::datatypes::{DataType, Field, Schema};
+use datafusion::parquet::arrow::ArrowWriter;
+use datafusion::prelude::{CsvReadOptions, ParquetReadOptions, SessionConfig, SessionContext};
+use ogive::catalogue::value::Out;
+use rusqlite::types::Value;
+
+use crate::Failure;
+use crate::db::{Outcome, ResultSet, StatementError};
+
+/// A DataFusion session with ogive's functions and the user's tables.
+pub struct Fusion {
+    ctx: SessionContext,
+    rt: tokio::runtime::Runtime,
+}
+
+/// What a `--table NAME=PATH` names: Parquet or CSV files.
+fn format_of(path: &str) -> Result<&'static str, Failure> {
+    let lower = path.to_ascii_lowercase();
+    let pick = |name: &str| {
+        if name.ends_with(".parquet") {
+            Some("parquet")
+        } else if name.ends_with(".csv") {
+            Some("csv")
+        } else {
+            None
+        }
+    };
+    if let Some(f) = pick(&lower) {
+        return Ok(f);
+    }
+    let dir = Path::new(path);
+    if dir.is_dir() {
+        let mut names: Vec<String> = std::fs::read_dir(dir)
+            .map_err(|e| Failure::usage(format!("cannot read the folder {path}: {e}")))?
+            .filter_map(|e| e.ok())
+            .map(|e| e.file_name().to_string_lossy().to_ascii_lowercase())
+            .collect();
+        names.sort();
+        if let Some(f) = names.iter().find_map(|n| pick(n)) {
+            return Ok(f);
+        }
+        return Err(Failure::usage(format!(
+            "--table: the folder {path} holds no .parquet or .csv files"
+        )));
+    }
+    Err(Failure::usage(format!(
+        "--table: {path} is neither a .parquet or .csv file (or a glob of them) nor a folder \
+         of such files"
+    )))
+}
+
+impl Fusion {
+    /// A session with `tables` (`NAME=PATH` each) registered.
+    pub fn open(tables: &[String]) -> Result<Fusion, Failure> {
+        let rt = tokio::runtime::Builder::new_multi_thread()
+            .enable_all()
+            .build()
+            .map_err(|e| Failure::failed(format!("cannot start DataFusion's runtime: {e}")))?;
+        let partitions = std::thread::available_parallelism().map_or(1, |n| n.get());
+        let mut ctx = SessionContext::new_with_config(
+            SessionConfig::new().with_target_partitions(partitions),
+        );
+        ogive::datafusion::register(&mut ctx)
+            .map_err(|e| Failure::failed(format!("cannot register ogive's functions: {e}")))?;
+        for spec in tables {
+            let Some((name, path)) = spec.split_once('=') else {
+                return Err(Failure::usage(format!(
+                    "--table {spec}: write NAME=PATH, for example --table readings=data/readings.parquet"
+                )));
+            };
+            let registered = match format_of(path)? {
+                "parquet" => {
+                    rt.block_on(ctx.register_parquet(name, path, ParquetReadOptions::default()))
+                }
+                _ => rt.block_on(ctx.register_csv(
+                    name,
+                    path,
+                    CsvReadOptions::new().has_header(true),
+                )),
+            };
+            registered
+                .map_err(|e| Failure::usage(format!("--table {name}: cannot read {path}: {e}")))?;
+        }
+        Ok(Fusion { ctx, rt })
+    }
+
+    /// Runs one statement, cancelled by Ctrl-C.
+    pub fn execute(&self, sql: &str) -> Result<Outcome, StatementError> {
+        let fail = |e: datafusion::error::DataFusionError| {
+            let message = e.to_string();
+            StatementError::Sql {
+                offset: crate::script::failing_call(sql, &message),
+                message,
+            }
+        };
+        let work = async {
+            let df = self.ctx.sql(sql).await.map_err(fail)?;
+            let columns: Vec<String> = df
+                .schema()
+                .fields()
+                .iter()
+                .map(|f| f.name().clone())
+                .collect();
+            let batches = df.collect().await.map_err(fail)?;
+            if columns.is_empty() {
+                return Ok(Outcome::Changed(0));
+            }
+            let mut rows = Vec::new();
+            for b in &batches {
+                for r in 0..b.num_rows() {
+                    let row = b
+                        .columns()
+                        .iter()
+                        .map(|c| ogive::datafusion::value_at(c, r).map(value))
+                        .collect::<Result<Vec<_>, _>>()
+                        .map_err(fail)?;
+                    rows.push(row);
+                }
+            }
+            Ok(Outcome::Rows(ResultSet { columns, rows }))
+        };
+        self.rt.block_on(async {
+            tokio::select! {
+                r = work => r,
+                () = cancelled() => Err(StatementError::Interrupted),
+            }
+        })
+    }
+}
+
+/// Resolves when Ctrl-C was pressed.
+async fn cancelled() {
+    while !crate::interrupt::requested() {
+        tokio::time::sleep(Duration::from_millis(20)).await;
+    }
+}
+
+fn value(o: Out) -> Value {
+    match o {
+        Out::Null => Value::Null,
+        Out::Integer(i) => Value::Integer(i),
+        Out::Real(r) => Value::Real(r),
+        Out::Text(t) => Value::Text(t),
+        Out::Blob(b) => Value::Blob(b),
+    }
+}
+
+/// The Arrow type of one SQLite column, from its values: INTEGER, REAL (integers
+/// among reals become reals), TEXT or BLOB; NULLs fit any.
+fn column_type(
+    table: &str,
+    column: &str,
+    values: impl Iterator<Item = Value>,
+) -> Result<DataType, Failure> {
+    let mut ty: Option<DataType> = None;
+    for v in values {
+        let this = match v {
+            Value::Null => continue,
+            Value::Integer(_) => DataType::Int64,
+            Value::Real(_) => DataType::Float64,
+            Value::Text(_) => DataType::Utf8,
+            Value::Blob(_) => DataType::Binary,
+        };
+        ty = Some(match (ty, this) {
+            (None, t) => t,
+            (Some(a), b) if a == b => a,
+            (Some(DataType::Int64), DataType::Float64)
+            | (Some(DataType::Float64), DataType::Int64) => DataType::Float64,
+            (Some(a), b) => {
+                return Err(Failure::failed(format!(
+                    "export: {table}.{column} holds both {a} and {b} values; Parquet needs one type \
+                     per column: CAST the column in a view and export the view"
+                )));
+            }
+        });
+    }
+    Ok(ty.unwrap_or(DataType::Utf8))
+}
+
+fn array(ty: &DataType, values: &[Value]) -> ArrayRef {
+    match ty {
+        DataType::Int64 => {
+            let mut b = Int64Builder::with_capacity(values.len());
+            for v in values {
+                match v {
+                    Value::Integer(i) => b.append_value(*i),
+                    _ => b.append_null(),
+                }
+            }
+            Arc::new(b.finish())
+        }
+        DataType::Float64 => {
+            let mut b = Float64Builder::with_capacity(values.len());
+            for v in values {
+                match v {
+                    Value::Integer(i) => b.append_value(*i as f64),
+                    Value::Real(r) => b.append_value(*r),
+                    _ => b.append_null(),
+                }
+            }
+            Arc::new(b.finish())
+        }
+        DataType::Binary => {
+            let mut b = BinaryBuilder::new();
+            for v in values {
+                match v {
+                    Value::Blob(x) => b.append_value(x),
+                    _ => b.append_null(),
+                }
+            }
+            Arc::new(b.finish())
+        }
+        _ => {
+            let mut b = StringBuilder::new();
+            for v in values {
+                match v {
+                    Value::Text(t) => b.append_value(t),
+                    _ => b.append_null(),
+                }
+            }
+            Arc::new(b.finish())
+        }
+    }
+}
+
+/// The `export` verb: a SQLite table (or view) as one Parquet file, or as `files` files
+/// of consecutive rows in a folder.
+pub fn export(db: &Path, table: &str, to: &Path, files: usize) -> Result<i32, Failure> {
+    if files == 0 {
+        return Err(Failure::usage("export: --files must be at least 1"));
+    }
+    let conn = crate::db::open(Some(db), crate::db::Access::ReadOnly)?;
+    let sql = format!("SELECT * FROM {}", crate::db::quote_ident(table));
+    let mut stmt = conn
+        .prepare(&sql)
+        .map_err(|e| Failure::usage(format!("export: cannot read {table}: {e}")))?;
+    let names: Vec<String> = stmt.column_names().into_iter().map(String::from).collect();
+    let n = names.len();
+    let rows: Vec<Vec<Value>> = stmt
+        .query_map([], |r| (0..n).map(|i| r.get::<_, Value>(i)).collect())
+        .and_then(|it| it.collect())
+        .map_err(|e| Failure::failed(format!("export: cannot read {table}: {e}")))?;
+    let mut fields = Vec::with_capacity(n);
+    for (i, name) in names.iter().enumerate() {
+        let ty = column_type(table, name, rows.iter().map(|r| r[i].clone()))?;
+        fields.push(Field::new(name, ty, true));
+    }
+    let schema = Arc::new(Schema::new(fields));
+    let targets: Vec<PathBuf> = if files == 1 && to.extension().is_some_and(|e| e == "parquet") {
+        vec![to.to_path_buf()]
+    } else {
+        std::fs::create_dir_all(to)
+            .map_err(|e| Failure::usage(format!("export: cannot create {}: {e}", to.display())))?;
+        (1..=files)
+            .map(|i| to.join(format!("{table}-{i}.parquet")))
+            .collect()
+    };
+    let per = rows.len().div_ceil(files).max(1);
+    let mut chunks = rows.chunks(per);
+    for path in &targets {
+        let part = chunks.next().unwrap_or(&[]);
+        let cols: Vec<ArrayRef> = schema
+            .fields()
+            .iter()
+            .enumerate()
+            .map(|(i, f)| {
+                let values: Vec<Value> = part.iter().map(|r| r[i].clone()).collect();
+                array(f.data_type(), &values)
+            })
+            .collect();
+        let batch = RecordBatch::try_new(Arc::clone(&schema), cols)
+            .map_err(|e| Failure::failed(format!("export: {e}")))?;
+        let file = std::fs::File::create(path)
+            .map_err(|e| Failure::usage(format!("export: cannot write {}: {e}", path.display())))?;
+        let mut w = ArrowWriter::try_new(file, Arc::clone(&schema), None)
+            .map_err(|e| Failure::failed(format!("export: {e}")))?;
+        w.write(&batch)
+            .map_err(|e| Failure::failed(format!("export: {e}")))?;
+        w.close()
+            .map_err(|e| Failure::failed(format!("export: {e}")))?;
+    }
+    let rows_word = if rows.len() == 1 { "row" } else { "rows" };
+    eprintln!(
+        "ogive: wrote {} {rows_word} of {table} to {}",
+        rows.len(),
+        if targets.len() == 1 {
+            targets[0].display().to_string()
+        } else {
+            format!("{} files in {}", targets.len(), to.display())
+        }
+    );
+    Ok(0)
+}
