@@ -1,0 +1,146 @@
+//! The shell on DataFusion: the demo database exported to Parquet, and its check files
+//! and portable query files run with `--engine datafusion`, print exactly what they print
+//! on SQLite (the reference: the SQLite engine, checked by tests/shell.rs).
+#![cfg(feature = "datafusion")]
+
+use std::path::Path;
+use std::process::Command;
+
+const BIN: &str = env!("CARGO_BIN_EXE_ogive");
+const ROOT: &str = env!("CARGO_MANIFEST_DIR");
+
+fn ogive(args: &[&str], dir: &Path) -> (i32, String, String) {
+    let out = Command::new(BIN)
+        .args(args)
+        .current_dir(dir)
+        .env("NO_COLOR", "1")
+        .output()
+        .unwrap();
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+#[test]
+fn demo_checks_and_queries_print_the_same_on_both_engines() {
+    let dir = std::env::temp_dir().join(format!("ogive-shell-df-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let (code, _, err) = ogive(&["demo", "--db", "demo.db", "--out-dir", "plots"], &dir);
+    assert_eq!(code, 0, "demo: {err}");
+    let (code, _, err) = ogive(
+        &[
+            "export", "--db", "demo.db", "--table", "readings", "--to", "readings", "--files", "3",
+        ],
+        &dir,
+    );
+    assert_eq!(code, 0, "{err}");
+    assert!(err.contains("to 3 files in readings"), "{err}");
+    for t in ["trailers", "routes"] {
+        let to = format!("{t}.parquet");
+        let (code, _, err) = ogive(
+            &["export", "--db", "demo.db", "--table", t, "--to", &to],
+            &dir,
+        );
+        assert_eq!(code, 0, "{err}");
+    }
+    let tables = [
+        "--engine",
+        "datafusion",
+        "--table",
+        "readings=readings",
+        "--table",
+        "trailers=trailers.parquet",
+        "--table",
+        "routes=routes.parquet",
+    ];
+    let checks =
+        ["cold_chain.sql", "logger.sql", "regimes.sql"].map(|f| format!("{ROOT}/sql/checks/{f}"));
+    let mut files: Vec<String> = [
+        "01_depot_profiles.sql",
+        "02_share_above_limit.sql",
+        "03_route_percentiles.sql",
+        "04_drift_this_week.sql",
+        "05_pallet_weighted.sql",
+    ]
+    .iter()
+    .map(|f| format!("{ROOT}/sql/demo/{f}"))
+    .collect();
+    for (verb, list) in [
+        ("check", checks.to_vec()),
+        ("run", std::mem::take(&mut files)),
+    ] {
+        for format in ["table", "csv", "json"] {
+            let mut lite: Vec<&str> = vec![verb, "--db", "demo.db", "--format", format];
+            lite.extend(list.iter().map(String::as_str));
+            let mut fusion: Vec<&str> = vec![verb, "--format", format];
+            fusion.extend(tables);
+            fusion.extend(list.iter().map(String::as_str));
+            let a = ogive(&lite, &dir);
+            let b = ogive(&fusion, &dir);
+            assert_eq!(
+                a.0, b.0,
+                "{verb} --format {format}: exit codes; DataFusion said {}",
+                b.2
+            );
+            assert_eq!(a.1, b.1, "{verb} --format {format}: output");
+            assert!(!a.1.is_empty());
+        }
+    }
+    // The JUnit report is the same too.
+    let mut lite = vec!["check", "--db", "demo.db", "--report", "lite.xml"];
+    lite.extend(checks.iter().map(String::as_str));
+    let mut fusion = vec!["check", "--report", "fusion.xml"];
+    fusion.extend(tables);
+    fusion.extend(checks.iter().map(String::as_str));
+    ogive(&lite, &dir);
+    ogive(&fusion, &dir);
+    let strip_times = |s: String| {
+        s.lines()
+            .map(|l| l.split(" time=").next().unwrap_or(l).to_string())
+            .collect::<Vec<_>>()
+    };
+    assert_eq!(
+        strip_times(std::fs::read_to_string(dir.join("lite.xml")).unwrap()),
+        strip_times(std::fs::read_to_string(dir.join("fusion.xml")).unwrap())
+    );
+    std::fs::remove_dir_all(&dir).ok();
+}
+
+#[test]
+fn engine_flags_are_checked_before_anything_runs() {
+    let dir = std::env::temp_dir();
+    let q = format!("{ROOT}/sql/checks/logger.sql");
+    let (code, _, err) = ogive(
+        &["run", "--engine", "datafusion", "--table", "readings", &q],
+        &dir,
+    );
+    assert_eq!(code, 2);
+    assert!(err.contains("write NAME=PATH"), "{err}");
+    let (code, _, err) = ogive(
+        &[
+            "run",
+            "--engine",
+            "datafusion",
+            "--table",
+            "r=/nonexistent/x.parquet",
+            &q,
+        ],
+        &dir,
+    );
+    assert_eq!(code, 2);
+    assert!(
+        err.contains("--table r: cannot read /nonexistent/x.parquet"),
+        "{err}"
+    );
+    let (code, _, err) = ogive(&["run", "--table", "r=x.parquet", &q], &dir);
+    assert_eq!(code, 2);
+    assert!(err.contains("is for --engine datafusion"), "{err}");
+    let (code, _, err) = ogive(
+        &["check", "--engine", "datafusion", "--db", "x.db", &q],
+        &dir,
+    );
+    assert_eq!(code, 2);
+    assert!(err.contains("--db is SQLite's"), "{err}");
+}
