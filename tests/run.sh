@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
-# The whole test suite: Rust unit, doc and integration tests, the loadable extension's own
-# tests, and the Python cross-checks through the real extension (apsw and the sqlite3 CLI).
+# The whole test suite: Rust unit, doc and integration tests (also with the DataFusion
+# adapter), the loadable extension's own tests, and the Python cross-checks through the real extension (apsw and the sqlite3 CLI).
 # Creates .venv from tests/requirements.txt on first use.
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -11,6 +11,11 @@ export OGIVE_EXTENSION="$PWD/ext/target/release/libogive.so"
 
 echo "== cargo test (library, shell, integration)"
 cargo test
+echo "== cargo test --features datafusion (the DataFusion adapter, and the shell on it)"
+# DataFusion takes minutes to build the first time; the default build does not include it.
+cargo test --features datafusion --test datafusion --test shell_datafusion
+cargo test --features datafusion --lib -- datafusion::
+cargo test --features datafusion --doc -- datafusion
 echo "== cargo test (extension entry point)"
 cargo test --release --manifest-path ext/Cargo.toml
 

@@ -245,7 +245,7 @@ pub fn export(db: &Path, table: &str, to: &Path, files: usize) -> Result<i32, Fa
     let mut stmt = conn
         .prepare(&sql)
         .map_err(|e| Failure::usage(format!("export: cannot read {table}: {e}")))?;
-    let names: Vec<String> = stmt.column_names().into_iter().map(String::from).collect();
+    let names: Vec<String> = stmt.column_names().map(String::from).collect();
     let n = names.len();
     let rows: Vec<Vec<Value>> = stmt
         .query_map([], |r| (0..n).map(|i| r.get::<_, Value>(i)).collect())
