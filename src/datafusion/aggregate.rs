@@ -20,7 +20,8 @@ use ::datafusion::logical_expr::{Accumulator, AggregateUDF, AggregateUDFImpl, Si
 use super::convert::{Column, data_type, out_array};
 use super::scalar::signature;
 use super::to_datafusion;
-use crate::catalogue::state::{Aggregator, Args};
+use crate::catalogue::args::{ArgError, FunctionError, fail};
+use crate::catalogue::state::{Aggregator, Args, Lane, Sink, try_push};
 use crate::catalogue::value::{Arg, Out};
 use crate::catalogue::{FunctionDef, Imp, Kind};
 use crate::sqlite::MAX_ARGS;
@@ -91,14 +92,14 @@ struct Acc {
 by_name!(Acc);
 
 impl Acc {
-    /// Runs `body` on every row of a batch.
+    /// Runs `body` on every row of a batch; with `lane`, rows the state's fast lane takes
+    /// (see [`Lane`]) skip the general step, as in the SQLite adapter: a numeric constant
+    /// with the group's bits and a numeric or NULL `x` only add `x`.
     fn each_row(
         &mut self,
         values: &[ArrayRef],
-        body: fn(
-            &mut dyn Aggregator,
-            &Args<'_>,
-        ) -> Result<(), crate::catalogue::args::FunctionError>,
+        lane: bool,
+        body: fn(&mut dyn Aggregator, &Args<'_>) -> Result<(), FunctionError>,
     ) -> Result<(), DataFusionError> {
         if self.finished {
             return Err(self.finished_error());
@@ -112,14 +113,71 @@ impl Acc {
         let rows = values.first().map_or(0, |a| a.len());
         let n = cols.len().min(MAX_ARGS);
         let mut args = [Arg::Null; MAX_ARGS];
-        for row in 0..rows {
+        let mut row = 0;
+        while row < rows {
+            if lane && let [x, c] = cols.as_slice() {
+                row = self.lane_rows(x, c, row, rows)?;
+                if row == rows {
+                    break;
+                }
+            }
             for (slot, c) in args.iter_mut().zip(&cols) {
                 *slot = c.get(row);
             }
             body(self.state.as_mut(), &Args::new(&args[..n])).map_err(to_datafusion)?;
+            row += 1;
         }
         self.rows = self.rows.saturating_add(rows);
         Ok(())
+    }
+
+    /// Adds rows `from..` through the state's lane while they qualify; returns the first
+    /// row it did not take.
+    #[inline]
+    fn lane_rows(
+        &mut self,
+        x: &Column,
+        c: &Column,
+        from: usize,
+        rows: usize,
+    ) -> Result<usize, DataFusionError> {
+        let Some(Lane { key, mut sink }) = self.state.lane() else {
+            return Ok(from);
+        };
+        let mut row = from;
+        while row < rows {
+            let bits = match c.get(row) {
+                Arg::Real(v) => v.to_bits(),
+                Arg::Integer(i) => (i as f64).to_bits(),
+                _ => break,
+            };
+            if bits != key {
+                break;
+            }
+            let v = match x.get(row) {
+                Arg::Null => {
+                    row += 1;
+                    continue;
+                }
+                Arg::Real(v) => v,
+                Arg::Integer(i) => i as f64,
+                _ => break,
+            };
+            match &mut sink {
+                Sink::Count(counter) => counter.add(v),
+                Sink::Collect(xs) => {
+                    if !try_push(xs, v) {
+                        let held = xs.len();
+                        return Err(to_datafusion(fail(
+                            self.def.name,
+                            ArgError::OutOfMemory { held },
+                        )));
+                    }
+                }
+            }
+            row += 1;
+        }
+        Ok(row)
     }
 
     fn finished_error(&self) -> DataFusionError {
@@ -139,11 +197,11 @@ fn scalar_of(def: &FunctionDef, out: Out) -> Result<ScalarValue, DataFusionError
 
 impl Accumulator for Acc {
     fn update_batch(&mut self, values: &[ArrayRef]) -> Result<(), DataFusionError> {
-        self.each_row(values, |s, a| s.step(a))
+        self.each_row(values, true, |s, a| s.step(a))
     }
 
     fn retract_batch(&mut self, values: &[ArrayRef]) -> Result<(), DataFusionError> {
-        self.each_row(values, |s, a| s.inverse(a))
+        self.each_row(values, false, |s, a| s.inverse(a))
     }
 
     fn supports_retract_batch(&self) -> bool {

@@ -66,9 +66,14 @@ use crate::catalogue::{self, Imp};
 pub use convert::{out_array, value_at};
 
 /// The one helper that turns a catalogue error into the error DataFusion reports: the
-/// same text as in SQLite (`quantile: p must be ...`).
+/// same text as in SQLite (`quantile: p must be ...`); running out of memory is
+/// DataFusion's resources-exhausted error.
 pub fn to_datafusion(e: FunctionError) -> DataFusionError {
-    DataFusionError::Execution(e.to_string())
+    if e.is_out_of_memory() {
+        DataFusionError::ResourcesExhausted(e.to_string())
+    } else {
+        DataFusionError::Execution(e.to_string())
+    }
 }
 
 /// Registers every function of the registry, and the `->>` and `->` JSON operators, on

@@ -9,6 +9,7 @@ use ::datafusion::logical_expr::{
 
 use super::convert::{Column, data_type, out_array};
 use super::to_datafusion;
+use crate::catalogue::args::{ArgError, fail};
 use crate::catalogue::reader::{Call, Memo, Shared};
 use crate::catalogue::value::Arg;
 use crate::catalogue::{FunctionDef, Imp};
@@ -110,9 +111,8 @@ impl ScalarUDFImpl for Scalar {
             held: Default::default(),
         };
         let mut outs = Vec::new();
-        outs.try_reserve_exact(rows).map_err(|_| {
-            DataFusionError::ResourcesExhausted(format!("{}: out of memory", self.def.name))
-        })?;
+        outs.try_reserve_exact(rows)
+            .map_err(|_| to_datafusion(fail(self.def.name, ArgError::OutOfMemory { held: 0 })))?;
         let mut values = [Arg::Null; MAX_ARGS];
         let n = cols.len().min(MAX_ARGS);
         for row in 0..rows {
