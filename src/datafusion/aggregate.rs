@@ -4,9 +4,11 @@
 //! between processes) is one BINARY value: the catalogue's saved form of the state
 //! (`docs/state-format.md`), merged on arrival by the state's own `merge`. A window row
 //! (`Kind::Window`) supports retraction through the state's `inverse`, so sliding frames
-//! cost what they cost in SQLite. An aggregate row used with `OVER` on a growing frame is
-//! answered by its `value` after every row, like a window row; an aggregate row that has
-//! been finalised refuses further rows instead of answering from a consumed state.
+//! cost what they cost in SQLite. A window row answers one group by `finalize` (as
+//! SQLite's xFinal: `quantile` by selection) and frame after frame by `value`; an
+//! aggregate row that has been finalised refuses further rows (it is no window function,
+//! though DataFusion would let it run `OVER` a frame) instead of answering from a
+//! consumed state.
 
 use std::sync::Arc;
 
@@ -56,18 +58,14 @@ impl AggregateUDFImpl for Aggregate {
     }
 
     fn accumulator(&self, _: AccumulatorArgs) -> Result<Box<dyn Accumulator>, DataFusionError> {
-        let Imp::Aggregate(imp) = self.def.imp else {
-            return Err(DataFusionError::Internal(format!(
-                "{} is not an aggregate",
-                self.def.name
-            )));
-        };
-        Ok(Box::new(Acc {
-            def: self.def,
-            state: (imp.new)(),
-            rows: 0,
-            finished: false,
-        }))
+        Ok(Box::new(self.acc(false)?))
+    }
+
+    fn create_sliding_accumulator(
+        &self,
+        _: AccumulatorArgs,
+    ) -> Result<Box<dyn Accumulator>, DataFusionError> {
+        Ok(Box::new(self.acc(true)?))
     }
 
     fn state_fields(&self, args: StateFieldsArgs) -> Result<Vec<FieldRef>, DataFusionError> {
@@ -79,6 +77,25 @@ impl AggregateUDFImpl for Aggregate {
     }
 }
 
+impl Aggregate {
+    /// A new state; `framed` for sliding window frames.
+    fn acc(&self, framed: bool) -> Result<Acc, DataFusionError> {
+        let Imp::Aggregate(imp) = self.def.imp else {
+            return Err(DataFusionError::Internal(format!(
+                "{} is not an aggregate",
+                self.def.name
+            )));
+        };
+        Ok(Acc {
+            def: self.def,
+            state: (imp.new)(),
+            rows: 0,
+            finished: false,
+            framed,
+        })
+    }
+}
+
 /// One group's state.
 struct Acc {
     def: &'static FunctionDef,
@@ -87,6 +104,10 @@ struct Acc {
     rows: usize,
     /// An aggregate row's state after `finalize`.
     finished: bool,
+    /// A window row answering frame after frame: by `value` (which may build an index
+    /// for the next frames) instead of `finalize` (one answer, by selection). Set for
+    /// sliding frames, and from the second answer on for growing ones.
+    framed: bool,
 }
 
 by_name!(Acc);
@@ -213,7 +234,12 @@ impl Accumulator for Acc {
             return Err(self.finished_error());
         }
         let out = if self.def.kind == Kind::Window {
-            self.state.value()
+            if self.framed {
+                self.state.value()
+            } else {
+                self.framed = true;
+                self.state.finalize()
+            }
         } else {
             self.finished = true;
             self.state.finalize()

@@ -12,7 +12,6 @@
 
 use std::sync::Arc;
 
-use ::datafusion::arrow::array::{ArrayRef, Float64Builder, Int64Builder, StringBuilder};
 use ::datafusion::arrow::datatypes::DataType;
 use ::datafusion::common::{DFSchema, ScalarValue};
 use ::datafusion::error::DataFusionError;
@@ -23,7 +22,9 @@ use ::datafusion::logical_expr::{
 use ::datafusion::sql::sqlparser::ast::BinaryOperator;
 use serde_json::Value;
 
-use crate::catalogue::value::Arg;
+use super::convert::{data_type, out_array};
+use crate::catalogue::Returns;
+use crate::catalogue::value::{Arg, Out};
 
 /// The integer-valued fields of ogive's JSON results.
 pub const COUNT_FIELDS: &[&str] = &["n", "n1", "n2", "k", "iterations", "component"];
@@ -45,6 +46,14 @@ impl Read {
             Read::Json => "ogive_json_element",
             Read::Count => "ogive_json_count",
             Read::Number => "ogive_json_number",
+        }
+    }
+
+    fn returns(self) -> Returns {
+        match self {
+            Read::Json => Returns::Text,
+            Read::Count => Returns::Integer,
+            Read::Number => Returns::Real,
         }
     }
 
@@ -247,11 +256,7 @@ impl ScalarUDFImpl for Element {
     }
 
     fn return_type(&self, _: &[DataType]) -> Result<DataType, DataFusionError> {
-        Ok(match self.read {
-            Read::Json => DataType::Utf8,
-            Read::Count => DataType::Int64,
-            Read::Number => DataType::Float64,
-        })
+        Ok(data_type(self.read.returns()))
     }
 
     fn invoke_with_args(&self, args: ScalarFunctionArgs) -> Result<ColumnarValue, DataFusionError> {
@@ -267,45 +272,23 @@ impl ScalarUDFImpl for Element {
         for row in 0..rows {
             got.push(self.row(json.get(row), path.get(row), &mut parsed)?);
         }
-        let array: ArrayRef = match self.read {
-            Read::Json => {
-                let mut b = StringBuilder::new();
-                for g in got {
-                    match g {
-                        Got::Json(s) => b.append_value(s),
-                        _ => b.append_null(),
-                    }
+        let mut outs = Vec::with_capacity(rows);
+        for g in got {
+            outs.push(match (self.read, g) {
+                (_, Got::Null) => Out::Null,
+                (_, Got::Json(t)) => Out::Text(t),
+                (Read::Count, Got::Number(x)) if x.fract() == 0.0 && x.abs() < 9.2e18 => {
+                    Out::Integer(x as i64)
                 }
-                Arc::new(b.finish())
-            }
-            Read::Count => {
-                let mut b = Int64Builder::new();
-                for g in got {
-                    match g {
-                        Got::Number(x) if x.fract() == 0.0 && x.abs() < 9.2e18 => {
-                            b.append_value(x as i64)
-                        }
-                        Got::Number(x) => {
-                            return Err(DataFusionError::Execution(format!(
-                                "->>: the count field is {x}, not an integer"
-                            )));
-                        }
-                        _ => b.append_null(),
-                    }
+                (Read::Count, Got::Number(x)) => {
+                    return Err(DataFusionError::Execution(format!(
+                        "->>: the count field is {x}, not an integer"
+                    )));
                 }
-                Arc::new(b.finish())
-            }
-            Read::Number => {
-                let mut b = Float64Builder::new();
-                for g in got {
-                    match g {
-                        Got::Number(x) => b.append_value(x),
-                        _ => b.append_null(),
-                    }
-                }
-                Arc::new(b.finish())
-            }
-        };
+                (_, Got::Number(x)) => Out::Real(x),
+            });
+        }
+        let array = out_array(self.read.operator(), self.read.returns(), outs)?;
         Ok(ColumnarValue::Array(array))
     }
 }

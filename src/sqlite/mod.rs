@@ -85,8 +85,15 @@ pub fn arg(v: ValueRef<'_>) -> Arg<'_> {
     }
 }
 
-/// A catalogue result as a SQLite value.
-pub(crate) fn value(o: Out) -> Value {
+/// A catalogue result as a SQLite value (also how the shell holds DataFusion's results).
+///
+/// # Example
+/// ```
+/// use ogive::catalogue::value::Out;
+/// use ogive::rusqlite::types::Value;
+/// assert_eq!(ogive::sqlite::value(Out::Integer(3)), Value::Integer(3));
+/// ```
+pub fn value(o: Out) -> Value {
     match o {
         Out::Null => Value::Null,
         Out::Integer(i) => Value::Integer(i),
@@ -105,14 +112,25 @@ pub(crate) fn value(o: Out) -> Value {
 /// assert_eq!(ogive::sqlite::render(&Value::Real(2.0)), "2.0");
 /// ```
 pub fn render(v: &Value) -> String {
-    let out = match v {
+    out(v).render()
+}
+
+/// A SQLite value as a catalogue result, copied.
+///
+/// # Example
+/// ```
+/// use ogive::catalogue::value::Out;
+/// use ogive::rusqlite::types::Value;
+/// assert_eq!(ogive::sqlite::out(&Value::Real(0.5)), Out::Real(0.5));
+/// ```
+pub fn out(v: &Value) -> Out {
+    match v {
         Value::Null => Out::Null,
         Value::Integer(i) => Out::Integer(*i),
         Value::Real(r) => Out::Real(*r),
         Value::Text(t) => Out::Text(t.clone()),
         Value::Blob(b) => Out::Blob(b.clone()),
-    };
-    out.render()
+    }
 }
 
 /// The one helper that turns a catalogue error into the error SQLite reports.

@@ -6,13 +6,11 @@ use std::path::{Path, PathBuf};
 use std::sync::Arc;
 use std::time::Duration;
 
-use datafusion::arrow::array::{
-    ArrayRef, BinaryBuilder, Float64Builder, Int64Builder, RecordBatch, StringBuilder,
-};
+use datafusion::arrow::array::{ArrayRef, RecordBatch};
 use datafusion::arrow::datatypes::{DataType, Field, Schema};
 use datafusion::parquet::arrow::ArrowWriter;
 use datafusion::prelude::{CsvReadOptions, ParquetReadOptions, SessionConfig, SessionContext};
-use ogive::catalogue::value::Out;
+use ogive::catalogue::Returns;
 use rusqlite::types::Value;
 
 use crate::Failure;
@@ -122,7 +120,7 @@ impl Fusion {
                     let row = b
                         .columns()
                         .iter()
-                        .map(|c| ogive::datafusion::value_at(c, r).map(value))
+                        .map(|c| ogive::datafusion::value_at(c, r).map(ogive::sqlite::value))
                         .collect::<Result<Vec<_>, _>>()
                         .map_err(fail)?;
                     rows.push(row);
@@ -143,16 +141,6 @@ impl Fusion {
 async fn cancelled() {
     while !crate::interrupt::requested() {
         tokio::time::sleep(Duration::from_millis(20)).await;
-    }
-}
-
-fn value(o: Out) -> Value {
-    match o {
-        Out::Null => Value::Null,
-        Out::Integer(i) => Value::Integer(i),
-        Out::Real(r) => Value::Real(r),
-        Out::Text(t) => Value::Text(t),
-        Out::Blob(b) => Value::Blob(b),
     }
 }
 
@@ -188,50 +176,17 @@ fn column_type(
     Ok(ty.unwrap_or(DataType::Utf8))
 }
 
-fn array(ty: &DataType, values: &[Value]) -> ArrayRef {
-    match ty {
-        DataType::Int64 => {
-            let mut b = Int64Builder::with_capacity(values.len());
-            for v in values {
-                match v {
-                    Value::Integer(i) => b.append_value(*i),
-                    _ => b.append_null(),
-                }
-            }
-            Arc::new(b.finish())
-        }
-        DataType::Float64 => {
-            let mut b = Float64Builder::with_capacity(values.len());
-            for v in values {
-                match v {
-                    Value::Integer(i) => b.append_value(*i as f64),
-                    Value::Real(r) => b.append_value(*r),
-                    _ => b.append_null(),
-                }
-            }
-            Arc::new(b.finish())
-        }
-        DataType::Binary => {
-            let mut b = BinaryBuilder::new();
-            for v in values {
-                match v {
-                    Value::Blob(x) => b.append_value(x),
-                    _ => b.append_null(),
-                }
-            }
-            Arc::new(b.finish())
-        }
-        _ => {
-            let mut b = StringBuilder::new();
-            for v in values {
-                match v {
-                    Value::Text(t) => b.append_value(t),
-                    _ => b.append_null(),
-                }
-            }
-            Arc::new(b.finish())
-        }
-    }
+/// One column of rows as an array of its type (integers in a REAL column become reals).
+fn array(table: &str, ty: &DataType, values: &[Value]) -> Result<ArrayRef, Failure> {
+    let returns = match ty {
+        DataType::Int64 => Returns::Integer,
+        DataType::Float64 => Returns::Count,
+        DataType::Binary => Returns::Blob,
+        _ => Returns::Text,
+    };
+    let outs = values.iter().map(ogive::sqlite::out).collect();
+    ogive::datafusion::out_array(table, returns, outs)
+        .map_err(|e| Failure::failed(format!("export: {e}")))
 }
 
 /// The `export` verb: a SQLite table (or view) as one Parquet file, or as `files` files
@@ -276,9 +231,9 @@ pub fn export(db: &Path, table: &str, to: &Path, files: usize) -> Result<i32, Fa
             .enumerate()
             .map(|(i, f)| {
                 let values: Vec<Value> = part.iter().map(|r| r[i].clone()).collect();
-                array(f.data_type(), &values)
+                array(table, f.data_type(), &values)
             })
-            .collect();
+            .collect::<Result<_, _>>()?;
         let batch = RecordBatch::try_new(Arc::clone(&schema), cols)
             .map_err(|e| Failure::failed(format!("export: {e}")))?;
         let file = std::fs::File::create(path)
