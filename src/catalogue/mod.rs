@@ -56,8 +56,9 @@ impl Kind {
 }
 
 /// The SQL type of a function's result: SQLite ignores it; engines with static types
-/// (DataFusion) declare it. `tests/registry.rs` checks each row against the type its
-/// example returns.
+/// (DataFusion) declare it. Debug builds of the SQLite adapter check every result against
+/// it ([`Returns::drift`]), and the DataFusion adapter refuses a result of another type, so
+/// a row whose declaration drifts from its body fails the tests.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Returns {
     /// A double (or NULL).
