@@ -78,6 +78,8 @@ pub enum ArgError {
     OutOfMemory { held: usize },
     /// A distribution argument that must be a model is an empirical distribution.
     NeedsModel { arg: usize, got: String },
+    /// A model argument that must be a mixture is a one-family model.
+    NotAMixture { arg: usize, got: String },
     /// A saved partial state (shipped between an engine's processes) that does not read.
     BadState(String),
 }
@@ -136,6 +138,12 @@ impl fmt::Display for ArgError {
             ArgError::NeedsModel { got, .. } => write!(
                 f,
                 "model must be model JSON (from dist_mixture, dist_fit or dist_model), not {got}"
+            ),
+            ArgError::NotAMixture { got, .. } => write!(
+                f,
+                "model must be a Gaussian mixture (from dist_mixture, or dist_model with \
+                 'normal_mixture'), not {got}, which has no components: read its parameters \
+                 with ->> (for example m ->> '$.mean')"
             ),
             ArgError::BadState(what) => write!(
                 f,

@@ -12,7 +12,7 @@ use super::value::Out;
 use super::{FunctionDef, Imp, Kind, Returns, TableImp};
 use crate::stats::fit::{Family, fit};
 use crate::stats::mixture::{MAX_COMPONENTS, MixtureError, fit_mixture};
-use crate::value::model::Model;
+use crate::value::model::{Law, Model};
 
 type Result<T> = std::result::Result<T, FunctionError>;
 
@@ -109,10 +109,10 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         signature: "dist_components(model)",
         summary: "table (component, weight, mean, sd) of a model's mixture components",
         help: "One row per component of a mixture model: component (numbered from 1, as \
-               dist_component numbers them), weight, mean, sd. A parametric model gives one row \
-               of weight 1 with the distribution's mean and sd (NULL if they overflow). NULL \
+               dist_component numbers them), weight, mean, sd (NULL if they overflow). NULL \
                model gives no rows. Errors: no model argument; model that is not valid model \
-               JSON.",
+               JSON; a one-family model (it has no components: read its parameters with \
+               ->>).",
         example: "SELECT sum(weight * mean) FROM dist_components(dist_model('normal_mixture', \
                   '{\"components\": [{\"weight\": 0.25, \"mean\": 0, \"sd\": 1}, {\"weight\": \
                   0.75, \"mean\": 5, \"sd\": 2}]}'))",
@@ -312,6 +312,12 @@ fn components(call: &mut Call<'_>) -> Result<Vec<Out>> {
     let Some(model) = model_of(&d) else {
         return Ok(Vec::new());
     };
+    if !matches!(model.law(), Law::Mixture(_)) {
+        return Err(call.fail(ArgError::NotAMixture {
+            arg: 1,
+            got: model.kind(),
+        }));
+    }
     let finite = |v: f64| {
         if v.is_finite() {
             Out::Real(v)
