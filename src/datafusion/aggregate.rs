@@ -21,7 +21,7 @@ use ::datafusion::logical_expr::{Accumulator, AggregateUDF, AggregateUDFImpl, Si
 
 use super::convert::{Column, data_type, out_array};
 use super::scalar::signature;
-use super::to_datafusion;
+use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, FunctionError, fail};
 use crate::catalogue::state::{Aggregator, Args, Lane, Sink, try_push};
 use crate::catalogue::value::{Arg, Out};
@@ -218,11 +218,15 @@ fn scalar_of(def: &FunctionDef, out: Out) -> Result<ScalarValue, DataFusionError
 
 impl Accumulator for Acc {
     fn update_batch(&mut self, values: &[ArrayRef]) -> Result<(), DataFusionError> {
-        self.each_row(values, true, |s, a| s.step(a))
+        guarded(self.def.name, || {
+            self.each_row(values, true, |s, a| s.step(a))
+        })
     }
 
     fn retract_batch(&mut self, values: &[ArrayRef]) -> Result<(), DataFusionError> {
-        self.each_row(values, false, |s, a| s.inverse(a))
+        guarded(self.def.name, || {
+            self.each_row(values, false, |s, a| s.inverse(a))
+        })
     }
 
     fn supports_retract_batch(&self) -> bool {
@@ -230,6 +234,30 @@ impl Accumulator for Acc {
     }
 
     fn evaluate(&mut self) -> Result<ScalarValue, DataFusionError> {
+        guarded(self.def.name, || self.answer())
+    }
+
+    fn size(&self) -> usize {
+        // An estimate: DataFusion calls this often, so it must not serialise the state;
+        // the states that grow keep about one double (and a tree node in window use)
+        // per row.
+        size_of::<Self>() + 16 * self.rows
+    }
+
+    fn state(&mut self) -> Result<Vec<ScalarValue>, DataFusionError> {
+        guarded(self.def.name, || {
+            Ok(vec![ScalarValue::Binary(Some(self.state.save()))])
+        })
+    }
+
+    fn merge_batch(&mut self, states: &[ArrayRef]) -> Result<(), DataFusionError> {
+        guarded(self.def.name, || self.merge_saved(states))
+    }
+}
+
+impl Acc {
+    /// The answer for the rows held (see the module docs for finalize against value).
+    fn answer(&mut self) -> Result<ScalarValue, DataFusionError> {
         if self.finished {
             return Err(self.finished_error());
         }
@@ -247,18 +275,8 @@ impl Accumulator for Acc {
         scalar_of(self.def, out.map_err(to_datafusion)?)
     }
 
-    fn size(&self) -> usize {
-        // An estimate: DataFusion calls this often, so it must not serialise the state;
-        // the states that grow keep about one double (and a tree node in window use)
-        // per row.
-        size_of::<Self>() + 16 * self.rows
-    }
-
-    fn state(&mut self) -> Result<Vec<ScalarValue>, DataFusionError> {
-        Ok(vec![ScalarValue::Binary(Some(self.state.save()))])
-    }
-
-    fn merge_batch(&mut self, states: &[ArrayRef]) -> Result<(), DataFusionError> {
+    /// Merges a batch of partial states in their saved form.
+    fn merge_saved(&mut self, states: &[ArrayRef]) -> Result<(), DataFusionError> {
         let Some(saved) = states.first() else {
             return Ok(());
         };

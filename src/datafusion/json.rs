@@ -260,6 +260,12 @@ impl ScalarUDFImpl for Element {
     }
 
     fn invoke_with_args(&self, args: ScalarFunctionArgs) -> Result<ColumnarValue, DataFusionError> {
+        super::guarded(self.read.operator(), || self.invoke(args))
+    }
+}
+
+impl Element {
+    fn invoke(&self, args: ScalarFunctionArgs) -> Result<ColumnarValue, DataFusionError> {
         let rows = args.number_rows;
         let cols = super::scalar::columns(self.read.operator(), args.args)?;
         let [json, path] = cols.as_slice() else {

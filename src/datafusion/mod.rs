@@ -60,7 +60,7 @@ use ::datafusion::error::DataFusionError;
 use ::datafusion::execution::FunctionRegistry;
 use ::datafusion::prelude::SessionContext;
 
-use crate::catalogue::args::FunctionError;
+use crate::catalogue::args::{ArgError, FunctionError, fail};
 use crate::catalogue::{self, Imp};
 
 pub use convert::{out_array, value_at};
@@ -74,6 +74,21 @@ pub fn to_datafusion(e: FunctionError) -> DataFusionError {
     } else {
         DataFusionError::Execution(e.to_string())
     }
+}
+
+/// Runs adapter work for the function `name` so that a panic inside it becomes that
+/// function's error (the same text as in SQLite), never an unwind through DataFusion's
+/// worker threads.
+pub(crate) fn guarded<T>(
+    name: &'static str,
+    work: impl FnOnce() -> Result<T, DataFusionError>,
+) -> Result<T, DataFusionError> {
+    std::panic::catch_unwind(std::panic::AssertUnwindSafe(work)).unwrap_or_else(|_| {
+        Err(to_datafusion(fail(
+            name,
+            ArgError::Internal("a panic was caught".into()),
+        )))
+    })
 }
 
 /// Registers every function of the registry, and the `->>` and `->` JSON operators, on
@@ -112,4 +127,19 @@ pub fn register(ctx: &mut SessionContext) -> Result<(), DataFusionError> {
     }
     FunctionRegistry::register_expr_planner(ctx, Arc::new(json::JsonOperators))?;
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_panic_becomes_the_functions_error() {
+        let r: Result<(), _> = guarded("quantile", || panic!("deliberate, for the test"));
+        let e = r.unwrap_err().to_string();
+        assert!(
+            e.contains("quantile: ") && e.contains("a panic was caught"),
+            "{e}"
+        );
+    }
 }

@@ -8,7 +8,7 @@ use ::datafusion::logical_expr::{
 };
 
 use super::convert::{Column, data_type, out_array};
-use super::to_datafusion;
+use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, fail};
 use crate::catalogue::reader::{Call, Memo, Shared};
 use crate::catalogue::value::Arg;
@@ -98,6 +98,12 @@ impl ScalarUDFImpl for Scalar {
     }
 
     fn invoke_with_args(&self, args: ScalarFunctionArgs) -> Result<ColumnarValue, DataFusionError> {
+        guarded(self.def.name, || self.invoke(args))
+    }
+}
+
+impl Scalar {
+    fn invoke(&self, args: ScalarFunctionArgs) -> Result<ColumnarValue, DataFusionError> {
         let Imp::Scalar(f) = self.def.imp else {
             return Err(DataFusionError::Internal(format!(
                 "{} is not a scalar",

@@ -20,7 +20,7 @@ use ::datafusion::error::DataFusionError;
 use ::datafusion::logical_expr::ColumnarValue;
 
 use super::convert::{Column, out_array};
-use super::to_datafusion;
+use super::{guarded, to_datafusion};
 use crate::catalogue::reader::{Call, NoMemo};
 use crate::catalogue::value::{Arg, Out};
 use crate::catalogue::{FunctionDef, Imp, Returns};
@@ -55,6 +55,16 @@ impl TableFunctionImpl for TableFn {
     fn call_with_args(
         &self,
         args: TableFunctionArgs,
+    ) -> Result<Arc<dyn TableProvider>, DataFusionError> {
+        guarded(self.def.name, || self.provider(&args))
+    }
+}
+
+impl TableFn {
+    /// The rows of one call, as an in-memory table.
+    fn provider(
+        &self,
+        args: &TableFunctionArgs,
     ) -> Result<Arc<dyn TableProvider>, DataFusionError> {
         let def = self.def;
         let Imp::Table(imp) = def.imp else {
