@@ -88,6 +88,36 @@ fn demo_checks_and_queries_print_the_same_on_both_engines() {
             assert!(!a.1.is_empty());
         }
     }
+    // Named parameters ($name, which both engines read) bind the same way.
+    std::fs::write(
+        dir.join("param.sql"),
+        "-- enough readings\nSELECT count(*) AS n, count(*) > $least AS ok FROM readings;\n",
+    )
+    .unwrap();
+    let lite = ogive(
+        &[
+            "check",
+            "--db",
+            "demo.db",
+            "--param",
+            "least=1000",
+            "param.sql",
+        ],
+        &dir,
+    );
+    let mut args = vec!["check", "--param", "least=1000", "param.sql"];
+    args.extend(tables);
+    let fusion = ogive(&args, &dir);
+    assert_eq!((lite.0, &lite.1), (fusion.0, &fusion.1), "{}", fusion.2);
+    assert!(lite.1.contains("1 check: 1 pass"), "{}", lite.1);
+    let mut args = vec!["run", "param.sql"];
+    args.extend(tables);
+    let (code, _, err) = ogive(&args, &dir);
+    assert_eq!(code, 1);
+    assert!(
+        err.contains("the statement uses $least; give it with --param least=VALUE"),
+        "{err}"
+    );
     // The JUnit report is the same too.
     let mut lite = vec!["check", "--db", "demo.db", "--report", "lite.xml"];
     lite.extend(checks.iter().map(String::as_str));

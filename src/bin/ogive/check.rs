@@ -336,7 +336,7 @@ pub fn check(
     } else {
         Access::ReadOnly
     };
-    let opened = Opened::open(engine.0, engine.1, db_path, access, &params)?;
+    let opened = Opened::open(engine.0, engine.1, db_path, access)?;
     let results = run_checks(opened.engine(), &sources, &mut params)?;
     let names: Vec<String> = sources.iter().map(|s| s.name.clone()).collect();
     if results.is_empty() {

@@ -97,6 +97,13 @@ impl Params {
         })
     }
 
+    /// The value given for `key` (a name without its `:`, `@` or `$`), marked as used.
+    pub fn take(&mut self, key: &str) -> Option<&Value> {
+        let v = self.values.get(key)?;
+        self.used.insert(key.to_string());
+        Some(v)
+    }
+
     /// The names given but never asked for by any statement.
     pub fn unused(&self) -> Vec<&str> {
         self.values
@@ -137,7 +144,7 @@ impl Engine<'_> {
         match self {
             Engine::Sqlite(conn) => execute(conn, sql, params),
             #[cfg(feature = "datafusion")]
-            Engine::Fusion(f) => f.execute(sql),
+            Engine::Fusion(f) => f.execute(sql, params),
         }
     }
 }
@@ -157,7 +164,6 @@ impl Opened {
         tables: &[String],
         db: Option<&Path>,
         access: Access,
-        params: &Params,
     ) -> Result<Opened, Failure> {
         match kind {
             EngineKind::Sqlite => {
@@ -174,12 +180,6 @@ impl Opened {
                     return Err(Failure::usage(
                         "--db is SQLite's; DataFusion reads files given as --table NAME=PATH \
                          (ogive export writes a SQLite table as Parquet)",
-                    ));
-                }
-                if !params.values.is_empty() {
-                    return Err(Failure::usage(
-                        "--param is not supported with --engine datafusion; write the value \
-                         into the statement",
                     ));
                 }
                 Opened::fusion(tables)
@@ -341,14 +341,13 @@ pub fn execute(
                 });
             };
             let key = name.trim_start_matches([':', '@', '$']).to_string();
-            let Some(value) = params.values.get(&key) else {
+            let Some(value) = params.take(&key) else {
                 return Err(StatementError::Sql {
                     message: format!("the statement uses {name}; give it with --param {key}=VALUE"),
                     offset: sql.find(&name),
                 });
             };
             stmt.raw_bind_parameter(i, value).map_err(sql_error)?;
-            params.used.insert(key);
         }
         let ncol = stmt.column_count();
         if ncol == 0 {

@@ -14,7 +14,8 @@ use ogive::catalogue::Returns;
 use rusqlite::types::Value;
 
 use crate::Failure;
-use crate::db::{Outcome, ResultSet, StatementError};
+use crate::db::{Outcome, Params, ResultSet, StatementError};
+use datafusion::common::ScalarValue;
 
 /// A DataFusion session with ogive's functions and the user's tables.
 pub struct Fusion {
@@ -94,7 +95,7 @@ impl Fusion {
     }
 
     /// Runs one statement, cancelled by Ctrl-C.
-    pub fn execute(&self, sql: &str) -> Result<Outcome, StatementError> {
+    pub fn execute(&self, sql: &str, params: &mut Params) -> Result<Outcome, StatementError> {
         let fail = |e: datafusion::error::DataFusionError| {
             let message = e.to_string();
             StatementError::Sql {
@@ -103,7 +104,31 @@ impl Fusion {
             }
         };
         let work = async {
-            let df = self.ctx.sql(sql).await.map_err(fail)?;
+            let mut df = self.ctx.sql(sql).await.map_err(fail)?;
+            // Named parameters are DataFusion's `$name`; bound, never pasted into the text.
+            let mut names: Vec<String> = df
+                .logical_plan()
+                .get_parameter_names()
+                .map_err(fail)?
+                .into_iter()
+                .collect();
+            names.sort();
+            if !names.is_empty() {
+                let mut bound = Vec::with_capacity(names.len());
+                for name in &names {
+                    let key = name.trim_start_matches('$');
+                    let Some(v) = params.take(key) else {
+                        return Err(StatementError::Sql {
+                            message: format!(
+                                "the statement uses {name}; give it with --param {key}=VALUE"
+                            ),
+                            offset: sql.find(name.as_str()),
+                        });
+                    };
+                    bound.push((key.to_string(), scalar(v)));
+                }
+                df = df.with_param_values(bound).map_err(fail)?;
+            }
             let columns: Vec<String> = df
                 .schema()
                 .fields()
@@ -134,6 +159,17 @@ impl Fusion {
                 () = cancelled() => Err(StatementError::Interrupted),
             }
         })
+    }
+}
+
+/// A `--param` value as DataFusion's literal.
+fn scalar(v: &Value) -> ScalarValue {
+    match v {
+        Value::Null => ScalarValue::Null,
+        Value::Integer(i) => ScalarValue::Int64(Some(*i)),
+        Value::Real(r) => ScalarValue::Float64(Some(*r)),
+        Value::Text(t) => ScalarValue::Utf8(Some(t.clone())),
+        Value::Blob(b) => ScalarValue::Binary(Some(b.clone())),
     }
 }
 

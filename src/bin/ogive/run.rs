@@ -236,13 +236,7 @@ pub fn run(
         }
     }
     let dir = csv_dir(options.out_dir, options.format)?;
-    let opened = Opened::open(
-        options.engine,
-        options.tables,
-        db_path,
-        Access::Existing,
-        &params,
-    )?;
+    let opened = Opened::open(options.engine, options.tables, db_path, Access::Existing)?;
     let stdout = std::io::stdout();
     let mut printer = Printer::new(options.format, stdout.lock());
     if let Some(dir) = dir {
