@@ -86,10 +86,9 @@ fn fusion(rt: &tokio::runtime::Runtime, ctx: &SessionContext, sql: &str) -> (f64
     time(|| {
         rt.block_on(async {
             let batches = ctx.sql(sql).await.unwrap().collect().await.unwrap();
-            batches
-                .iter()
-                .find(|b| b.num_rows() > 0)
-                .map(|b| ogive::datafusion::value_at(b.column(0), 0).unwrap())
+            let rows = ogive::datafusion::rows(&batches).unwrap();
+            rows.first()
+                .and_then(|r| r.first().cloned())
                 .unwrap_or(Out::Null)
         })
     })

@@ -121,18 +121,7 @@ async fn session(dir: &Path, partitions: usize) -> SessionContext {
 async fn fusion_rows(ctx: &SessionContext, sql: &str) -> Result<Vec<Vec<Out>>, String> {
     let df = ctx.sql(sql).await.map_err(|e| e.to_string())?;
     let batches = df.collect().await.map_err(|e| e.to_string())?;
-    let mut out = Vec::new();
-    for b in batches {
-        for row in 0..b.num_rows() {
-            out.push(
-                b.columns()
-                    .iter()
-                    .map(|c| ogive::datafusion::value_at(c, row).unwrap())
-                    .collect(),
-            );
-        }
-    }
-    Ok(out)
+    ogive::datafusion::rows(&batches).map_err(|e| e.to_string())
 }
 
 /// Bit-identical: reals by their bits; a count may be an INTEGER in SQLite and a double

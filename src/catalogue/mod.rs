@@ -55,6 +55,10 @@ impl Kind {
     }
 }
 
+/// The most arguments an ogive function takes (adapters read a row's arguments into a
+/// fixed array of this size).
+pub const MAX_ARGS: usize = 8;
+
 /// The SQL type of a function's result: SQLite ignores it; engines with static types
 /// (DataFusion) declare it. Debug builds of the SQLite adapter check every result against
 /// it ([`Returns::drift`]), and the DataFusion adapter refuses a result of another type, so

@@ -71,6 +71,25 @@ impl Out {
 /// The longest echo of a TEXT argument in an error message, in characters.
 const ECHO_CHARS: usize = 40;
 
+/// An argument as an owned result (text that is not UTF-8 is read lossily).
+///
+/// # Example
+/// ```
+/// use ogive::catalogue::value::{Arg, Out};
+/// assert_eq!(Out::from(Arg::Text(b"ok")), Out::Text("ok".into()));
+/// ```
+impl From<Arg<'_>> for Out {
+    fn from(a: Arg<'_>) -> Out {
+        match a {
+            Arg::Null => Out::Null,
+            Arg::Integer(i) => Out::Integer(i),
+            Arg::Real(r) => Out::Real(r),
+            Arg::Text(t) => Out::Text(String::from_utf8_lossy(t).into_owned()),
+            Arg::Blob(b) => Out::Blob(b.to_vec()),
+        }
+    }
+}
+
 impl std::fmt::Display for Arg<'_> {
     /// Shows an argument in an error message: its type and, shortened, its content. NUL
     /// and other control characters are escaped so a message stays one printable line.

@@ -19,14 +19,13 @@ use ::datafusion::error::DataFusionError;
 use ::datafusion::logical_expr::function::{AccumulatorArgs, StateFieldsArgs};
 use ::datafusion::logical_expr::{Accumulator, AggregateUDF, AggregateUDFImpl, Signature};
 
-use super::convert::{Column, data_type, out_array};
+use super::convert::{Column, columns_of, data_type, out_array, read_row};
 use super::scalar::signature;
 use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, FunctionError, fail};
 use crate::catalogue::state::{Aggregator, Args, Lane, Sink, try_push};
 use crate::catalogue::value::{Arg, Out};
-use crate::catalogue::{FunctionDef, Imp, Kind};
-use crate::sqlite::MAX_ARGS;
+use crate::catalogue::{FunctionDef, Imp, Kind, MAX_ARGS};
 
 /// The DataFusion function of an aggregate (or window) registry row.
 pub fn udaf(def: &'static FunctionDef) -> AggregateUDF {
@@ -125,14 +124,8 @@ impl Acc {
         if self.finished {
             return Err(self.finished_error());
         }
-        let name = self.def.name;
-        let cols = values
-            .iter()
-            .enumerate()
-            .map(|(i, a)| Column::new(name, i, Arc::clone(a), false))
-            .collect::<Result<Vec<_>, _>>()?;
+        let cols = columns_of(self.def.name, values)?;
         let rows = values.first().map_or(0, |a| a.len());
-        let n = cols.len().min(MAX_ARGS);
         let mut args = [Arg::Null; MAX_ARGS];
         let mut row = 0;
         while row < rows {
@@ -142,9 +135,7 @@ impl Acc {
                     break;
                 }
             }
-            for (slot, c) in args.iter_mut().zip(&cols) {
-                *slot = c.get(row);
-            }
+            let n = read_row(&cols, row, &mut args);
             body(self.state.as_mut(), &Args::new(&args[..n])).map_err(to_datafusion)?;
             row += 1;
         }

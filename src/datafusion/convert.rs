@@ -3,14 +3,14 @@
 use std::sync::Arc;
 
 use ::datafusion::arrow::array::{
-    Array, ArrayRef, AsArray, BinaryBuilder, Float64Builder, Int64Builder, StringBuilder,
+    Array, ArrayRef, AsArray, BinaryArray, Float64Array, Int64Array, RecordBatch, StringArray,
 };
 use ::datafusion::arrow::compute::{CastOptions, cast_with_options};
 use ::datafusion::arrow::datatypes::{DataType, Float64Type, Int64Type};
 use ::datafusion::error::DataFusionError;
 
-use crate::catalogue::Returns;
 use crate::catalogue::value::{Arg, Out};
+use crate::catalogue::{MAX_ARGS, Returns};
 
 /// One argument column of a batch, in the form SQLite would see it: integers, reals,
 /// text, BLOBs or NULL.
@@ -126,8 +126,29 @@ impl Column {
     }
 }
 
-/// The value at `row` of an array, as the catalogue reads it, owned: how the shell and
-/// the tests read DataFusion's results.
+/// The argument columns of a batch (none constant).
+///
+/// # Errors
+/// As [`Column::new`].
+pub fn columns_of(name: &str, arrays: &[ArrayRef]) -> Result<Vec<Column>, DataFusionError> {
+    arrays
+        .iter()
+        .enumerate()
+        .map(|(i, a)| Column::new(name, i, Arc::clone(a), false))
+        .collect()
+}
+
+/// Reads row `row` of `cols` into `into`; returns how many arguments the row has.
+#[inline]
+pub fn read_row<'c>(cols: &'c [Column], row: usize, into: &mut [Arg<'c>; MAX_ARGS]) -> usize {
+    for (slot, c) in into.iter_mut().zip(cols) {
+        *slot = c.get(row);
+    }
+    cols.len().min(MAX_ARGS)
+}
+
+/// The rows of query results, each value as the catalogue reads it, owned: how the
+/// shell and the tests read DataFusion's results.
 ///
 /// # Errors
 /// As [`Column::new`].
@@ -135,21 +156,19 @@ impl Column {
 /// # Example
 /// ```
 /// use std::sync::Arc;
-/// use datafusion::arrow::array::{ArrayRef, Float64Array};
+/// use datafusion::arrow::array::{ArrayRef, Float64Array, RecordBatch};
 /// use ogive::catalogue::value::Out;
 /// let a: ArrayRef = Arc::new(Float64Array::from(vec![Some(1.5), None]));
-/// assert_eq!(ogive::datafusion::value_at(&a, 0).unwrap(), Out::Real(1.5));
-/// assert_eq!(ogive::datafusion::value_at(&a, 1).unwrap(), Out::Null);
+/// let b = RecordBatch::try_from_iter([("x", a)]).unwrap();
+/// assert_eq!(ogive::datafusion::rows(&[b]).unwrap(), vec![vec![Out::Real(1.5)], vec![Out::Null]]);
 /// ```
-pub fn value_at(array: &ArrayRef, row: usize) -> Result<Out, DataFusionError> {
-    let c = Column::new("value_at", 0, Arc::clone(array), false)?;
-    Ok(match c.get(row) {
-        Arg::Null => Out::Null,
-        Arg::Integer(i) => Out::Integer(i),
-        Arg::Real(r) => Out::Real(r),
-        Arg::Text(t) => Out::Text(String::from_utf8_lossy(t).into_owned()),
-        Arg::Blob(b) => Out::Blob(b.to_vec()),
-    })
+pub fn rows(batches: &[RecordBatch]) -> Result<Vec<Vec<Out>>, DataFusionError> {
+    let mut out = Vec::new();
+    for b in batches {
+        let cols = columns_of("rows", b.columns())?;
+        out.extend((0..b.num_rows()).map(|r| cols.iter().map(|c| Out::from(c.get(r))).collect()));
+    }
+    Ok(out)
 }
 
 /// The Arrow type of a declared result.
@@ -178,57 +197,31 @@ pub fn out_array(
     returns: Returns,
     outs: Vec<Out>,
 ) -> Result<ArrayRef, DataFusionError> {
-    let drift = |o: &Out| {
-        DataFusionError::Internal(format!(
+    if let Some(o) = outs.iter().find(|o| !returns.admits(o)) {
+        return Err(DataFusionError::Internal(format!(
             "{name} returned {o:?}, not its declared {returns:?}"
-        ))
-    };
-    let n = outs.len();
+        )));
+    }
+    let outs = outs.iter();
     Ok(match returns {
         Returns::Real | Returns::Count => {
-            let mut b = Float64Builder::with_capacity(n);
-            for o in &outs {
-                match o {
-                    Out::Null => b.append_null(),
-                    Out::Real(r) => b.append_value(*r),
-                    Out::Integer(i) if returns == Returns::Count => b.append_value(*i as f64),
-                    o => return Err(drift(o)),
-                }
-            }
-            Arc::new(b.finish())
+            Arc::new(Float64Array::from_iter(outs.map(|o| match o {
+                Out::Real(r) => Some(*r),
+                Out::Integer(i) => Some(*i as f64),
+                _ => None,
+            })))
         }
-        Returns::Integer => {
-            let mut b = Int64Builder::with_capacity(n);
-            for o in &outs {
-                match o {
-                    Out::Null => b.append_null(),
-                    Out::Integer(i) => b.append_value(*i),
-                    o => return Err(drift(o)),
-                }
-            }
-            Arc::new(b.finish())
-        }
-        Returns::Text | Returns::Rows => {
-            let mut b = StringBuilder::with_capacity(n, 64 * n);
-            for o in &outs {
-                match o {
-                    Out::Null => b.append_null(),
-                    Out::Text(t) => b.append_value(t),
-                    o => return Err(drift(o)),
-                }
-            }
-            Arc::new(b.finish())
-        }
-        Returns::Blob => {
-            let mut b = BinaryBuilder::with_capacity(n, 64 * n);
-            for o in &outs {
-                match o {
-                    Out::Null => b.append_null(),
-                    Out::Blob(v) => b.append_value(v),
-                    o => return Err(drift(o)),
-                }
-            }
-            Arc::new(b.finish())
-        }
+        Returns::Integer => Arc::new(Int64Array::from_iter(outs.map(|o| match o {
+            Out::Integer(i) => Some(*i),
+            _ => None,
+        }))),
+        Returns::Text | Returns::Rows => Arc::new(StringArray::from_iter(outs.map(|o| match o {
+            Out::Text(t) => Some(t.as_str()),
+            _ => None,
+        }))),
+        Returns::Blob => Arc::new(BinaryArray::from_iter(outs.map(|o| match o {
+            Out::Blob(b) => Some(b.as_slice()),
+            _ => None,
+        }))),
     })
 }

@@ -69,13 +69,16 @@ impl Read {
 pub fn udfs() -> Vec<ScalarUDF> {
     [Read::Json, Read::Count, Read::Number]
         .into_iter()
-        .map(|read| {
-            ScalarUDF::new_from_impl(Element {
-                read,
-                signature: Signature::any(2, Volatility::Immutable),
-            })
-        })
+        .map(udf)
         .collect()
+}
+
+/// The function behind one operator.
+fn udf(read: Read) -> ScalarUDF {
+    ScalarUDF::new_from_impl(Element {
+        read,
+        signature: Signature::any(2, Volatility::Immutable),
+    })
 }
 
 /// Plans `->>` and `->` as calls of the functions behind them.
@@ -104,12 +107,8 @@ impl ExprPlanner for JsonOperators {
             }
             _ => return Ok(PlannerResult::Original(expr)),
         };
-        let udf = udfs()
-            .into_iter()
-            .find(|f| f.name() == read.name())
-            .ok_or_else(|| DataFusionError::Internal("json operator missing".into()))?;
         Ok(PlannerResult::Planned(
-            Arc::new(udf).call(vec![expr.left, expr.right]),
+            Arc::new(udf(read)).call(vec![expr.left, expr.right]),
         ))
     }
 }
@@ -172,24 +171,17 @@ struct Element {
     signature: Signature,
 }
 
-/// One row's outcome.
-enum Got {
-    Null,
-    Number(f64),
-    Json(String),
-}
-
 impl Element {
     fn row(
         &self,
         json: Arg<'_>,
         path: Arg<'_>,
         parsed: &mut Option<(Vec<u8>, Value)>,
-    ) -> Result<Got, DataFusionError> {
+    ) -> Result<Out, DataFusionError> {
         let op = self.read.operator();
         let fail = |m: String| DataFusionError::Execution(format!("{op}: {m}"));
         let text = match json {
-            Arg::Null => return Ok(Got::Null),
+            Arg::Null => return Ok(Out::Null),
             Arg::Text(t) => t,
             other => {
                 return Err(fail(format!(
@@ -198,7 +190,7 @@ impl Element {
             }
         };
         let steps = match path {
-            Arg::Null => return Ok(Got::Null),
+            Arg::Null => return Ok(Out::Null),
             Arg::Text(p) => parse_path(&String::from_utf8_lossy(p)).map_err(fail)?,
             Arg::Integer(i) if i >= 0 => vec![Step::Index(i as usize)],
             other => {
@@ -213,19 +205,21 @@ impl Element {
             *parsed = Some((text.to_vec(), v));
         }
         let Some((_, root)) = parsed.as_ref() else {
-            return Ok(Got::Null);
+            return Ok(Out::Null);
         };
         let Some(v) = element(root, &steps) else {
-            return Ok(Got::Null);
+            return Ok(Out::Null);
         };
         Ok(match (self.read, v) {
-            (Read::Json, v) => Got::Json(v.to_string()),
-            (_, Value::Null) => Got::Null,
-            (_, Value::Bool(b)) => Got::Number(f64::from(u8::from(*b))),
-            (_, Value::Number(n)) => match n.as_f64() {
-                Some(x) => Got::Number(x),
-                None => Got::Null,
+            (Read::Json, v) => Out::Text(v.to_string()),
+            (_, Value::Null) => Out::Null,
+            (Read::Count, Value::Number(n)) => match n.as_f64() {
+                Some(x) if x.fract() == 0.0 && x.abs() < 9.2e18 => Out::Integer(x as i64),
+                _ => return Err(fail(format!("the count field is {n}, not an integer"))),
             },
+            (Read::Count, Value::Bool(b)) => Out::Integer(i64::from(*b)),
+            (_, Value::Bool(b)) => Out::Real(f64::from(u8::from(*b))),
+            (_, Value::Number(n)) => Out::real(n.as_f64()),
             (_, Value::String(s)) => {
                 return Err(fail(format!(
                     "the element is the text \"{s}\"; on DataFusion ->> reads numbers: use -> for \
@@ -274,26 +268,9 @@ impl Element {
             ));
         };
         let mut parsed = None;
-        let mut got = Vec::with_capacity(rows);
-        for row in 0..rows {
-            got.push(self.row(json.get(row), path.get(row), &mut parsed)?);
-        }
-        let mut outs = Vec::with_capacity(rows);
-        for g in got {
-            outs.push(match (self.read, g) {
-                (_, Got::Null) => Out::Null,
-                (_, Got::Json(t)) => Out::Text(t),
-                (Read::Count, Got::Number(x)) if x.fract() == 0.0 && x.abs() < 9.2e18 => {
-                    Out::Integer(x as i64)
-                }
-                (Read::Count, Got::Number(x)) => {
-                    return Err(DataFusionError::Execution(format!(
-                        "->>: the count field is {x}, not an integer"
-                    )));
-                }
-                (_, Got::Number(x)) => Out::Real(x),
-            });
-        }
+        let outs = (0..rows)
+            .map(|row| self.row(json.get(row), path.get(row), &mut parsed))
+            .collect::<Result<Vec<_>, _>>()?;
         let array = out_array(self.read.operator(), self.read.returns(), outs)?;
         Ok(ColumnarValue::Array(array))
     }

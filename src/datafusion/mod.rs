@@ -63,7 +63,7 @@ use ::datafusion::prelude::SessionContext;
 use crate::catalogue::args::{ArgError, FunctionError, fail};
 use crate::catalogue::{self, Imp};
 
-pub use convert::{out_array, value_at};
+pub use convert::{out_array, rows};
 
 /// The one helper that turns a catalogue error into the error DataFusion reports: the
 /// same text as in SQLite (`quantile: p must be ...`); running out of memory is
@@ -110,8 +110,8 @@ pub(crate) fn guarded<T>(
 ///     .collect()
 ///     .await
 ///     .unwrap();
-/// let v = ogive::datafusion::value_at(batches[0].column(0), 0).unwrap();
-/// assert_eq!(v, ogive::catalogue::value::Out::Real(2.0));
+/// let v = ogive::datafusion::rows(&batches).unwrap();
+/// assert_eq!(v, vec![vec![ogive::catalogue::value::Out::Real(2.0)]]);
 /// # });
 /// ```
 pub fn register(ctx: &mut SessionContext) -> Result<(), DataFusionError> {

@@ -7,13 +7,12 @@ use ::datafusion::logical_expr::{
     Volatility,
 };
 
-use super::convert::{Column, data_type, out_array};
+use super::convert::{Column, data_type, out_array, read_row};
 use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, fail};
 use crate::catalogue::reader::{Call, Memo, Shared};
 use crate::catalogue::value::Arg;
-use crate::catalogue::{FunctionDef, Imp};
-use crate::sqlite::MAX_ARGS;
+use crate::catalogue::{FunctionDef, Imp, MAX_ARGS};
 
 /// The DataFusion function of a scalar registry row.
 pub fn udf(def: &'static FunctionDef) -> ScalarUDF {
@@ -51,15 +50,6 @@ pub(super) fn columns(
 struct Scalar {
     def: &'static FunctionDef,
     signature: Signature,
-}
-
-impl Scalar {
-    fn new(def: &'static FunctionDef) -> Self {
-        Scalar {
-            def,
-            signature: signature(def),
-        }
-    }
 }
 
 by_name!(Scalar);
@@ -103,6 +93,13 @@ impl ScalarUDFImpl for Scalar {
 }
 
 impl Scalar {
+    fn new(def: &'static FunctionDef) -> Self {
+        Scalar {
+            def,
+            signature: signature(def),
+        }
+    }
+
     fn invoke(&self, args: ScalarFunctionArgs) -> Result<ColumnarValue, DataFusionError> {
         let Imp::Scalar(f) = self.def.imp else {
             return Err(DataFusionError::Internal(format!(
@@ -120,11 +117,8 @@ impl Scalar {
         outs.try_reserve_exact(rows)
             .map_err(|_| to_datafusion(fail(self.def.name, ArgError::OutOfMemory { held: 0 })))?;
         let mut values = [Arg::Null; MAX_ARGS];
-        let n = cols.len().min(MAX_ARGS);
         for row in 0..rows {
-            for (slot, c) in values.iter_mut().zip(&cols) {
-                *slot = c.get(row);
-            }
+            let n = read_row(&cols, row, &mut values);
             let mut call = Call::new(self.def.name, &values[..n], &mut memo);
             outs.push(f(&mut call).map_err(to_datafusion)?);
         }

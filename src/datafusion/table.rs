@@ -19,12 +19,12 @@ use ::datafusion::datasource::MemTable;
 use ::datafusion::error::DataFusionError;
 use ::datafusion::logical_expr::ColumnarValue;
 
-use super::convert::{Column, out_array};
+use super::convert::{Column, data_type, out_array, read_row};
 use super::{guarded, to_datafusion};
+use crate::catalogue::args::{ArgError, fail};
 use crate::catalogue::reader::{Call, NoMemo};
 use crate::catalogue::value::{Arg, Out};
-use crate::catalogue::{FunctionDef, Imp, Returns};
-use crate::sqlite::MAX_ARGS;
+use crate::catalogue::{FunctionDef, Imp, MAX_ARGS, Returns};
 
 /// A table registry row.
 pub struct TableFn {
@@ -75,17 +75,15 @@ impl TableFn {
         };
         let exprs = args.exprs();
         if !def.arities.contains(&(exprs.len() as i32)) {
-            return Err(DataFusionError::Plan(format!(
-                "{}: takes {} arguments ({}), got {}",
-                def.name,
-                def.arities
-                    .iter()
-                    .map(|n| n.to_string())
-                    .collect::<Vec<_>>()
-                    .join(" or "),
-                def.signature,
-                exprs.len()
-            )));
+            return Err(DataFusionError::Plan(
+                fail(
+                    def.name,
+                    ArgError::Missing {
+                        signature: def.signature,
+                    },
+                )
+                .to_string(),
+            ));
         }
         // Each argument on its own, on a batch of one row with no columns.
         let empty = DFSchema::empty();
@@ -117,10 +115,7 @@ impl TableFn {
             cols.push(Column::new(def.name, i, array, true)?);
         }
         let mut values = [Arg::Null; MAX_ARGS];
-        let n = cols.len().min(MAX_ARGS);
-        for (slot, c) in values.iter_mut().zip(&cols) {
-            *slot = c.get(0);
-        }
+        let n = read_row(&cols, 0, &mut values);
         // As in SQLite: a NULL argument gives no rows.
         let flat: Vec<Out> = if values[..n].contains(&Arg::Null) {
             Vec::new()
@@ -133,9 +128,7 @@ impl TableFn {
         let fields: Vec<Field> = imp
             .columns
             .iter()
-            .map(|(name, ty)| {
-                Field::new(*name, super::convert::data_type(column_returns(ty)), true)
-            })
+            .map(|(name, ty)| Field::new(*name, data_type(column_returns(ty)), true))
             .collect();
         let schema = Arc::new(Schema::new(fields));
         let mut arrays: Vec<ArrayRef> = Vec::with_capacity(width);

@@ -165,8 +165,7 @@ impl Memo for AuxMemo<'_, '_> {
     }
 }
 
-/// The most arguments an ogive function takes.
-pub const MAX_ARGS: usize = 8;
+pub use crate::catalogue::MAX_ARGS;
 
 /// Runs a scalar body on a SQLite call.
 fn scalar(name: &'static str, f: ScalarFn, ctx: &Context<'_>) -> rusqlite::Result<Value> {

@@ -139,18 +139,11 @@ impl Fusion {
             if columns.is_empty() {
                 return Ok(Outcome::Changed(0));
             }
-            let mut rows = Vec::new();
-            for b in &batches {
-                for r in 0..b.num_rows() {
-                    let row = b
-                        .columns()
-                        .iter()
-                        .map(|c| ogive::datafusion::value_at(c, r).map(ogive::sqlite::value))
-                        .collect::<Result<Vec<_>, _>>()
-                        .map_err(fail)?;
-                    rows.push(row);
-                }
-            }
+            let rows = ogive::datafusion::rows(&batches)
+                .map_err(fail)?
+                .into_iter()
+                .map(|row| row.into_iter().map(ogive::sqlite::value).collect())
+                .collect();
             Ok(Outcome::Rows(ResultSet { columns, rows }))
         };
         self.rt.block_on(async {
