@@ -102,9 +102,38 @@ fn rows_for(name: &str, xs: &[Option<f64>], pick: &[u8]) -> Option<Vec<Vec<V>>> 
             .collect(),
         "dist_fit" => xs
             .iter()
-            .map(|v| vec![v.map_or(V::Null, |x| V::R(x + 1.0)), V::T("gamma")])
+            .map(|v| {
+                let shifted = v.map_or(V::Null, |x| V::R(x + 6.0));
+                // Half the cases on the readings' grid of 0.5 (binned likelihood).
+                if pick[0].is_multiple_of(2) {
+                    vec![shifted, V::T("gamma")]
+                } else {
+                    vec![shifted, V::T("gamma"), V::R(0.5)]
+                }
+            })
             .collect(),
-        "dist_mixture" => xs.iter().map(|v| vec![x(v), V::I(2)]).collect(),
+        "dist_fit_censored" => xs
+            .iter()
+            .enumerate()
+            .map(|(i, v)| {
+                let c = i64::from(pick[i % pick.len()] % 3) - 1;
+                vec![
+                    v.map_or(V::Null, |x| V::R(x + 6.0)),
+                    V::I(c),
+                    V::T("weibull"),
+                ]
+            })
+            .collect(),
+        "dist_mixture" => xs
+            .iter()
+            .map(|v| {
+                if pick[0].is_multiple_of(2) {
+                    vec![x(v), V::I(2)]
+                } else {
+                    vec![x(v), V::Null, V::T("auto")]
+                }
+            })
+            .collect(),
         "quantile_sketch" => xs.iter().map(|v| vec![x(v)]).collect(),
         "sketch_merge" => xs
             .chunks(4)
@@ -252,7 +281,7 @@ fn states_of_another_function_or_version_are_refused() {
          the engine's processes must run the same ogive"
     );
     let mut newer = (q.new)().save();
-    newer[4] = 2;
+    newer[4] = ogive::catalogue::state::STATE_VERSION + 1;
     assert!((q.load)(&newer).is_err());
     let mut truncated = (q.new)().save();
     truncated.pop();

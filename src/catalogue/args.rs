@@ -14,6 +14,7 @@ use crate::stats::StatsError;
 use crate::stats::fit::FitError;
 use crate::stats::ks::TestError;
 use crate::stats::mixture::MixtureError;
+use crate::stats::resolution::{GridError, Resolution};
 use crate::stats::sketch::SketchError;
 use crate::value::ValueError;
 use crate::value::model::ModelError;
@@ -82,6 +83,8 @@ pub enum ArgError {
     NotAMixture { arg: usize, got: String },
     /// A saved partial state (shipped between an engine's processes) that does not read.
     BadState(String),
+    /// A resolution that is not a step > 0 or 'auto', or that the readings are off.
+    Grid(GridError),
 }
 
 impl fmt::Display for ArgError {
@@ -145,6 +148,7 @@ impl fmt::Display for ArgError {
                  'normal_mixture'), not {got}, which has no components: read its parameters \
                  with ->> (for example m ->> '$.mean')"
             ),
+            ArgError::Grid(e) => e.fmt(f),
             ArgError::BadState(what) => write!(
                 f,
                 "cannot read a partial aggregate state ({what}); the engine's processes must \
@@ -170,6 +174,7 @@ impl std::error::Error for ArgError {
             ArgError::Mixture(e) => Some(e),
             ArgError::Model(e) => Some(e),
             ArgError::Sketch(e) => Some(e),
+            ArgError::Grid(e) => Some(e),
             _ => None,
         }
     }
@@ -208,6 +213,12 @@ impl From<MixtureError> for ArgError {
 impl From<ModelError> for ArgError {
     fn from(e: ModelError) -> Self {
         ArgError::Model(e)
+    }
+}
+
+impl From<GridError> for ArgError {
+    fn from(e: GridError) -> Self {
+        ArgError::Grid(e)
     }
 }
 
@@ -315,6 +326,31 @@ pub fn whole(v: Arg<'_>, what: &'static str) -> Result<Option<i64>, ArgError> {
             what,
             shown: show(v),
         }),
+    }
+}
+
+/// A `resolution` argument: a number `> 0` (the step readings were rounded to) or the
+/// TEXT `'auto'` (any case, spaces allowed). NULL gives `None`: the readings are exact.
+///
+/// # Errors
+/// [`ArgError::Grid`] for a number that is not `> 0`, other TEXT, or a BLOB.
+pub fn resolution(v: Arg<'_>) -> Result<Option<Resolution>, ArgError> {
+    if let Arg::Text(t) = v
+        && std::str::from_utf8(t).is_ok_and(|s| s.trim().eq_ignore_ascii_case("auto"))
+    {
+        return Ok(Some(Resolution::Auto));
+    }
+    let step = number(v, "resolution").map_err(|_| ArgError::BadOption {
+        what: "resolution",
+        detail: format!(
+            "must be a number > 0 (the step the readings were rounded to) or 'auto', got {}",
+            show(v)
+        ),
+    })?;
+    match step {
+        None => Ok(None),
+        Some(r) if r > 0.0 && r.is_finite() => Ok(Some(Resolution::Step(r))),
+        Some(r) => Err(GridError::BadStep(r).into()),
     }
 }
 

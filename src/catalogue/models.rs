@@ -1,17 +1,21 @@
-//! Model adapters: `dist_fit`, `dist_mixture`, `dist_model`, `dist_component` and the
+//! Model adapters: `dist_fit`, `dist_fit_censored`, `dist_mixture`, `dist_model`, `dist_component` and the
 //! table-valued `dist_components`.
 //!
 //! Adapters only: they read and check arguments and hand them to
 //! [`crate::stats::fit`], [`crate::stats::mixture`] and [`crate::value::model`]. NULL x
 //! is skipped; a group with no non-NULL x gives NULL. Models travel as JSON text.
 
-use super::args::{ArgError, Constant, FunctionError, TextConstant, fail, number, text, whole};
+use super::args::{
+    ArgError, Constant, FunctionError, TextConstant, fail, number, resolution, text, whole,
+};
 use super::reader::{Call, model_of};
-use super::state::{AggregateImp, Args, Reader, State, Writer, push, try_extend};
+use super::state::{AggregateImp, Args, Field, Reader, State, Writer, push, try_extend};
 use super::value::Out;
 use super::{FunctionDef, Imp, Kind, Returns, TableImp};
-use crate::stats::fit::{Family, fit};
-use crate::stats::mixture::{MAX_COMPONENTS, MixtureError, fit_mixture};
+use crate::stats::fit::{Family, FitError, fit};
+use crate::stats::mixture::{MAX_COMPONENTS, MixtureError, fit_mixture_rounded};
+use crate::stats::readings::{fit_censored, fit_rounded};
+use crate::stats::resolution::{Resolution, resolve};
 use crate::value::model::{Law, Model};
 
 type Result<T> = std::result::Result<T, FunctionError>;
@@ -22,43 +26,86 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "dist_fit",
         kind: Kind::Aggregate,
         returns: Returns::Text,
-        arities: &[2],
-        signature: "dist_fit(x, family)",
+        arities: &[2, 3],
+        signature: "dist_fit(x, family [, resolution])",
         summary: "model JSON: maximum-likelihood fit of normal, lognormal, exponential, gamma, \
-                  weibull or uniform, with loglik, aic, bic",
+                  weibull or uniform, with loglik, aic, bic; on rounded readings with resolution",
         help: "Fits family to the group's x by maximum likelihood and returns model JSON \
                {family, <parameters>, n, loglik, aic, bic}. Parameters: normal mean, sd (divisor \
                n); lognormal mu, sigma (mean and sd of ln x); exponential rate; gamma and weibull \
                shape, scale; uniform min, max. Locations are fixed at 0. aic = 2p - 2 loglik, bic \
-               = p ln n - 2 loglik. Read fields with ->> and pass the model to the dist_ functions. \
-               family must be the same on every row of a group. NULL x is skipped; NULL family or \
-               no rows gives NULL. Errors: an unknown family (the message lists the supported \
-               ones); a value <= 0 for lognormal, exponential, gamma or weibull; an infinite \
-               value; fewer values than parameters; all values equal (except for exponential).",
+               = p ln n - 2 loglik. With resolution (the step the readings were rounded to, a \
+               number > 0, or 'auto': the largest step on whose grid every reading lies, to 1e-9 \
+               relative, or no rounding if there is none) each x stands for [x - r/2, x + r/2] \
+               and the fit maximises the binned likelihood sum ln(F(x + r/2) - F(x - r/2)); the \
+               JSON then records resolution, and loglik, aic and bic are the binned ones (log \
+               probabilities, not log densities: compare them only with fits of the same \
+               resolution). The grid runs through the smallest reading; a reading more than a \
+               tenth of a stated step off it is an error. On a grid the positive \
+               families accept 0. NULL resolution means exact readings. Read fields with ->> \
+               and pass the model to the dist_ functions. family and resolution must be the \
+               same on every row of a group. NULL x is skipped; NULL family or no rows gives \
+               NULL. Errors: an unknown family (the message lists the supported ones); a value \
+               <= 0 for lognormal, exponential, gamma or weibull (< 0 with a resolution); an \
+               infinite value; fewer values than parameters; all values equal (except for \
+               exponential); a resolution that is not > 0 or 'auto'; a reading off the stated \
+               grid.",
         example: "SELECT dist_fit(column1, 'exponential') ->> '$.rate' FROM (VALUES (1), (2), (3), (2))",
         example_result: "0.5",
         imp: Imp::Aggregate(AggregateImp::of::<DistFitState>()),
     },
     FunctionDef {
+        name: "dist_fit_censored",
+        kind: Kind::Aggregate,
+        returns: Returns::Text,
+        arities: &[3],
+        signature: "dist_fit_censored(x, c, family)",
+        summary: "model JSON: maximum-likelihood fit to censored readings (c: 0 exact, -1 at or \
+                  below x, 1 above x)",
+        help: "Fits family (as dist_fit: normal, lognormal, exponential, gamma, weibull, uniform) \
+               by maximum likelihood to readings with a censoring code c: 0 the value is exact, \
+               -1 left-censored (the true value is at or below x: below a detection limit), 1 \
+               right-censored (the true value is above x: a logger at the top of its range, an \
+               item still running at time x). Exact readings contribute their log density, \
+               left-censored ln F(x), right-censored ln(1 - F(x)); the maximum is found \
+               numerically (Nelder-Mead from the fit that takes every x as exact). Returns model \
+               JSON as dist_fit, with n_exact, n_left and n_right. family must be the same on \
+               every row of a group. A row with NULL x or NULL c is skipped; NULL family or no \
+               rows gives NULL. Errors: c other than -1, 0, 1; every reading censored (at least \
+               one must be exact); an infinite x; for the positive families an exact or \
+               left-censored x <= 0 (exponential: exact x < 0) or a right-censored x < 0; fewer \
+               readings than parameters.",
+        example: "SELECT round(dist_fit_censored(column1, column2, 'exponential') ->> '$.rate', 6) \
+                  FROM (VALUES (1, 0), (2, 0), (3, 0), (6, 1))",
+        example_result: "0.25",
+        imp: Imp::Aggregate(AggregateImp::of::<DistFitCensoredState>()),
+    },
+    FunctionDef {
         name: "dist_mixture",
         kind: Kind::Aggregate,
         returns: Returns::Text,
-        arities: &[1, 2],
-        signature: "dist_mixture(x [, k])",
-        summary: "model JSON: Gaussian mixture by EM with k components, or k from 1..6 by BIC",
+        arities: &[1, 2, 3],
+        signature: "dist_mixture(x [, k [, resolution]])",
+        summary: "model JSON: Gaussian mixture by EM with k components, or k from 1..6 by BIC; \
+                  on rounded readings with resolution",
         help: "Fits a mixture of k normal components to the group's x by EM and returns model \
                JSON {family: 'normal_mixture', k, components: [{weight, mean, sd}] sorted by \
                mean, n, loglik, aic, bic, iterations, converged, k_candidates: [{k, loglik, \
-               bic}]}. Without k, every k from 1 to 6 (at most the number of distinct values, \
-               and with n >= 3k - 1) is fitted and the least BIC wins; k_candidates lists them \
-               all. Ten seeded starts per k: the same data always gives the same fit. Component \
-               variances are floored at 1e-6 times the data's variance. On values rounded to a \
-               coarse grid (0.1 degC readings, whole milliseconds) the likelihood of a continuous \
-               density rewards narrow components sitting on single grid values, so BIC can pick \
-               a k with such spikes: give k explicitly there. k must be the same on \
-               every row of a group; NULL x is skipped; NULL k or no rows gives NULL. Errors: k \
-               outside 1..16; fewer than 3k - 1 values; fewer than k distinct values; all values \
-               equal; an infinite value.",
+               bic}]}. Without k (or with k NULL), every k from 1 to 6 (at most the number of \
+               distinct values, and with n >= 3k - 1) is fitted and the least BIC wins; \
+               k_candidates lists them all. Ten seeded starts per k: the same data always gives \
+               the same fit. Component variances are floored at 1e-6 times the data's \
+               variance. On readings rounded to a step (0.1 degC, whole milliseconds) the \
+               likelihood of a continuous density rewards narrow components sitting on single \
+               grid values, so BIC can pick a k with such spikes: give resolution, the step (a \
+               number > 0) or 'auto' (the largest step on whose grid every reading lies, or none), \
+               and each x stands for [x - r/2, x + r/2]: EM for grouped data (McLachlan and \
+               Jones 1988) maximises the binned likelihood, which no spike can inflate, and the \
+               JSON records resolution with the binned loglik, aic and bic. NULL resolution \
+               means exact readings. k and resolution must be the same on every row of a group; \
+               NULL x is skipped; no rows gives NULL. Errors: k outside 1..16; fewer than 3k - 1 \
+               values; fewer than k distinct values; all values equal; an infinite value; a \
+               resolution that is not > 0 or 'auto'; a reading off the stated grid.",
         example: "SELECT dist_mixture(column1) ->> '$.k' FROM (VALUES (1.0), (1.2), (0.8), (1.1), \
                   (0.9), (9.0), (9.2), (8.8), (9.1), (8.9))",
         example_result: "2",
@@ -131,13 +178,76 @@ pub static FUNCTIONS: &[FunctionDef] = &[
 ];
 
 // ---------------------------------------------------------------------------------------
-// dist_fit(x, family)
+// dist_fit(x, family [, resolution])
 
-/// State of `dist_fit`: the values and the family.
+impl Field for Resolution {
+    fn put(&self, w: &mut Writer) {
+        match *self {
+            Resolution::Exact => w.u8(0),
+            Resolution::Step(r) => {
+                w.u8(1);
+                w.f64(r);
+            }
+            Resolution::Auto => w.u8(2),
+        }
+    }
+
+    fn take(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        match r.u8()? {
+            0 => Ok(Resolution::Exact),
+            1 => {
+                let step = r.f64()?;
+                if step > 0.0 && step.is_finite() {
+                    Ok(Resolution::Step(step))
+                } else {
+                    Err(ArgError::BadState(format!("a resolution of {step}")))
+                }
+            }
+            2 => Ok(Resolution::Auto),
+            other => Err(ArgError::BadState(format!("a resolution tag {other}"))),
+        }
+    }
+}
+
+/// Reads an optional `resolution` argument (position `i`) into its per-group constant.
+fn observe_resolution(
+    c: &mut Constant<Resolution>,
+    args: &Args<'_>,
+    i: usize,
+) -> std::result::Result<(), ArgError> {
+    if let Some(v) = args.optional(i) {
+        let r = resolution(v)?.unwrap_or(Resolution::Exact);
+        c.observe(Some(r), "resolution")?;
+    }
+    Ok(())
+}
+
+/// The step of sorted values under a resolution constant (`None`: exact).
+fn step_of(sorted: &[f64], r: &Constant<Resolution>) -> std::result::Result<Option<f64>, ArgError> {
+    let Some(&r) = r.get() else {
+        return Ok(None);
+    };
+    if r == Resolution::Exact {
+        return Ok(None);
+    }
+    let mut distinct: Vec<f64> = Vec::new();
+    distinct
+        .try_reserve(sorted.len())
+        .map_err(|_| ArgError::OutOfMemory { held: sorted.len() })?;
+    for &x in sorted {
+        if distinct.last() != Some(&x) {
+            distinct.push(x);
+        }
+    }
+    Ok(resolve(&distinct, r)?)
+}
+
+/// State of `dist_fit`: the values, the family and the resolution.
 #[derive(Debug, Default)]
 pub struct DistFitState {
     xs: Vec<f64>,
     family: TextConstant<Family>,
+    resolution: Constant<Resolution>,
 }
 
 /// Parses a family name.
@@ -151,6 +261,7 @@ impl State for DistFitState {
     fn step(&mut self, args: &Args<'_>) -> Result<()> {
         let mut go = || -> std::result::Result<(), ArgError> {
             self.family.observe(args.get(1), "family", parse_family)?;
+            observe_resolution(&mut self.resolution, args, 2)?;
             if let Some(x) = number(args.get(0), "x")? {
                 push(&mut self.xs, x)?;
             }
@@ -162,6 +273,7 @@ impl State for DistFitState {
     fn merge(&mut self, other: Self) -> Result<()> {
         let go = || -> std::result::Result<(), ArgError> {
             self.family.merge(other.family, "family")?;
+            self.resolution.merge(other.resolution, "resolution")?;
             try_extend(&mut self.xs, &other.xs)
         };
         go().map_err(|e| fail(Self::NAME, e))
@@ -177,32 +289,132 @@ impl State for DistFitState {
         // In ascending order, so that the fit's sums do not depend on the order of rows
         // (or of the parts a partitioned engine merged).
         self.xs.sort_unstable_by(f64::total_cmp);
-        let f = fit(&self.xs, family).map_err(|e| fail(Self::NAME, e))?;
-        Ok(Out::Text(Model::from(f).to_json()))
+        let go = || -> std::result::Result<Out, ArgError> {
+            let step = step_of(&self.xs, &self.resolution)?;
+            let f = match step {
+                Some(r) => fit_rounded(&self.xs, family, r)?,
+                None => fit(&self.xs, family)?,
+            };
+            Ok(Out::Text(Model::from(f).rounded_to(step).to_json()))
+        };
+        go().map_err(|e| fail(Self::NAME, e))
     }
 
     fn save(&self, w: &mut Writer) {
         w.constant(self.family.raw());
+        w.constant(self.resolution.raw());
         w.f64s(&self.xs);
     }
 
     fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
         Ok(DistFitState {
             family: TextConstant::from_raw(r.constant()?, parse_family)?,
+            resolution: r.constant_of()?,
             xs: r.f64s()?,
         })
     }
 }
 
 // ---------------------------------------------------------------------------------------
-// dist_mixture(x [, k])
+// dist_fit_censored(x, c, family)
 
-/// State of `dist_mixture`: the values and k.
+/// State of `dist_fit_censored`: the readings, their codes and the family.
+#[derive(Debug, Default)]
+pub struct DistFitCensoredState {
+    xs: Vec<f64>,
+    codes: Vec<i8>,
+    family: TextConstant<Family>,
+}
+
+/// A censoring code: -1, 0 or 1.
+fn code(c: i64) -> std::result::Result<i8, ArgError> {
+    match c {
+        -1..=1 => Ok(c as i8),
+        other => Err(FitError::BadCode(other).into()),
+    }
+}
+
+impl State for DistFitCensoredState {
+    const NAME: &'static str = "dist_fit_censored";
+
+    fn step(&mut self, args: &Args<'_>) -> Result<()> {
+        let mut go = || -> std::result::Result<(), ArgError> {
+            self.family.observe(args.get(2), "family", parse_family)?;
+            let c = whole(args.get(1), "c")?.map(code).transpose()?;
+            if let (Some(x), Some(c)) = (number(args.get(0), "x")?, c) {
+                push(&mut self.xs, x)?;
+                try_extend(&mut self.codes, &[c])?;
+            }
+            Ok(())
+        };
+        go().map_err(|e| fail(Self::NAME, e))
+    }
+
+    fn merge(&mut self, other: Self) -> Result<()> {
+        let go = || -> std::result::Result<(), ArgError> {
+            self.family.merge(other.family, "family")?;
+            try_extend(&mut self.xs, &other.xs)?;
+            try_extend(&mut self.codes, &other.codes)
+        };
+        go().map_err(|e| fail(Self::NAME, e))
+    }
+
+    fn finalize(&mut self) -> Result<Out> {
+        let Some(&family) = self.family.get() else {
+            return Ok(Out::Null);
+        };
+        if self.xs.is_empty() {
+            return Ok(Out::Null);
+        }
+        // Sorted by (x, c), so that the fit does not depend on the order of rows.
+        let mut pairs: Vec<(f64, i8)> = self
+            .xs
+            .iter()
+            .copied()
+            .zip(self.codes.iter().copied())
+            .collect();
+        pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+        let (xs, codes): (Vec<f64>, Vec<i8>) = pairs.into_iter().unzip();
+        let (f, counts) = fit_censored(&xs, &codes, family).map_err(|e| fail(Self::NAME, e))?;
+        Ok(Out::Text(Model::from(f).censored(counts).to_json()))
+    }
+
+    fn save(&self, w: &mut Writer) {
+        w.constant(self.family.raw());
+        w.f64s(&self.xs);
+        let codes: Vec<u8> = self.codes.iter().map(|&c| c as u8).collect();
+        w.bytes(&codes);
+    }
+
+    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        let family = TextConstant::from_raw(r.constant()?, parse_family)?;
+        let xs = r.f64s()?;
+        let codes = r
+            .bytes()?
+            .iter()
+            .map(|&b| {
+                code(i64::from(b as i8))
+                    .map_err(|_| ArgError::BadState(format!("a censoring code {}", b as i8)))
+            })
+            .collect::<std::result::Result<Vec<i8>, ArgError>>()?;
+        if codes.len() != xs.len() {
+            return Err(ArgError::BadState(
+                "codes and values of different lengths".to_string(),
+            ));
+        }
+        Ok(DistFitCensoredState { xs, codes, family })
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// dist_mixture(x [, k [, resolution]])
+
+/// State of `dist_mixture`: the values, k (NULL or absent: by BIC) and the resolution.
 #[derive(Debug, Default)]
 pub struct DistMixtureState {
     xs: Vec<f64>,
     k: Constant<i64>,
-    has_k: bool,
+    resolution: Constant<Resolution>,
 }
 
 impl State for DistMixtureState {
@@ -211,7 +423,6 @@ impl State for DistMixtureState {
     fn step(&mut self, args: &Args<'_>) -> Result<()> {
         let mut go = || -> std::result::Result<(), ArgError> {
             if let Some(v) = args.optional(1) {
-                self.has_k = true;
                 let k = whole(v, "k")?;
                 if self.k.observe(k, "k")?
                     && let Some(k) = k
@@ -220,6 +431,7 @@ impl State for DistMixtureState {
                     return Err(MixtureError::BadK(k).into());
                 }
             }
+            observe_resolution(&mut self.resolution, args, 2)?;
             if let Some(x) = number(args.get(0), "x")? {
                 push(&mut self.xs, x)?;
             }
@@ -230,36 +442,33 @@ impl State for DistMixtureState {
 
     fn merge(&mut self, other: Self) -> Result<()> {
         let go = || -> std::result::Result<(), ArgError> {
-            self.has_k |= other.has_k;
             self.k.merge(other.k, "k")?;
+            self.resolution.merge(other.resolution, "resolution")?;
             try_extend(&mut self.xs, &other.xs)
         };
         go().map_err(|e| fail(Self::NAME, e))
     }
 
     fn finalize(&mut self) -> Result<Out> {
-        let k = match (self.has_k, self.k.get()) {
-            (false, _) => None,
-            (true, None) => return Ok(Out::Null),
-            // Checked in `step` to lie in 1..=MAX_COMPONENTS.
-            (true, Some(&k)) => Some(k as usize),
-        };
+        // Checked in `step` to lie in 1..=MAX_COMPONENTS; NULL or absent: by BIC.
+        let k = self.k.get().map(|&k| k as usize);
         if self.xs.is_empty() {
             return Ok(Out::Null);
         }
-        // The kernel sorts and merges ties itself, so row order does not matter.
-        let f = fit_mixture(&self.xs, k).map_err(|e| fail(Self::NAME, e))?;
+        let resolution = self.resolution.get().copied().unwrap_or(Resolution::Exact);
+        // The kernel sorts and merges ties itself (and checks the grid on its distinct
+        // values), so row order does not matter.
+        let f = fit_mixture_rounded(&self.xs, k, resolution).map_err(|e| fail(Self::NAME, e))?;
         Ok(Out::Text(Model::from(f).to_json()))
     }
 
     fn save(&self, w: &mut Writer) {
-        w.bool(self.has_k);
         w.constant(self.k.raw());
+        w.constant(self.resolution.raw());
         w.f64s(&self.xs);
     }
 
     fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
-        let has_k = r.bool()?;
         let k: Constant<i64> = r.constant_of()?;
         if let Some(&k) = k.get()
             && !(1..=MAX_COMPONENTS as i64).contains(&k)
@@ -267,8 +476,8 @@ impl State for DistMixtureState {
             return Err(MixtureError::BadK(k).into());
         }
         Ok(DistMixtureState {
-            has_k,
             k,
+            resolution: r.constant_of()?,
             xs: r.f64s()?,
         })
     }

@@ -22,6 +22,9 @@
 //! - [`lilliefors`]: Kolmogorov-Smirnov with estimated normal or exponential parameters.
 //! - [`rng`]: a seeded generator for repeatable simulations.
 //! - [`fit`]: parametric families and their maximum-likelihood fits.
+//! - [`readings`]: the same fits on rounded (binned) and censored readings.
+//! - [`simplex`]: the Nelder-Mead method behind [`readings`].
+//! - [`resolution`]: the step readings were rounded to, stated or found.
 //! - [`incomplete_gamma`]: the regularised incomplete gamma function for large shapes
 //!   (Temme's uniform asymptotic expansion), behind the gamma family of [`fit`].
 //! - [`mixture`]: univariate Gaussian mixtures, fitted by EM.
@@ -61,9 +64,12 @@ pub mod mixture;
 pub mod moments;
 pub mod order;
 pub mod quantile;
+pub mod readings;
+pub mod resolution;
 pub mod rng;
 pub mod roots;
 pub mod sample;
+pub mod simplex;
 pub mod sketch;
 pub mod sorting;
 pub mod sum;

@@ -1,6 +1,7 @@
 //! The merged, standardised data and its thinned copy.
 
 use super::*;
+use crate::stats::resolution::{Resolution, resolve};
 use crate::stats::sum::NeumaierSum;
 
 /// The merged, standardised data.
@@ -18,10 +19,18 @@ pub(super) struct Data {
     /// Mean and standard deviation used to standardise.
     pub(super) centre: f64,
     pub(super) scale: f64,
+    /// For readings rounded to a step: the step in standardised units (each point
+    /// stands for the interval of this width around it, and EM is that for grouped
+    /// data, `super::binned`); `None` for exact values.
+    pub(super) width: Option<f64>,
+    /// That step in the data's units, as stated or found.
+    pub(super) step: Option<f64>,
 }
 
 impl Data {
-    pub(super) fn new(xs: &[f64]) -> Result<Data, MixtureError> {
+    /// The data of `xs`, with the step of `resolution` checked against the distinct
+    /// values (or found, for [`Resolution::Auto`]).
+    pub(super) fn new(xs: &[f64], resolution: Resolution) -> Result<Data, MixtureError> {
         // Ties are merged in place: the distinct values move to the front of the
         // sorted copy, their counts alongside.
         let mut x = crate::stats::sorting::sorted_total(xs);
@@ -43,6 +52,7 @@ impl Data {
         if x.len() == 1 {
             return Err(MixtureError::AllEqual(x[0]));
         }
+        let step = resolve(&x, resolution).map_err(MixtureError::Grid)?;
         let centre = weighted_sum(&x, &count, |v| v) / total;
         // The values are sorted, so the farthest from the centre is an end.
         let spread = (x[0] - centre).abs().max((x[x.len() - 1] - centre).abs());
@@ -54,7 +64,10 @@ impl Data {
         for v in &mut x {
             *v = (*v - centre) / scale;
         }
-        Ok(Data::with_prefixes(x, count, total, centre, scale))
+        let mut data = Data::with_prefixes(x, count, total, centre, scale);
+        data.width = step.map(|r| r / scale);
+        data.step = step;
+        Ok(data)
     }
 
     /// The data from merged standardised points, with their prefix sums.
@@ -84,6 +97,8 @@ impl Data {
             total,
             centre,
             scale,
+            width: None,
+            step: None,
         }
     }
 
@@ -115,13 +130,10 @@ impl Data {
             count.push(c);
             start = end;
         }
-        Some(Data::with_prefixes(
-            x,
-            count,
-            self.total,
-            self.centre,
-            self.scale,
-        ))
+        let mut thin = Data::with_prefixes(x, count, self.total, self.centre, self.scale);
+        thin.width = self.width;
+        thin.step = self.step;
+        Some(thin)
     }
 }
 

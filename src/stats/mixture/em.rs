@@ -217,6 +217,9 @@ impl Data {
     /// width), sums stay in their written order, and Rust never fuses a multiply and an
     /// add on its own.
     pub(super) fn em_pass(&self, p: &Params) -> Option<(f64, Params)> {
+        if let Some(width) = self.width {
+            return self.em_pass_binned(p, width);
+        }
         #[cfg(target_arch = "x86_64")]
         if std::arch::is_x86_feature_detected!("avx2") {
             // The one justified `unsafe` of the mathematics: a run-time dispatch.

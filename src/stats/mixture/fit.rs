@@ -4,6 +4,7 @@ use super::data::Data;
 use super::em::{Params, Run};
 use super::*;
 use crate::stats::fit::FitSummary;
+use crate::stats::resolution::Resolution;
 
 /// The outcome of one candidate k when k is chosen by BIC.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -29,6 +30,8 @@ pub struct MixtureFit {
     pub converged: bool,
     /// Every k tried, in increasing order (just one when k was given).
     pub candidates: Vec<Candidate>,
+    /// The step the values were taken as rounded to (`None`: exact values).
+    pub resolution: Option<f64>,
 }
 
 /// Fits a Gaussian mixture with `k` components, or with the k in `1..=6` of least BIC
@@ -49,7 +52,34 @@ pub struct MixtureFit {
 /// # Ok::<(), ogive::stats::mixture::MixtureError>(())
 /// ```
 pub fn fit_mixture(xs: &[f64], k: Option<usize>) -> Result<MixtureFit, MixtureError> {
-    fit_thinned(xs, k, THIN_TO)
+    fit_thinned(xs, k, THIN_TO, Resolution::Exact)
+}
+
+/// [`fit_mixture`] on values rounded to a step ([`Resolution::Step`], or found with
+/// [`Resolution::Auto`]): EM for grouped data, with the grouped log-likelihood, AIC and
+/// BIC (see the [module documentation](self)). With [`Resolution::Exact`], or `Auto`
+/// finding no grid, it is [`fit_mixture`].
+///
+/// # Errors
+/// As [`fit_mixture`], and [`MixtureError::Grid`] for a step that is not `> 0` or that
+/// a value is off.
+///
+/// # Example
+/// ```
+/// use ogive::stats::mixture::fit_mixture_rounded;
+/// use ogive::stats::resolution::Resolution;
+/// let xs = [1.0, 1.0, 2.0, 2.0, 2.0, 3.0, 8.0, 9.0, 9.0, 9.0, 10.0, 10.0];
+/// let fit = fit_mixture_rounded(&xs, Some(2), Resolution::Auto)?;
+/// assert_eq!(fit.resolution, Some(1.0));
+/// assert!(fit.summary.loglik < 0.0); // a sum of log probabilities
+/// # Ok::<(), ogive::stats::mixture::MixtureError>(())
+/// ```
+pub fn fit_mixture_rounded(
+    xs: &[f64],
+    k: Option<usize>,
+    resolution: Resolution,
+) -> Result<MixtureFit, MixtureError> {
+    fit_thinned(xs, k, THIN_TO, resolution)
 }
 
 /// [`fit_mixture`], ranking the starts on at most `thin_to` merged values.
@@ -57,6 +87,7 @@ pub(super) fn fit_thinned(
     xs: &[f64],
     k: Option<usize>,
     thin_to: usize,
+    resolution: Resolution,
 ) -> Result<MixtureFit, MixtureError> {
     if let Some(k) = k
         && !(1..=MAX_COMPONENTS).contains(&k)
@@ -76,7 +107,7 @@ pub(super) fn fit_thinned(
             got: n,
         });
     }
-    let data = Data::new(xs)?;
+    let data = Data::new(xs, resolution)?;
     let distinct = data.x.len();
     if distinct < first_k {
         return Err(MixtureError::TooFewDistinct {
@@ -116,7 +147,7 @@ pub(super) fn fit_thinned(
     };
     let run = data.resume(run, TOLERANCE).unwrap_or(run);
     let k = run.params.k;
-    let mixture = if k == 1 {
+    let mixture = if k == 1 && data.width.is_none() {
         // One component's MLE is the sample mean and the sd with divisor n: exactly the
         // centre and scale of the standardisation (compensated sums over the values
         // themselves). Mapping the EM's standardised mean back would add the rounding
@@ -144,12 +175,17 @@ pub(super) fn fit_thinned(
         iterations: run.iterations,
         converged: run.converged,
         candidates,
+        resolution: data.step,
     })
 }
 
 impl Data {
     /// The log-likelihood in the data's units from a standardised one.
     pub(super) fn loglik_in_x(&self, standardised: f64) -> f64 {
+        if self.width.is_some() {
+            // Grouped data: probabilities, the same in any units.
+            return standardised;
+        }
         standardised - self.total * (0.5 * (2.0 * std::f64::consts::PI).ln() + self.scale.ln())
     }
 

@@ -4,6 +4,7 @@ use super::data::Data;
 use super::em::exp_nonpositive;
 use super::fit::fit_thinned;
 use super::*;
+use crate::stats::resolution::Resolution;
 use crate::stats::rng::SplitMix64;
 use statrs::distribution::{ContinuousCDF, Normal};
 
@@ -45,8 +46,8 @@ fn ranking_on_thinned_values_loses_nothing() {
         .map(|(i, &v)| if i % 3 == 0 { 2.5 + 0.7 * v } else { v })
         .collect();
     for k in [2, 3] {
-        let thinned = fit_thinned(&xs, Some(k), 1024).unwrap();
-        let full = fit_thinned(&xs, Some(k), usize::MAX).unwrap();
+        let thinned = fit_thinned(&xs, Some(k), 1024, Resolution::Exact).unwrap();
+        let full = fit_thinned(&xs, Some(k), usize::MAX, Resolution::Exact).unwrap();
         assert!(thinned.converged && full.converged);
         // Tolerance: the resolution at which the method compares runs at all
         // (SELECTION_TOLERANCE, 1e-8 per value) times n; with k = 3 on two-component
@@ -87,7 +88,10 @@ fn binning_is_exact() {
         .map(|v| (v * 10.0f64).round() / 10.0)
         .collect();
     let tripled: Vec<f64> = base.iter().flat_map(|&v| [v, v, v]).collect();
-    let (a, b) = (Data::new(&base).unwrap(), Data::new(&tripled).unwrap());
+    let (a, b) = (
+        Data::new(&base, Resolution::Exact).unwrap(),
+        Data::new(&tripled, Resolution::Exact).unwrap(),
+    );
     assert!(a.x.len() < base.len(), "the rounded data must have ties");
     assert!(a.x.iter().zip(&b.x).all(|(u, v)| (u - v).abs() < 1e-14));
     assert!(a.count.iter().zip(&b.count).all(|(u, v)| 3.0 * u == *v));
@@ -160,7 +164,7 @@ fn avx2_pass_is_bit_identical() {
             _ => z,
         })
         .collect();
-    let data = Data::new(&xs).unwrap();
+    let data = Data::new(&xs, Resolution::Exact).unwrap();
     let thin = data.thinned(256).unwrap();
     assert!(data.count.iter().any(|&c| c > 1.0) && data.count.contains(&1.0));
     for d in [&data, &thin] {
@@ -196,7 +200,7 @@ fn em_never_decreases_the_likelihood() {
         .enumerate()
         .map(|(i, z)| if i % 2 == 0 { z + 1.0 } else { 2.0 * z })
         .collect();
-    let data = Data::new(&xs).unwrap();
+    let data = Data::new(&xs, Resolution::Exact).unwrap();
     let mut p = data.quantile_start(3).unwrap();
     let mut last = f64::NEG_INFINITY;
     for _ in 0..200 {

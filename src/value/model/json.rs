@@ -6,6 +6,7 @@ use serde_json::{Map, Value, json};
 use super::{EM_FIELDS, FIT_FIELDS, Law, MIXTURE_FAMILY, Model, ModelError};
 use crate::stats::fit::{Family, FitError, Parametric};
 use crate::stats::mixture::{Candidate, Component, MAX_COMPONENTS, Mixture, MixtureError};
+use crate::stats::readings::CensorCounts;
 
 /// A JSON object being read: the fields taken so far, so that any left over can be
 /// reported as unknown.
@@ -380,6 +381,28 @@ impl Model {
         self.fit.loglik = r.optional_number("loglik")?;
         self.fit.aic = r.optional_number("aic")?;
         self.fit.bic = r.optional_number("bic")?;
+        self.fit.resolution = r.optional_number("resolution")?;
+        if let Some(step) = self.fit.resolution
+            && !(step > 0.0 && step.is_finite())
+        {
+            return Err(r.bad("resolution", format!("must be a number > 0, got {step}")));
+        }
+        let counts = [
+            r.optional_count("n_exact")?,
+            r.optional_count("n_left")?,
+            r.optional_count("n_right")?,
+        ];
+        self.fit.censored = match counts {
+            [None, None, None] => None,
+            [Some(exact), Some(left), Some(right)] => Some(CensorCounts { exact, left, right }),
+            _ => {
+                return Err(r.bad(
+                    "n_exact",
+                    "n_exact, n_left and n_right come together (the counts of a censored fit)"
+                        .to_string(),
+                ));
+            }
+        };
         Ok(())
     }
 
@@ -464,10 +487,16 @@ impl Model {
             ("loglik", self.fit.loglik),
             ("aic", self.fit.aic),
             ("bic", self.fit.bic),
+            ("resolution", self.fit.resolution),
         ] {
             if let Some(v) = v {
                 out.insert(name.into(), json!(v));
             }
+        }
+        if let Some(c) = self.fit.censored {
+            out.insert("n_exact".into(), json!(c.exact));
+            out.insert("n_left".into(), json!(c.left));
+            out.insert("n_right".into(), json!(c.right));
         }
         if let Some(i) = self.iterations {
             out.insert("iterations".into(), json!(i));

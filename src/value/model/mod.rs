@@ -37,6 +37,7 @@ use std::fmt;
 use crate::stats::StatsError;
 use crate::stats::fit::{Family, FitSummary, Parametric, ParametricFit};
 use crate::stats::mixture::{Candidate, Component, Mixture, MixtureFit};
+use crate::stats::readings::CensorCounts;
 
 /// The family name of a Gaussian mixture.
 pub const MIXTURE_FAMILY: &str = "normal_mixture";
@@ -46,7 +47,16 @@ pub const MIXTURE_FAMILY: &str = "normal_mixture";
 pub const FIT_MATCH: f64 = 1e-9;
 
 /// Fit metadata every model may carry.
-const FIT_FIELDS: [&str; 4] = ["n", "loglik", "aic", "bic"];
+const FIT_FIELDS: [&str; 8] = [
+    "n",
+    "loglik",
+    "aic",
+    "bic",
+    "resolution",
+    "n_exact",
+    "n_left",
+    "n_right",
+];
 /// Further metadata of a fitted mixture.
 const EM_FIELDS: [&str; 4] = ["k", "iterations", "converged", "k_candidates"];
 
@@ -173,6 +183,10 @@ struct FitFields {
     loglik: Option<f64>,
     aic: Option<f64>,
     bic: Option<f64>,
+    /// The step the readings were taken as rounded to (then the likelihood is binned).
+    resolution: Option<f64>,
+    /// The counts of exact, left- and right-censored readings of a censored fit.
+    censored: Option<CensorCounts>,
 }
 
 impl From<FitSummary> for FitFields {
@@ -182,6 +196,8 @@ impl From<FitSummary> for FitFields {
             loglik: Some(s.loglik),
             aic: Some(s.aic),
             bic: Some(s.bic),
+            resolution: None,
+            censored: None,
         }
     }
 }
@@ -198,7 +214,10 @@ impl From<ParametricFit> for Model {
 impl From<MixtureFit> for Model {
     fn from(f: MixtureFit) -> Self {
         Model {
-            fit: f.summary.into(),
+            fit: FitFields {
+                resolution: f.resolution,
+                ..f.summary.into()
+            },
             iterations: Some(u64::from(f.iterations)),
             converged: Some(f.converged),
             k_candidates: Some(f.candidates),
@@ -208,6 +227,54 @@ impl From<MixtureFit> for Model {
 }
 
 impl Model {
+    /// The same model, recorded as fitted to readings rounded to `step` (the `resolution`
+    /// field), when there is a step.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::fit::Family;
+    /// use ogive::stats::readings::fit_rounded;
+    /// use ogive::value::model::Model;
+    /// let m = Model::from(fit_rounded(&[1.0, 2.0, 2.0, 3.0], Family::Normal, 1.0)?).rounded_to(Some(1.0));
+    /// assert_eq!(m.resolution(), Some(1.0));
+    /// assert!(m.to_json().contains(r#""resolution":1.0"#));
+    /// # Ok::<(), ogive::stats::fit::FitError>(())
+    /// ```
+    pub fn rounded_to(mut self, step: Option<f64>) -> Model {
+        self.fit.resolution = step;
+        self
+    }
+
+    /// The same model, recorded as fitted to censored readings with these counts (the
+    /// `n_exact`, `n_left` and `n_right` fields).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::fit::Family;
+    /// use ogive::stats::readings::fit_censored;
+    /// use ogive::value::model::Model;
+    /// let (f, counts) = fit_censored(&[1.0, 2.0, 3.0, 6.0], &[0, 0, 0, 1], Family::Exponential)?;
+    /// let m = Model::from(f).censored(counts);
+    /// assert!(m.to_json().contains(r#""n_exact":3,"n_left":0,"n_right":1"#));
+    /// # Ok::<(), ogive::stats::fit::FitError>(())
+    /// ```
+    pub fn censored(mut self, counts: CensorCounts) -> Model {
+        self.fit.censored = Some(counts);
+        self
+    }
+
+    /// The step the model's readings were taken as rounded to, when it was so fitted.
+    ///
+    /// # Example
+    /// ```
+    /// let m = ogive::value::model::Model::parse(r#"{"family": "exponential", "rate": 2, "resolution": 0.5}"#)?;
+    /// assert_eq!(m.resolution(), Some(0.5));
+    /// # Ok::<(), ogive::value::model::ModelError>(())
+    /// ```
+    pub fn resolution(&self) -> Option<f64> {
+        self.fit.resolution
+    }
+
     /// A model of a distribution, with no fit statistics.
     fn of(law: Law) -> Model {
         Model {
@@ -457,6 +524,12 @@ impl Model {
                 "a {MIXTURE_FAMILY} is not a maximum-likelihood fit of one family"
             )));
         };
+        if self.fit.resolution.is_some() || self.fit.censored.is_some() {
+            return Err(ModelError::NotTheFit(
+                "it was fitted to rounded or censored readings, not to the values as exact"
+                    .to_string(),
+            ));
+        }
         crate::stats::fit::check_is_fit_of(p, self.fit.n, xs, FIT_MATCH)
             .map_err(ModelError::NotTheFit)
     }
@@ -497,7 +570,7 @@ mod tests {
         assert_eq!(
             err(r#"{"family": "normal", "mean": 0, "sd": 1, "scale": 2}"#),
             "model has an unknown field \"scale\"; the fields of a normal model are family, mean, \
-             sd, n, loglik, aic, bic"
+             sd, n, loglik, aic, bic, resolution, n_exact, n_left, n_right"
         );
         assert_eq!(
             err(r#"{"family": "gamma", "shape": -1, "scale": 2}"#),
