@@ -22,3 +22,19 @@ SELECT round(bic_one - bic_two) AS bic_gain,
            AND steady_mean BETWEEN 2.5 AND 3.5 AND steady_sd < 0.5
            AND warm_mean > steady_mean + 1 AND steady_weight > 0.5 AS ok
 FROM parts;
+
+-- with the loggers' 0.1 degC resolution, BIC finds two or three regimes in every trailer's hourly
+-- readings, none of them a spike on single values (taken as exact, most trailers get five or six)
+WITH fits AS (
+    SELECT trailer,
+           dist_mixture(temp_c, NULL, 0.1) ->> '$.k' AS k_logged,
+           dist_mixture(temp_c) ->> '$.k' AS k_exact
+    FROM readings
+    WHERE substr(ts, 15, 2) = '00'
+    GROUP BY trailer
+)
+SELECT count(*) AS trailers,
+       sum(k_logged = 2) AS with_two_regimes,
+       sum(k_exact >= 5) AS with_five_or_more_as_exact,
+       min(k_logged) >= 2 AND max(k_logged) <= 3 AS ok
+FROM fits;

@@ -1,7 +1,8 @@
 -- Two temperature regimes in the fleet's readings, found by a Gaussian mixture: steady
 -- cooling near the setpoint, and the warm excursions that open doors cause (the readings
 -- while a door is open and the recovery after it shuts). k = 2 asks for the two regimes;
--- sql/checks/regimes.sql checks that two components beat one by BIC.
+-- sql/checks/regimes.sql checks that two components beat one by BIC. The last query lets BIC choose k,
+-- and shows why the loggers' 0.1 degC steps must be said (resolution).
 
 -- The two regimes of the whole fleet: share of readings, mean and spread (dist_mixture, dist_components)
 WITH fit AS (SELECT dist_mixture(temp_c, 2) AS m FROM readings)
@@ -36,3 +37,22 @@ FROM readings AS r JOIN trailers AS t USING (trailer), fit
 WHERE r.temp_c IS NOT NULL
 GROUP BY r.trailer
 ORDER BY share_in_excursions DESC;
+
+-- How many regimes BIC finds in each trailer's hourly readings: taken as exact values, narrow components
+-- sit on single 0.1 degC values and win; with the logger's resolution each reading is the 0.1 degC
+-- interval it stands for, and BIC finds 2 regimes (3 where it splits the excursions' long warm tail)
+WITH fits AS (
+    SELECT trailer,
+           dist_mixture(temp_c) AS as_exact,
+           dist_mixture(temp_c, NULL, 0.1) AS as_logged
+    FROM readings
+    WHERE substr(ts, 15, 2) = '00'
+    GROUP BY trailer
+)
+SELECT trailer,
+       as_exact ->> '$.k' AS k_as_exact,
+       (SELECT round(min(sd), 4) FROM dist_components(as_exact)) AS narrowest_sd_as_exact,
+       as_logged ->> '$.k' AS k_as_logged,
+       (SELECT round(min(sd), 4) FROM dist_components(as_logged)) AS narrowest_sd_as_logged
+FROM fits
+ORDER BY trailer;
