@@ -15,6 +15,7 @@ See bench/README.md for every option.
 
 import argparse
 import datetime
+import json
 import os
 import pathlib
 import platform
@@ -334,6 +335,43 @@ def bench_mixture(ext, rows, reps, report):
     c.close()
 
 
+def bench_rounded(ext, rows, reps, report):
+    """Fits on readings rounded to 0.1 (two regimes, as a logger's temperatures): with the
+    resolution the fits work on the distinct grid values with counts (grouped-data EM for
+    the mixture, the binned likelihood for dist_fit), against today's fits of the same rows
+    taken as exact."""
+
+    def make(rng, n):
+        comp = rng.choice(2, size=n, p=[0.8, 0.2])
+        x = rng.normal(np.array([3.0, 5.0])[comp], np.array([0.3, 1.0])[comp])
+        return ["x REAL"], [np.round(x, 1)]
+
+    path = dataset(ext, "rounded", rows, make)
+    c = connect(ext, path)
+    if not has_function(c, "dist_mixture"):
+        report.section("Rounded readings", [("dist_mixture: not in this build", None)])
+        return
+    cases = [
+        ("dist_mixture(x, 2), values taken as exact", "SELECT dist_mixture(x, 2) FROM t"),
+        ("dist_mixture(x, 2, 0.1): grouped-data EM", "SELECT dist_mixture(x, 2, 0.1) FROM t"),
+        ("dist_mixture(x), k by BIC, taken as exact", "SELECT dist_mixture(x) FROM t"),
+        ("dist_mixture(x, NULL, 0.1), k by BIC, grouped", "SELECT dist_mixture(x, NULL, 0.1) FROM t"),
+        ("dist_fit(x + 10, 'gamma'), taken as exact", "SELECT dist_fit(x + 10, 'gamma') FROM t"),
+        ("dist_fit(x + 10, 'gamma', 0.1): binned", "SELECT dist_fit(x + 10, 'gamma', 0.1) FROM t"),
+    ]
+    results = [(label, timed(sql_case(c, sql), reps)[0]) for label, sql in cases]
+    ks = [json.loads(c.execute(sql).fetchone()[0]).get("k") for _, sql in cases[2:4]]
+    report.section(
+        f"Rounded readings (0.1 steps), {rows:,} rows",
+        results,
+        f"k chosen by BIC: {ks[0]} taken as exact, {ks[1]} with the resolution (the data have two "
+        "regimes). Target: each fit with the resolution no slower than the same fit taken as exact.",
+    )
+    for i in (0, 2, 4):
+        report.target(f"{results[i + 1][0]} / {results[i][0]}", results[i + 1][1] / results[i][1], 1.0)
+    c.close()
+
+
 def bench_weibull(ext, rows, reps, report):
     path = dataset(ext, "weibull", rows, lambda rng, n: (["x REAL"], [rng.weibull(1.7, n) * 3.0]))
     c = connect(ext, path)
@@ -501,7 +539,7 @@ def main():
         help="sizes for the memory probe; add 100000000 for the 100M case (a 1.7 GB file, "
         "about 15 minutes to generate the first time)",
     )
-    ap.add_argument("--only", nargs="*", help="run only these cases: column grouped rolling ks mixture weibull memory")
+    ap.add_argument("--only", nargs="*", help="run only these cases: column grouped rolling ks mixture weibull rounded memory")
     ap.add_argument("--reps", type=int, default=5)
     ap.add_argument("--extension", default=str(ROOT / "ext" / "target" / "release" / "libogive.so"))
     ap.add_argument("--out", default=str(ROOT / "bench" / "RESULTS.md"))
@@ -517,6 +555,7 @@ def main():
         "ks": lambda: bench_ks(args.extension, args.ks_rows, args.reps, report),
         "mixture": lambda: bench_mixture(args.extension, args.model_rows, max(1, args.reps // 2), report),
         "weibull": lambda: bench_weibull(args.extension, args.model_rows, args.reps, report),
+        "rounded": lambda: bench_rounded(args.extension, args.model_rows, max(1, args.reps // 2), report),
         "memory": lambda: bench_memory(args.extension, args.memory_rows, report),
     }
     for name, run in cases.items():

@@ -25,11 +25,11 @@
 //! coordinates where every parameter is free and the two are nearly uncorrelated: normal
 //! and lognormal `(location, ln scale)`; exponential `ln rate`; gamma `(ln shape,
 //! ln mean)`; Weibull `(ln shape, ln scale)`; uniform `(min, max)` (outside the
-//! readings' reach the likelihood is `-inf`). It starts from the fit that takes every
-//! reading as exact ([`crate::stats::fit::fit`]), and stops when the log-likelihood is
-//! stable to `1e-13` relative (then a restart confirms it). The uniform family on rounded
-//! readings starts from the support that just covers the outer bins; its maximum may cut
-//! into an end bin that holds few readings.
+//! readings' reach the likelihood is `-inf`). A censored fit starts from the fit that
+//! takes every reading as exact ([`crate::stats::fit::fit`]); a binned fit from the
+//! grouped readings' moments (one pass over the distinct values, see `moment_start`).
+//! It stops when the log-likelihood is stable to `1e-13` relative (then a restart
+//! confirms it).
 //!
 //! # Errors and NaN policy
 //!
@@ -95,33 +95,92 @@ const TOLERANCE: f64 = 1e-13;
 /// ```
 pub fn fit_rounded(xs: &[f64], family: Family, step: f64) -> Result<ParametricFit, FitError> {
     check_values(xs, family, |x| x >= 0.0)?;
-    let grouped = group(
-        xs.iter()
-            .map(|&x| (Reading::Within(x - step / 2.0, x + step / 2.0), x)),
-    );
+    let (values, counts) = distinct(xs);
+    let grouped: Vec<(Reading, f64)> = values
+        .iter()
+        .zip(&counts)
+        .map(|(&x, &c)| (Reading::Within(x - step / 2.0, x + step / 2.0), c))
+        .collect();
     let n = xs.len() as u64;
     let need = family.parameter_names().len();
-    if family == Family::Uniform {
-        // The start covers the outer bins; the maximum may lie inside them (an end bin
-        // with few readings is cut, which the other bins' shorter range pays for).
-        let (lo, hi) = extremes(xs);
-        let start = Parametric::new(family, &[lo - step / 2.0, hi + step / 2.0])
-            .map_err(|_| FitError::Degenerate { family })?;
-        return climb(family, start, &grouped, need, n);
-    }
-    // The exact fit is the start; zeros (allowed here) move to a quarter step.
-    let starts: Vec<f64> = xs
-        .iter()
-        .map(|&x| {
-            if x == 0.0 && family.needs_positive() {
-                step / 4.0
-            } else {
-                x
-            }
-        })
-        .collect();
-    let start = fit(&starts, family)?.distribution;
+    let start = moment_start(family, &values, &counts, step)?;
     climb(family, start, &grouped, need, n)
+}
+
+/// The distinct values of `xs` in increasing order, with their counts (one pass when
+/// `xs` is sorted, as the SQL adapter passes it; a sorted copy otherwise).
+fn distinct(xs: &[f64]) -> (Vec<f64>, Vec<f64>) {
+    let sorted_copy;
+    let sorted = if xs.windows(2).all(|w| w[0] <= w[1]) {
+        xs
+    } else {
+        let mut v = xs.to_vec();
+        v.sort_unstable_by(f64::total_cmp);
+        sorted_copy = v;
+        &sorted_copy
+    };
+    let (mut values, mut counts): (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
+    for &x in sorted {
+        match (values.last(), counts.last_mut()) {
+            (Some(&last), Some(c)) if last == x => *c += 1.0,
+            _ => {
+                values.push(x);
+                counts.push(1.0);
+            }
+        }
+    }
+    (values, counts)
+}
+
+/// A start for the binned fit from the grouped readings' weighted moments, in one pass
+/// over the distinct values: normal mean and sd (less the rounding's `step^2 / 12`,
+/// Sheppard's correction); lognormal the same on `ln x`; exponential one over the mean;
+/// gamma the method of moments; Weibull the Gumbel moments of `ln x` (shape `pi /
+/// (sqrt 6 sd)`, scale `exp(mean + Euler's constant / shape)`); uniform the support that
+/// just covers the outer bins (its maximum may cut into an end bin that holds few
+/// readings). Zeros count as a quarter step for the logarithms.
+fn moment_start(
+    family: Family,
+    values: &[f64],
+    counts: &[f64],
+    step: f64,
+) -> Result<Parametric, FitError> {
+    let moments = |f: &dyn Fn(f64) -> f64| {
+        let total: f64 = counts.iter().sum();
+        let mut s = NeumaierSum::default();
+        for (&x, &c) in values.iter().zip(counts) {
+            s.add(c * f(x));
+        }
+        let mean = s.value() / total;
+        let mut v = NeumaierSum::default();
+        for (&x, &c) in values.iter().zip(counts) {
+            v.add(c * (f(x) - mean).powi(2));
+        }
+        (mean, (v.value() / total).max(0.0))
+    };
+    let ln = |x: f64| if x > 0.0 { x.ln() } else { (step / 4.0).ln() };
+    let params: Vec<f64> = match family {
+        Family::Normal => {
+            let (m, var) = moments(&|x| x);
+            vec![m, (var - step * step / 12.0).max(var * 1e-4).sqrt()]
+        }
+        Family::LogNormal => {
+            let (m, var) = moments(&ln);
+            vec![m, var.sqrt()]
+        }
+        Family::Exponential => vec![1.0 / moments(&|x| x).0],
+        Family::Gamma => {
+            let (m, var) = moments(&|x| x);
+            vec![m * m / var, var / m]
+        }
+        Family::Weibull => {
+            let (m, var) = moments(&ln);
+            let shape = std::f64::consts::PI / (6f64.sqrt() * var.sqrt());
+            vec![shape, (m + 0.577_215_664_901_532_9 / shape).exp()]
+        }
+        Family::Uniform => vec![values[0] - step / 2.0, values[values.len() - 1] + step / 2.0],
+    };
+    Parametric::new(family, &params).map_err(|_| FitError::Degenerate { family })
 }
 
 /// Fits `family` to readings with censoring codes (0 exact, -1 left-censored: the true

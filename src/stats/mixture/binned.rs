@@ -45,26 +45,57 @@ fn upper(z: f64) -> f64 {
     0.5 * libm::erfc(z * std::f64::consts::FRAC_1_SQRT_2)
 }
 
+/// One end of an interval in standard units, with what the moments need of it: the
+/// smaller tail beyond it, `Q(|t|)`, and the density. Adjacent grid values share an end,
+/// so a pass evaluates each once.
+#[derive(Debug, Clone, Copy)]
+struct End {
+    t: f64,
+    tail: f64,
+    phi: f64,
+}
+
+impl End {
+    fn at(t: f64) -> End {
+        End {
+            t,
+            tail: upper(t.abs()),
+            phi: ln_phi(t).exp(),
+        }
+    }
+}
+
 /// The standard normal on `[a, b]` (`a < b`, either may be infinite): `(ln Z, E[z],
 /// E[z^2])` with `Z` its probability and the moments conditional on the interval.
-pub(super) fn interval_moments(a: f64, b: f64) -> (f64, f64, f64) {
-    if a > 0.0 || (a == 0.0 && b > 0.0 && a.is_sign_positive()) {
-        return upper_interval(a, b);
+#[cfg(test)]
+fn interval_moments(a: f64, b: f64) -> (f64, f64, f64) {
+    between(&End::at(a), &End::at(b))
+}
+
+/// [`interval_moments`] from the interval's ends.
+fn between(a: &End, b: &End) -> (f64, f64, f64) {
+    if b.t - a.t < NARROW {
+        return narrow(a.t, b.t);
     }
-    if b < 0.0 {
-        // Mirror: z -> -z maps [a, b] to [-b, -a].
-        let (ln_z, e1, e2) = upper_interval(-b, -a);
-        return (ln_z, -e1, e2);
+    // Z from the tails the ends lie in, so no probability near 1 is subtracted.
+    let z = if a.t >= 0.0 {
+        a.tail - b.tail
+    } else if b.t <= 0.0 {
+        b.tail - a.tail
+    } else {
+        1.0 - a.tail - b.tail
+    };
+    if !(z > TINY) {
+        return if a.t >= 0.0 {
+            far_upper(a.t, b.t)
+        } else {
+            // Mirror: z -> -z maps [a, b] to [-b, -a].
+            let (ln_z, e1, e2) = far_upper(-b.t, -a.t);
+            (ln_z, -e1, e2)
+        };
     }
-    // The interval holds 0: no tail cancellation.
-    let w = b - a;
-    if w < NARROW {
-        return narrow(a, b);
-    }
-    let z = 1.0 - upper(b) - upper(-a);
-    let (pa, pb) = (ln_phi(a).exp(), ln_phi(b).exp());
-    let e1 = (pa - pb) / z;
-    let e2 = 1.0 + (times(a, pa) - times(b, pb)) / z;
+    let e1 = (a.phi - b.phi) / z;
+    let e2 = 1.0 + (times(a.t, a.phi) - times(b.t, b.phi)) / z;
     (z.ln(), e1, e2)
 }
 
@@ -73,19 +104,10 @@ fn times(x: f64, phi: f64) -> f64 {
     if phi == 0.0 { 0.0 } else { x * phi }
 }
 
-/// [`interval_moments`] for `0 <= a < b`, in the upper tail.
-fn upper_interval(a: f64, b: f64) -> (f64, f64, f64) {
-    if b - a < NARROW {
-        return narrow(a, b);
-    }
-    let z = upper(a) - upper(b);
-    if z > TINY {
-        let (pa, pb) = (ln_phi(a).exp(), ln_phi(b).exp());
-        let e1 = (pa - pb) / z;
-        let e2 = 1.0 + (times(a, pa) - times(b, pb)) / z;
-        return (z.ln(), e1, e2);
-    }
-    // Far in the tail: ln Z = ln Q(a) + ln(1 - Q(b) / Q(a)), and phi / Z in log space.
+/// [`interval_moments`] for `0 <= a < b` far in the upper tail (where `Z` nears the
+/// smallest doubles), in log space: `ln Z = ln Q(a) + ln(1 - Q(b) / Q(a))`, and
+/// `phi / Z` as exponentials of differences of logs.
+fn far_upper(a: f64, b: f64) -> (f64, f64, f64) {
     let (qa, qb) = (ln_normal_upper(a), ln_normal_upper(b));
     let ln_z = qa + (-(qb - qa).exp()).ln_1p();
     let ra = (ln_phi(a) - ln_z).exp();
@@ -135,14 +157,28 @@ impl Data {
         let mut ln_p = [0.0; MAX_COMPONENTS];
         let mut m1 = [0.0; MAX_COMPONENTS];
         let mut m2 = [0.0; MAX_COMPONENTS];
+        let blank = End {
+            t: 0.0,
+            tail: 0.5,
+            phi: 0.0,
+        };
+        let mut last_upper = [blank; MAX_COMPONENTS];
+        let mut last_top = f64::NAN;
         for (&x, &c) in self.x.iter().zip(&self.count) {
             let mut top = f64::NEG_INFINITY;
+            // Adjacent grid values share an end (to rounding: the grid check allows
+            // readings a little off it, and the standardisation rounds).
+            let shared = (x - half - last_top).abs() <= 1e-9 * width;
+            last_top = x + half;
             for j in 0..k {
-                let (a, b) = (
-                    (x - half - p.mean[j]) / sd[j],
-                    (x + half - p.mean[j]) / sd[j],
-                );
-                let (ln_z, e1, e2) = interval_moments(a, b);
+                let lower = if shared {
+                    last_upper[j]
+                } else {
+                    End::at((x - half - p.mean[j]) / sd[j])
+                };
+                let upper_end = End::at((x + half - p.mean[j]) / sd[j]);
+                last_upper[j] = upper_end;
+                let (ln_z, e1, e2) = between(&lower, &upper_end);
                 ln_p[j] = ln_w[j] + ln_z;
                 // Moments about the component's mean, in the data's units.
                 m1[j] = sd[j] * e1;
