@@ -23,18 +23,18 @@ SELECT round(bic_one - bic_two) AS bic_gain,
            AND warm_mean > steady_mean + 1 AND steady_weight > 0.5 AS ok
 FROM parts;
 
--- with the loggers' 0.1 degC resolution, BIC finds two or three regimes in every trailer's hourly
--- readings, none of them a spike on single values (taken as exact, most trailers get five or six)
+-- with the 0.1 degC resolution, BIC finds 2 or 3 regimes in each trailer's hourly readings
+-- (none a spike on single grid values; taken as exact, most trailers get five or six)
 WITH fits AS (
     SELECT trailer,
            dist_mixture(temp_c, NULL, 0.1) ->> '$.k' AS k_logged,
            dist_mixture(temp_c) ->> '$.k' AS k_exact
     FROM readings
-    WHERE substr(ts, 15, 2) = '00'
+    WHERE ts LIKE '%:00'
     GROUP BY trailer
 )
 SELECT count(*) AS trailers,
-       sum(k_logged = 2) AS with_two_regimes,
-       sum(k_exact >= 5) AS with_five_or_more_as_exact,
+       sum(CASE WHEN k_logged = 2 THEN 1 ELSE 0 END) AS with_two_regimes,
+       sum(CASE WHEN k_exact >= 5 THEN 1 ELSE 0 END) AS with_five_or_more_as_exact,
        min(k_logged) >= 2 AND max(k_logged) <= 3 AS ok
 FROM fits;

@@ -46,7 +46,7 @@ WITH fits AS (
            dist_mixture(temp_c) AS as_exact,
            dist_mixture(temp_c, NULL, 0.1) AS as_logged
     FROM readings
-    WHERE substr(ts, 15, 2) = '00'
+    WHERE ts LIKE '%:00'
     GROUP BY trailer
 )
 SELECT trailer,

@@ -27,7 +27,17 @@ use crate::catalogue::Returns;
 use crate::catalogue::value::{Arg, Out};
 
 /// The integer-valued fields of ogive's JSON results.
-pub const COUNT_FIELDS: &[&str] = &["n", "n1", "n2", "k", "iterations", "component"];
+pub const COUNT_FIELDS: &[&str] = &[
+    "n",
+    "n1",
+    "n2",
+    "k",
+    "iterations",
+    "component",
+    "n_exact",
+    "n_left",
+    "n_right",
+];
 
 /// What an operator returns.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]

@@ -178,7 +178,10 @@ fn moment_start(
             let shape = std::f64::consts::PI / (6f64.sqrt() * var.sqrt());
             vec![shape, (m + 0.577_215_664_901_532_9 / shape).exp()]
         }
-        Family::Uniform => vec![values[0] - step / 2.0, values[values.len() - 1] + step / 2.0],
+        Family::Uniform => vec![
+            values[0] - step / 2.0,
+            values[values.len() - 1] + step / 2.0,
+        ],
     };
     Parametric::new(family, &params).map_err(|_| FitError::Degenerate { family })
 }

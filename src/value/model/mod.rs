@@ -21,7 +21,9 @@
 //!
 //! `n`, `loglik`, `aic`, `bic` (and for a mixture `k`, `iterations`, `converged`,
 //! `k_candidates`) describe the fit; a model built from known parameters has none of
-//! them. [`Model::parse`] accepts exactly these fields: a missing parameter, an unknown
+//! them. A fit to rounded readings adds `resolution` (the step; its `loglik`, `aic` and
+//! `bic` are then the binned ones, sums of log probabilities), and a fit to censored
+//! readings `n_exact`, `n_left` and `n_right`. [`Model::parse`] accepts exactly these fields: a missing parameter, an unknown
 //! field or a value outside its domain is an error naming the field, and an unknown
 //! family lists the supported ones. Serialising with [`Model::to_json`] and parsing again
 //! gives the same model (numbers are written in their shortest round-trip form).
@@ -563,6 +565,28 @@ mod tests {
 
     fn err(text: &str) -> String {
         Model::parse(text).unwrap_err().to_string()
+    }
+
+    #[test]
+    fn rounded_and_censored_fits_round_trip_and_are_no_exact_fit() {
+        use crate::stats::readings::{fit_censored, fit_rounded};
+        let xs = [1.0, 2.0, 2.0, 3.0, 5.0];
+        let m = Model::from(fit_rounded(&xs, Family::Gamma, 1.0).unwrap()).rounded_to(Some(1.0));
+        assert_eq!(Model::parse(&m.to_json()).unwrap(), m);
+        // Lilliefors needs the exact fit of the values: a binned fit is refused.
+        assert!(matches!(m.check_fit_of(&xs), Err(ModelError::NotTheFit(_))));
+        let (f, counts) = fit_censored(&xs, &[0, 0, 1, 0, -1], Family::Normal).unwrap();
+        let c = Model::from(f).censored(counts);
+        assert_eq!(Model::parse(&c.to_json()).unwrap(), c);
+        assert!(matches!(c.check_fit_of(&xs), Err(ModelError::NotTheFit(_))));
+        assert!(
+            err(r#"{"family": "normal", "mean": 0, "sd": 1, "n_left": 2}"#)
+                .contains("come together")
+        );
+        assert!(
+            err(r#"{"family": "normal", "mean": 0, "sd": 1, "resolution": 0}"#)
+                .contains("resolution")
+        );
     }
 
     #[test]
