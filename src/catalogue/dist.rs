@@ -306,6 +306,7 @@ pub(crate) fn empirical<'a>(
             got: d.kind(),
             instead,
         }),
+        Dist::Censored(_) => Err(ArgError::NotForCensored { arg, got: d.kind() }),
     }
 }
 
@@ -455,6 +456,21 @@ fn band(call: &mut Call<'_>) -> Result<Out> {
     let (Some(d), Some(t), Some(alpha)) = (d, t, alpha) else {
         return Ok(Out::Null);
     };
+    if let Dist::Censored(c) = &*d {
+        return Ok(match c.band(t, alpha).map_err(|e| fail(NAME, e))? {
+            None => Out::Null,
+            Some(b) => Out::Text(
+                json!({
+                    "lower": b.lower,
+                    "upper": b.upper,
+                    "cdf": b.cdf,
+                    "se": b.se,
+                    "method": "greenwood log-log",
+                })
+                .to_string(),
+            ),
+        });
+    }
     let s = empirical(
         &d,
         1,
@@ -632,6 +648,15 @@ fn steps(call: &mut Call<'_>) -> Result<Vec<Out>> {
     let Some(d) = call.dist(0)? else {
         return Ok(Vec::new());
     };
+    if let Dist::Censored(c) = &*d {
+        // Where the estimate's cdf is defined: at the right end of each piece.
+        return Ok(c
+            .pieces()
+            .iter()
+            .filter(|p| p.hi.is_finite())
+            .flat_map(|p| [Out::Real(p.hi), Out::Real(p.cdf)])
+            .collect());
+    }
     let s = empirical(
         &d,
         1,

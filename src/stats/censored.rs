@@ -56,10 +56,16 @@
 //! 1977) for this likelihood and never lowers it. Each set here is one interval, a prefix
 //! or a suffix of the sorted intervals, so a pass costs O(intervals + distinct readings)
 //! with prefix and suffix sums (compensated, [`NeumaierSum`]). It starts from equal masses
-//! and stops when no mass changes by more than [`TOLERANCE`] in a pass, or after
-//! [`MAX_PASSES`] passes; [`Censored::converged`] says which. EM keeps every mass positive,
-//! so an interval whose NPMLE mass is 0 ends with a tiny mass, and the cdf stays undefined
-//! inside it.
+//! and stops when no mass changes by more than [`TOLERANCE`] in a pass and the Kuhn-Tucker
+//! conditions hold (`d_j = sum_i alpha_ij / P_i <= n` for every interval, with equality
+//! where `p_j > 0`; R. Gentleman and C. J. Geyer, "Maximum likelihood for interval
+//! censored data: consistency and computation", *Biometrika* 81(3), 618-623, 1994), or
+//! after [`MAX_PASSES`] passes; [`Censored::converged`] says which. EM alone moves a mass
+//! that belongs at 0 towards it only slowly (in degenerate cases as 1/passes), so every
+//! 100 passes masses below a tenth of one reading's share, on intervals without exact
+//! readings, are tried at 0, kept there only when the likelihood does not drop; at the end
+//! a zero mass that breaks the Kuhn-Tucker condition is revived and the passes go on.
+//! Intervals of zero mass are dropped from the estimate, so the cdf is defined there.
 //!
 //! # Greenwood's interval
 //!
@@ -531,7 +537,8 @@ impl Censored {
         }
     }
 
-    /// Turnbull's self-consistency algorithm (both kinds of censoring).
+    /// Turnbull's self-consistency algorithm (both kinds of censoring), with the pruning
+    /// and Kuhn-Tucker check described in the module docs.
     fn turnbull(&mut self) -> Result<(), CensoredError> {
         let intervals = innermost(&self.rows)?;
         let m = intervals.len();
@@ -544,67 +551,84 @@ impl Censored {
         };
         // Counts by interval: exact readings in it, left-censored readings whose prefix
         // ends at it, right-censored readings whose suffix starts at it.
-        let (mut exact, mut ends, mut starts) = (zeros()?, zeros()?, zeros()?);
+        let mut c = Counts {
+            exact: zeros()?,
+            ends: zeros()?,
+            starts: zeros()?,
+            prefix: zeros()?,
+            suffix: zeros()?,
+        };
         for r in &self.rows {
             if r.exact > 0 {
                 let j = intervals.partition_point(|iv| iv.hi < r.x);
-                exact[j.min(m - 1)] += r.exact as f64;
+                c.exact[j.min(m - 1)] += r.exact as f64;
             }
             if r.left > 0 {
                 let b = intervals.partition_point(|iv| iv.hi <= r.x);
-                ends[b.saturating_sub(1)] += r.left as f64;
+                c.ends[b.saturating_sub(1)] += r.left as f64;
             }
             if r.right > 0 {
                 let a =
                     intervals.partition_point(|iv| iv.lo < r.x || (iv.lo == r.x && !iv.lo_open));
-                starts[a.min(m - 1)] += r.right as f64;
+                c.starts[a.min(m - 1)] += r.right as f64;
             }
         }
         let n = self.n as f64;
         let mut p = zeros()?;
         p.fill(1.0 / m as f64);
-        let (mut prefix, mut suffix, mut next) = (zeros()?, zeros()?, zeros()?);
+        let mut d = zeros()?;
+        let mut trial = zeros()?;
         self.converged = false;
         for pass in 1..=MAX_PASSES {
-            let mut acc = NeumaierSum::default();
-            for j in 0..m {
-                acc.add(p[j]);
-                prefix[j] = acc.value();
-            }
-            let mut acc = NeumaierSum::default();
-            for j in (0..m).rev() {
-                acc.add(p[j]);
-                suffix[j] = acc.value();
-            }
-            // g_j: left-censored readings whose prefix covers j; h_j: right-censored ones
-            // whose suffix covers j; each weighted by 1 / P_i.
-            let mut g = NeumaierSum::default();
-            for j in (0..m).rev() {
-                if ends[j] > 0.0 {
-                    g.add(ends[j] / prefix[j]);
-                }
-                next[j] = g.value();
-            }
-            let mut h = NeumaierSum::default();
+            self.passes = pass;
+            c.gradient(&p, &mut d);
             let mut total = NeumaierSum::default();
             for j in 0..m {
-                if starts[j] > 0.0 {
-                    h.add(starts[j] / suffix[j]);
-                }
-                next[j] = (exact[j] + p[j] * (next[j] + h.value())) / n;
-                total.add(next[j]);
+                trial[j] = p[j] * d[j] / n;
+                total.add(trial[j]);
             }
             let total = total.value();
             let mut change: f64 = 0.0;
             for j in 0..m {
-                let q = next[j] / total;
+                let q = trial[j] / total;
                 change = change.max((q - p[j]).abs());
                 p[j] = q;
             }
-            self.passes = pass;
             if change <= TOLERANCE {
-                self.converged = true;
-                break;
+                // Kuhn-Tucker: a zero mass must have d_j <= n; revive any that has not.
+                c.gradient(&p, &mut d);
+                let mut revived = false;
+                for j in 0..m {
+                    if p[j] == 0.0 && d[j] > n * (1.0 + KKT_SLACK) {
+                        p[j] = PRUNE_BELOW / n;
+                        revived = true;
+                    }
+                }
+                if !revived {
+                    self.converged = true;
+                    break;
+                }
+                normalise(&mut p);
+                continue;
+            }
+            if pass % PRUNE_EVERY == 0 {
+                // Try setting the tiny masses of intervals without exact readings to 0;
+                // keep that only if the likelihood does not drop.
+                let before = c.log_likelihood(&p);
+                trial.copy_from_slice(&p);
+                let mut any = false;
+                for j in 0..m {
+                    if trial[j] > 0.0 && trial[j] < PRUNE_BELOW / n && c.exact[j] == 0.0 {
+                        trial[j] = 0.0;
+                        any = true;
+                    }
+                }
+                if any {
+                    normalise(&mut trial);
+                    if c.log_likelihood(&trial) >= before {
+                        p.copy_from_slice(&trial);
+                    }
+                }
             }
         }
         let mut acc = NeumaierSum::default();
@@ -856,6 +880,101 @@ impl Censored {
             }
         }
         ll.value()
+    }
+}
+
+/// How often Turnbull's algorithm tries to set tiny masses to 0 (every this many passes).
+const PRUNE_EVERY: u64 = 100;
+
+/// A mass below this share of one reading (`PRUNE_BELOW / n`) is a candidate for 0.
+const PRUNE_BELOW: f64 = 0.1;
+
+/// The relative slack of the Kuhn-Tucker check `d_j <= n` on zero masses.
+const KKT_SLACK: f64 = 1e-9;
+
+/// Scales masses to sum to 1 (compensated).
+fn normalise(p: &mut [f64]) {
+    let mut t = NeumaierSum::default();
+    for &x in p.iter() {
+        t.add(x);
+    }
+    let t = t.value();
+    for x in p.iter_mut() {
+        *x /= t;
+    }
+}
+
+/// The readings of a Turnbull problem by interval, and scratch space for its sums.
+struct Counts {
+    /// Exact readings in interval j.
+    exact: Vec<f64>,
+    /// Left-censored readings whose set is intervals 0..=j.
+    ends: Vec<f64>,
+    /// Right-censored readings whose set is intervals j...
+    starts: Vec<f64>,
+    prefix: Vec<f64>,
+    suffix: Vec<f64>,
+}
+
+impl Counts {
+    /// Fills the prefix and suffix sums of the masses (compensated).
+    fn sums(&mut self, p: &[f64]) {
+        let mut acc = NeumaierSum::default();
+        for (j, &x) in p.iter().enumerate() {
+            acc.add(x);
+            self.prefix[j] = acc.value();
+        }
+        let mut acc = NeumaierSum::default();
+        for (j, &x) in p.iter().enumerate().rev() {
+            acc.add(x);
+            self.suffix[j] = acc.value();
+        }
+    }
+
+    /// `d_j = sum_i w_i alpha_ij / P_i` for every interval j: the self-consistency map is
+    /// `p_j d_j / n`, and the Kuhn-Tucker condition of the NPMLE is `d_j <= n`, with
+    /// equality where `p_j > 0`.
+    fn gradient(&mut self, p: &[f64], d: &mut [f64]) {
+        self.sums(p);
+        let m = p.len();
+        let mut g = NeumaierSum::default();
+        for j in (0..m).rev() {
+            if self.ends[j] > 0.0 {
+                g.add(self.ends[j] / self.prefix[j]);
+            }
+            d[j] = g.value();
+        }
+        let mut h = NeumaierSum::default();
+        for j in 0..m {
+            if self.starts[j] > 0.0 {
+                h.add(self.starts[j] / self.suffix[j]);
+            }
+            let own = if self.exact[j] > 0.0 {
+                self.exact[j] / p[j]
+            } else {
+                0.0
+            };
+            d[j] += h.value() + own;
+        }
+    }
+
+    /// The log-likelihood of masses `p` (minus infinity where a reading gets no mass).
+    fn log_likelihood(&mut self, p: &[f64]) -> f64 {
+        self.sums(p);
+        let mut ll = NeumaierSum::default();
+        for (j, &x) in p.iter().enumerate() {
+            if self.exact[j] > 0.0 {
+                ll.add(self.exact[j] * x.ln());
+            }
+            if self.ends[j] > 0.0 {
+                ll.add(self.ends[j] * self.prefix[j].ln());
+            }
+            if self.starts[j] > 0.0 {
+                ll.add(self.starts[j] * self.suffix[j].ln());
+            }
+        }
+        let v = ll.value();
+        if v.is_nan() { f64::NEG_INFINITY } else { v }
     }
 }
 
