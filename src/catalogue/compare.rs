@@ -107,7 +107,11 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                it refuses any model that is not dist_fit's fit of these very values (n and \
                parameters to 1e-9). Weights are frequency weights: a whole-number weight w \
                counts as w rows (n1 and n2 are then the total weights), up to 10000000 rows \
-               per distribution; a fractional weight is an error. NULL d1 or d2 \
+               per distribution; a fractional weight is an error. A censored estimate \
+               (dist_censored) and a model: d is the distance sup |F - G| (or the one-sided \
+               sup) over the points where the estimate's cdf is defined, and p is null: the \
+               Kolmogorov distributions assume complete samples, and no valid p-value under \
+               censoring is computed (method 'distance only'). NULL d1 or d2 \
                (dist_empirical of an empty group is NULL, so either sample with fewer than \
                one value), alternative or method gives NULL. Errors: two models, an argument \
                that is not a distribution, an unknown alternative or method, fractional \

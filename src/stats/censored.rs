@@ -448,7 +448,7 @@ impl Censored {
         let mut events = 0u64;
         let mut censored_seen = false;
         let mut s = 1.0;
-        let mut v = NeumaierSum::default();
+        let mut v = Greenwood::default();
         self.greenwood.push(0.0);
         for r in &self.rows {
             if r.exact > 0 {
@@ -461,7 +461,7 @@ impl Censored {
                     s = (self.n - events) as f64 / total;
                     events as f64 / total
                 };
-                v.add(d_i / (n_i * (n_i - d_i)));
+                v.add(n_i, d_i);
                 self.pieces.push(Piece {
                     lo: r.x,
                     lo_open: false,
@@ -496,7 +496,7 @@ impl Censored {
     fn mirror(&mut self) {
         let mut at_risk = self.n;
         let mut f = 1.0;
-        let mut v = NeumaierSum::default();
+        let mut v = Greenwood::default();
         // Built from the top down, then reversed.
         let mut points: Vec<(Piece, f64)> = Vec::new();
         for r in self.rows.iter().rev() {
@@ -513,7 +513,7 @@ impl Censored {
                     v.value(),
                 ));
                 f *= (n_i - d_i) / n_i;
-                v.add(d_i / (n_i * (n_i - d_i)));
+                v.add(n_i, d_i);
                 at_risk -= r.exact;
             }
         }
@@ -880,6 +880,32 @@ impl Censored {
             }
         }
         ll.value()
+    }
+}
+
+/// Greenwood's running sum `sum d_i / (n_i (n_i - d_i))`, compensated, and +inf once a
+/// term is (all at risk have their event: the survival is 0 from there on).
+#[derive(Debug, Default, Clone, Copy)]
+struct Greenwood {
+    sum: NeumaierSum,
+    infinite: bool,
+}
+
+impl Greenwood {
+    fn add(&mut self, n: f64, d: f64) {
+        if n > d {
+            self.sum.add(d / (n * (n - d)));
+        } else {
+            self.infinite = true;
+        }
+    }
+
+    fn value(&self) -> f64 {
+        if self.infinite {
+            f64::INFINITY
+        } else {
+            self.sum.value()
+        }
     }
 }
 

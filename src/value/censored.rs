@@ -240,4 +240,16 @@ mod tests {
             assert!(decode(&b).is_err(), "bit {bit}");
         }
     }
+
+    proptest::proptest! {
+        #[test]
+        fn arbitrary_bytes_never_panic(bytes in proptest::collection::vec(proptest::num::u8::ANY, 0..400)) {
+            let mut b = bytes.clone();
+            if b.len() >= 48 {
+                b[..6].copy_from_slice(&[0x89, b'O', b'G', b'V', 2, 2]);
+                let _ = decode(&reseal(b.clone()));
+            }
+            let _ = decode(&bytes);
+        }
+    }
 }

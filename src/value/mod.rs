@@ -369,6 +369,38 @@ mod tests {
     use super::*;
 
     #[test]
+    fn a_version_1_blob_still_decodes_bit_identically() {
+        // The original layout written by hand (docs/empirical-blob.md, version 1): the
+        // unweighted values 1.5 and 4, n = 2, total 2, checksum over the other words.
+        let mut b = vec![0x89, b'O', b'G', b'V', 1, 1, 0, 0];
+        b.extend_from_slice(&2u64.to_le_bytes());
+        b.extend_from_slice(&2.0f64.to_le_bytes());
+        b.extend_from_slice(&[0; 8]);
+        b.extend_from_slice(&1.5f64.to_le_bytes());
+        b.extend_from_slice(&4.0f64.to_le_bytes());
+        let sum = empirical::checksum(&b);
+        b[24..32].copy_from_slice(&sum.to_le_bytes());
+        let Dist::Empirical(s) = Dist::from_blob(&b, 1).unwrap() else {
+            panic!("a version-1 BLOB must read as an empirical distribution");
+        };
+        assert_eq!(s.values(), &[1.5, 4.0]);
+        assert_eq!(empirical::encode(&s), b);
+        // A censored BLOB reads as a censored estimate; a damaged one names its kind.
+        let e = crate::stats::censored::Censored::from_readings(&[(
+            1.0,
+            crate::stats::censored::Code::Exact,
+        )])
+        .unwrap();
+        let c = censored::encode(&e);
+        assert_eq!(Dist::from_blob(&c, 1).unwrap(), Dist::Censored(e));
+        let e = Dist::from_blob(&c[..50], 2).unwrap_err();
+        assert!(
+            e.to_string()
+                .starts_with("argument 2 is not a valid censored estimate (truncated or corrupted")
+        );
+    }
+
+    #[test]
     fn values_are_checked() {
         let e = Dist::from_text(b"{\"family\": \"normal\"}", 1).unwrap_err();
         assert_eq!(
