@@ -210,7 +210,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         returns: Returns::Text,
         arities: &[3],
         signature: "dist_band(d, t, alpha)",
-        summary: "JSON {lower, upper}: DKW confidence band of the empirical cdf of d at t",
+        summary: "JSON {lower, upper}: DKW confidence band of the empirical cdf of d at t; for a Kaplan-Meier estimate, Greenwood's pointwise interval",
         help: "The Dvoretzky-Kiefer-Wolfowitz band with Massart's constant: the ECDF at t \
                plus and minus sqrt(ln(2/alpha) / (2n)), clipped to [0, 1]. The band holds the \
                true cdf at every t at once with probability at least 1 - alpha (for \

@@ -617,9 +617,9 @@ impl Censored {
                 let before = c.log_likelihood(&p);
                 trial.copy_from_slice(&p);
                 let mut any = false;
-                for j in 0..m {
-                    if trial[j] > 0.0 && trial[j] < PRUNE_BELOW / n && c.exact[j] == 0.0 {
-                        trial[j] = 0.0;
+                for (t, &e) in trial.iter_mut().zip(&c.exact) {
+                    if *t > 0.0 && *t < PRUNE_BELOW / n && e == 0.0 {
+                        *t = 0.0;
                         any = true;
                     }
                 }
