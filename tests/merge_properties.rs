@@ -100,6 +100,20 @@ fn rows_for(name: &str, xs: &[Option<f64>], pick: &[u8]) -> Option<Vec<Vec<V>>> 
                 }
             })
             .collect(),
+        "dist_censored" => xs
+            .iter()
+            .enumerate()
+            .map(|(i, v)| {
+                // Mostly exact; codes from the picks, with NULL codes now and then.
+                let code = match pick[i % pick.len()] % 7 {
+                    0 => V::Null,
+                    1 | 2 => V::I(1),
+                    3 => V::I(-1),
+                    _ => V::I(0),
+                };
+                vec![x(v), code]
+            })
+            .collect(),
         "dist_fit" => xs
             .iter()
             .map(|v| {

@@ -650,7 +650,7 @@ fn demo_prints_its_tables_and_its_plots_render() {
         "sql/demo/02_share_above_limit.sql · statement 1",
         "share_above_5c",
         "TR07",
-        "5 checks: 4 pass, 1 fail, 0 error",
+        "6 checks: 5 pass, 1 fail, 0 error",
         "plots written to",
     ] {
         assert!(

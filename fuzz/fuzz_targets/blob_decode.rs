@@ -8,6 +8,7 @@ use libfuzzer_sys::fuzz_target;
 use ogive::stats::histogram::{BinRule, histogram};
 use ogive::stats::kde::{Bandwidth, Kde};
 use ogive::stats::quantile::QuantileType;
+use ogive::value::censored;
 use ogive::value::empirical::{checksum, decode, encode};
 
 fuzz_target!(|data: &[u8]| {
@@ -23,6 +24,14 @@ fuzz_target!(|data: &[u8]| {
 });
 
 fn exercise(bytes: &[u8]) {
+    exercise_censored(bytes);
+    // The same bytes read as the other version, so both decoders see every input.
+    if bytes.len() > 4 {
+        let mut other = bytes.to_vec();
+        other[4] = if bytes[4] == 2 { 1 } else { 2 };
+        other[5] = other[4];
+        exercise_censored(&other);
+    }
     let Ok(s) = decode(bytes) else { return };
     assert_eq!(encode(&s), bytes, "a valid BLOB must be canonical");
     assert!(!s.is_empty());
@@ -60,4 +69,20 @@ fn exercise(bytes: &[u8]) {
             assert!(k.density(0.0) >= 0.0);
         }
     }
+}
+
+/// A censored-estimate BLOB: an error or a canonical estimate that answers without panics.
+fn exercise_censored(bytes: &[u8]) {
+    let Ok(e) = censored::decode(bytes) else { return };
+    assert_eq!(censored::encode(&e), bytes, "a valid BLOB must be canonical");
+    for t in [f64::NEG_INFINITY, -1.0, 0.0, 1.0, f64::INFINITY] {
+        assert!(e.cdf(t).is_none_or(|f| (0.0..=1.0).contains(&f)));
+        let _ = e.band(t, 0.05);
+    }
+    for p in [0.0, 0.25, 0.5, 0.999, 1.0] {
+        let q = e.quantile(p).expect("p in [0, 1]");
+        assert!(q.is_none_or(|q| !q.is_nan()));
+    }
+    let k = e.ks_distance(|t| 1.0 / (1.0 + (-t).exp()));
+    assert!((0.0..=1.0).contains(&k.d));
 }

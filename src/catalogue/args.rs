@@ -11,6 +11,7 @@ use super::value::Arg;
 
 use super::value::describe as show;
 use crate::stats::StatsError;
+use crate::stats::censored::CensoredError;
 use crate::stats::fit::FitError;
 use crate::stats::ks::TestError;
 use crate::stats::mixture::MixtureError;
@@ -85,6 +86,10 @@ pub enum ArgError {
     BadState(String),
     /// A resolution that is not a step > 0 or 'auto', or that the readings are off.
     Grid(GridError),
+    /// Censored readings that give no estimate, or a censored estimate that cannot answer.
+    Censored(CensoredError),
+    /// A censored estimate given to a function that does not take one.
+    NotForCensored { arg: usize, got: String },
 }
 
 impl fmt::Display for ArgError {
@@ -154,6 +159,13 @@ impl fmt::Display for ArgError {
                 "cannot read a partial aggregate state ({what}); the engine's processes must \
                  run the same ogive"
             ),
+            ArgError::Censored(e) => e.fmt(f),
+            ArgError::NotForCensored { arg, got } => write!(
+                f,
+                "argument {arg} is {got} (from dist_censored), which this function does not take; \
+                 a censored estimate answers dist_cdf, dist_quantile, dist_n, dist_band \
+                 (Greenwood), dist_steps, dist_curve and dist_ks against a model"
+            ),
             ArgError::OutOfMemory { held } => write!(
                 f,
                 "ran out of memory holding {held} values of one group; an exact quantile keeps \
@@ -175,6 +187,7 @@ impl std::error::Error for ArgError {
             ArgError::Model(e) => Some(e),
             ArgError::Sketch(e) => Some(e),
             ArgError::Grid(e) => Some(e),
+            ArgError::Censored(e) => Some(e),
             _ => None,
         }
     }
@@ -219,6 +232,12 @@ impl From<ModelError> for ArgError {
 impl From<GridError> for ArgError {
     fn from(e: GridError) -> Self {
         ArgError::Grid(e)
+    }
+}
+
+impl From<CensoredError> for ArgError {
+    fn from(e: CensoredError) -> Self {
+        ArgError::Censored(e)
     }
 }
 

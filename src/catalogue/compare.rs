@@ -38,6 +38,7 @@ use super::reader::Call;
 use super::state::{AggregateImp, Args, Reader, State, Writer, push, try_extend};
 use super::value::Out;
 use super::{FunctionDef, Imp, Kind, Returns};
+use crate::stats::censored::Censored;
 use crate::stats::fit::Family;
 use crate::stats::gof::{anderson_darling_ksamp, cramer_von_mises_2samp, wasserstein_1};
 use crate::stats::ks::{
@@ -106,7 +107,11 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                it refuses any model that is not dist_fit's fit of these very values (n and \
                parameters to 1e-9). Weights are frequency weights: a whole-number weight w \
                counts as w rows (n1 and n2 are then the total weights), up to 10000000 rows \
-               per distribution; a fractional weight is an error. NULL d1 or d2 \
+               per distribution; a fractional weight is an error. A censored estimate \
+               (dist_censored) and a model: d is the distance sup |F - G| (or the one-sided \
+               sup) over the points where the estimate's cdf is defined, and p is null: the \
+               Kolmogorov distributions assume complete samples, and no valid p-value under \
+               censoring is computed (method 'distance only'). NULL d1 or d2 \
                (dist_empirical of an empty group is NULL, so either sample with fewer than \
                one value), alternative or method gives NULL. Errors: two models, an argument \
                that is not a distribution, an unknown alternative or method, fractional \
@@ -414,6 +419,12 @@ enum Pair<'a> {
     Two(&'a Sample, &'a Sample),
     /// An empirical distribution and a model: a one-sample one.
     One(OneSample<'a>),
+    /// A censored estimate (argument `arg`) and a model: a distance only.
+    Censored {
+        estimate: &'a Censored,
+        arg: usize,
+        model: &'a Model,
+    },
 }
 
 impl<'a> Pair<'a> {
@@ -436,6 +447,24 @@ impl<'a> Pair<'a> {
                 arg: 1,
                 got: d1.kind(),
                 instead: why,
+            }),
+            (Dist::Censored(estimate), Dist::Model(model)) => Ok(Pair::Censored {
+                estimate,
+                arg: 1,
+                model,
+            }),
+            (Dist::Model(model), Dist::Censored(estimate)) => Ok(Pair::Censored {
+                estimate,
+                arg: 2,
+                model,
+            }),
+            (Dist::Censored(_), _) => Err(ArgError::NotForCensored {
+                arg: 1,
+                got: d1.kind(),
+            }),
+            (_, Dist::Censored(_)) => Err(ArgError::NotForCensored {
+                arg: 2,
+                got: d2.kind(),
             }),
         }
     }
@@ -584,8 +613,61 @@ fn dist_ks(call: &mut Call<'_>) -> Result<Out> {
         (Pair::One(one), KsMethod::Lilliefors) => {
             one.lilliefors(alternative).map_err(|e| fail(NAME, e))?
         }
+        (Pair::Censored { .. }, KsMethod::Lilliefors) => {
+            return Err(fail(
+                NAME,
+                ArgError::BadOption {
+                    what: "method",
+                    detail: "'lilliefors' needs an empirical distribution; a censored estimate \
+                             gets the distance only (p null)"
+                        .to_string(),
+                },
+            ));
+        }
+        (
+            Pair::Censored {
+                estimate,
+                arg,
+                model,
+            },
+            KsMethod::Ks(_),
+        ) => censored_ks(estimate, arg, model, alternative),
     };
     Ok(Out::Text(out.to_string()))
+}
+
+/// `dist_ks` between a censored estimate (argument `arg`) and a model: the distance over
+/// the points where the estimate's cdf is defined, and no p-value (the Kolmogorov
+/// distributions assume complete samples; under censoring they do not hold).
+fn censored_ks(
+    estimate: &Censored,
+    arg: usize,
+    model: &Model,
+    alternative: Alternative,
+) -> serde_json::Value {
+    let k = estimate.ks_distance(|t| model.cdf(t));
+    // 'greater': the cdf of argument 1 lies above that of argument 2 somewhere.
+    let d = match (alternative, arg) {
+        (Alternative::TwoSided, _) => k.d,
+        (Alternative::Greater, 1) | (Alternative::Less, 2) => k.d_plus,
+        _ => k.d_minus,
+    };
+    let (n1, n2) = if arg == 1 {
+        (json!(estimate.n()), serde_json::Value::Null)
+    } else {
+        (serde_json::Value::Null, json!(estimate.n()))
+    };
+    json!({
+        "d": d,
+        "p": null,
+        "n1": n1,
+        "n2": n2,
+        "method": "distance only",
+        "alternative": alternative.name(),
+        "test": "one-sample",
+        "family": model.family_name(),
+        "estimate": estimate.method().name(),
+    })
 }
 
 /// The metrics of `dist_distance`.
@@ -652,6 +734,10 @@ fn dist_distance(call: &mut Call<'_>) -> Result<Out> {
     let (x, y) = match pair {
         Pair::Two(x, y) => (x, y),
         Pair::One(one) => return one_sample_distance(&one, metric).map_err(|e| fail(NAME, e)),
+        Pair::Censored { arg, .. } => {
+            let got = if arg == 1 { d1.kind() } else { d2.kind() };
+            return Err(fail(NAME, ArgError::NotForCensored { arg, got }));
+        }
     };
     // The rank metrics read whole weights as replicated rows.
     let rows = || -> Result<(Rows<'_>, Rows<'_>)> {

@@ -91,7 +91,9 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                the weight at or below t over the total weight, by binary search. For a model \
                (JSON from dist_fit, dist_mixture or dist_model), its cdf: statrs and libm's \
                erfc for the families, the weighted sum of normal cdfs for a mixture; 0 at \
-               -Inf and 1 at Inf. NULL d or t gives NULL. Errors: d not a distribution (an \
+               -Inf and 1 at Inf. For a censored estimate (dist_censored), its cdf where the \
+               estimate determines it, NULL inside a Turnbull interval and beyond the last \
+               censored reading. NULL d or t gives NULL. Errors: d not a distribution (an \
                invalid model names the field), non-numeric t.",
         example: "SELECT dist_cdf(dist_empirical(column1), 2.5) FROM (VALUES (1), (2), (3), (4))",
         example_result: "0.5",
@@ -110,7 +112,9 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                mixture's by safeguarded Newton-bisection), so that dist_quantile(m, \
                dist_cdf(m, t)) = t; type is a rule for samples, checked but ignored for a \
                model, so one query serves both kinds. p = 0 and 1 give the ends of a model's \
-               support: -Inf or Inf (REAL) where it is unbounded. NULL d, p or type gives \
+               support: -Inf or Inf (REAL) where it is unbounded. A censored estimate \
+               (dist_censored) gives inf{t: F(t) >= p} (type checked but not used), NULL when \
+               that mass lies in a Turnbull interval or beyond the last censored reading. NULL d, p or type gives \
                NULL. Errors: p outside [0, 1], type outside 1..9, d not a distribution.",
         example: "SELECT dist_quantile(dist_empirical(column1), 0.9) \
                   FROM (VALUES (1), (2), (3), (4), (5))",
@@ -146,7 +150,8 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         help: "The count of values an unweighted empirical distribution was built from, as \
                an INTEGER; for a weighted one, the total weight, as a REAL. For a model, the \
                number of values it was fitted to (its n field), NULL for a model built from \
-               known parameters. NULL d gives NULL.",
+               known parameters. For a censored estimate, the number of readings (censored \
+               ones included). NULL d gives NULL.",
         example: "SELECT dist_n(dist_empirical(column1, column2)) FROM (VALUES (1, 2.5), (3, 0.5))",
         example_result: "3.0",
         imp: Imp::Scalar(size),
@@ -205,13 +210,18 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         returns: Returns::Text,
         arities: &[3],
         signature: "dist_band(d, t, alpha)",
-        summary: "JSON {lower, upper}: DKW confidence band of the empirical cdf of d at t",
+        summary: "JSON {lower, upper}: DKW confidence band of the empirical cdf of d at t; for a Kaplan-Meier estimate, Greenwood's pointwise interval",
         help: "The Dvoretzky-Kiefer-Wolfowitz band with Massart's constant: the ECDF at t \
                plus and minus sqrt(ln(2/alpha) / (2n)), clipped to [0, 1]. The band holds the \
                true cdf at every t at once with probability at least 1 - alpha (for \
-               continuous data; n is the total weight when weighted). NULL arguments give \
-               NULL. Errors: alpha outside (0, 1), d not an empirical distribution (a model \
-               is not a sample and has no sampling band).",
+               continuous data; n is the total weight when weighted). For a Kaplan-Meier or \
+               mirrored estimate (dist_censored) it is instead Greenwood's (1926) POINTWISE \
+               1 - alpha interval for the cdf at t, on the log-log scale (S^exp(+-z se / \
+               (S |ln S|)), S the Kaplan-Meier survival, for the mirror its cdf), with the \
+               JSON adding cdf, se (Greenwood's standard error) and method 'greenwood \
+               log-log'; NULL where the cdf is undefined. NULL arguments give NULL. Errors: \
+               alpha outside (0, 1), d not an empirical distribution (a model is not a sample \
+               and has no sampling band), a Turnbull estimate (no Greenwood formula).",
         example: "SELECT round(dist_band(dist_empirical(column1), 2, 0.5) ->> '$.lower', 4) \
                   FROM (VALUES (1), (2), (3), (4))",
         example_result: "0.0837",
@@ -226,7 +236,10 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         summary: "rows (x, cdf): the step points of the empirical cdf of d, for plotting",
         help: "One row per distinct value x of the empirical distribution d, ascending, with \
                the cdf at x (the top of the step). Use in FROM, also in joins: \
-               FROM sensors s, dist_steps(s.d). NULL d gives no rows. Errors: d not an \
+               FROM sensors s, dist_steps(s.d). For a censored estimate, one row at each point \
+               of mass and at the right end of each Turnbull interval, with the cdf there \
+               (between a Turnbull interval's ends the cdf is undefined: dist_cdf gives \
+               NULL; no row for mass beyond the last censored reading). NULL d gives no rows. Errors: d not an \
                empirical distribution (a model's cdf has no steps: draw it with dist_curve).",
         example: "SELECT group_concat(x || ':' || cdf, ' ') FROM dist_steps(\
                   (SELECT dist_empirical(column1) FROM (VALUES (1), (2), (2), (3))))",
@@ -248,7 +261,8 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                (numpy.linspace's arithmetic): the cdf, and the density (for an empirical \
                distribution the kernel estimate of dist_pdf, bandwidth as there, NULL when \
                undefined; for a model its own cdf and density, as dist_cdf and dist_pdf give \
-               them, the bandwidth checked but ignored). Drawn beside dist_steps of the data, \
+               them, the bandwidth checked but ignored; for a censored estimate the cdf where \
+               defined, NULL elsewhere, and a NULL pdf). Drawn beside dist_steps of the data, \
                it compares a fitted cdf with the ECDF. NULL arguments give no rows. Errors: \
                lo >= hi or not finite, n not a whole number from 2 to 1000000, an unknown \
                bandwidth, d not a distribution.",
@@ -306,6 +320,7 @@ pub(crate) fn empirical<'a>(
             got: d.kind(),
             instead,
         }),
+        Dist::Censored(_) => Err(ArgError::NotForCensored { arg, got: d.kind() }),
     }
 }
 
@@ -455,6 +470,21 @@ fn band(call: &mut Call<'_>) -> Result<Out> {
     let (Some(d), Some(t), Some(alpha)) = (d, t, alpha) else {
         return Ok(Out::Null);
     };
+    if let Dist::Censored(c) = &*d {
+        return Ok(match c.band(t, alpha).map_err(|e| fail(NAME, e))? {
+            None => Out::Null,
+            Some(b) => Out::Text(
+                json!({
+                    "lower": b.lower,
+                    "upper": b.upper,
+                    "cdf": b.cdf,
+                    "se": b.se,
+                    "method": "greenwood log-log",
+                })
+                .to_string(),
+            ),
+        });
+    }
     let s = empirical(
         &d,
         1,
@@ -632,6 +662,15 @@ fn steps(call: &mut Call<'_>) -> Result<Vec<Out>> {
     let Some(d) = call.dist(0)? else {
         return Ok(Vec::new());
     };
+    if let Dist::Censored(c) = &*d {
+        // Where the estimate's cdf is defined: at the right end of each piece.
+        return Ok(c
+            .pieces()
+            .iter()
+            .filter(|p| p.hi.is_finite())
+            .flat_map(|p| [Out::Real(p.hi), Out::Real(p.cdf)])
+            .collect());
+    }
     let s = empirical(
         &d,
         1,

@@ -16,6 +16,7 @@
 #![deny(unsafe_code)]
 
 pub mod args;
+pub mod censored;
 pub mod column;
 pub mod compare;
 pub mod dist;
@@ -188,6 +189,7 @@ impl FunctionDef {
 pub static REGISTRY: &[&[FunctionDef]] = &[
     column::FUNCTIONS,
     dist::FUNCTIONS,
+    censored::FUNCTIONS,
     compare::FUNCTIONS,
     models::FUNCTIONS,
     sketch::FUNCTIONS,

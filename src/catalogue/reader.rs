@@ -182,7 +182,7 @@ impl<'a> Call<'a> {
         };
         match &*d {
             Dist::Model(_) => Ok(Some(d)),
-            Dist::Empirical(_) => Err(self.fail(ArgError::NeedsModel {
+            Dist::Empirical(_) | Dist::Censored(_) => Err(self.fail(ArgError::NeedsModel {
                 arg: i + 1,
                 got: d.kind(),
             })),
@@ -207,7 +207,7 @@ impl<'a> Call<'a> {
 pub fn model_of(d: &Dist) -> Option<&Model> {
     match d {
         Dist::Model(m) => Some(m),
-        Dist::Empirical(_) => None,
+        Dist::Empirical(_) | Dist::Censored(_) => None,
     }
 }
 

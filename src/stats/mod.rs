@@ -14,6 +14,8 @@
 //! - [`kde`]: the Gaussian kernel density estimate, bandwidth by Scott's or Silverman's
 //!   rule.
 //! - [`band`]: the Dvoretzky-Kiefer-Wolfowitz confidence band of an empirical cdf.
+//! - [`censored`]: nonparametric maximum-likelihood estimates from censored readings
+//!   (Kaplan-Meier, its mirror for left-censoring, Turnbull), with Greenwood's interval.
 //! - [`histogram`]: equal-width histograms with the usual bin-count rules.
 //! - [`grid`]: evenly spaced grids for curves and bin edges.
 //! - [`ks`]: Kolmogorov-Smirnov tests, two-sample (exact p-values by lattice paths,
@@ -49,6 +51,7 @@
 #![deny(unsafe_code)]
 
 pub mod band;
+pub mod censored;
 pub mod ecdf;
 pub mod fit;
 #[cfg(test)]

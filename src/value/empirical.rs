@@ -61,6 +61,11 @@ pub enum BlobError {
     Parts(StatsError),
     /// The stored total weight differs from the recomputed one.
     BadTotal { stored: f64, computed: f64 },
+    /// A censored estimate's readings table breaks an invariant (order, empty rows,
+    /// infinite values, too many readings, or no estimate possible).
+    Readings(crate::stats::censored::CensoredError),
+    /// A censored estimate whose stored estimate is not the one its readings give.
+    EstimateMismatch,
 }
 
 impl fmt::Display for BlobError {
@@ -68,7 +73,11 @@ impl fmt::Display for BlobError {
         match self {
             BlobError::BadHeader => write!(f, "bad header"),
             BlobError::WrongVersion(v) => {
-                write!(f, "format version {v}; this ogive reads version {VERSION}")
+                write!(
+                    f,
+                    "format version {v}; this ogive reads versions {VERSION} (empirical) and 2 \
+                     (censored)"
+                )
             }
             BlobError::UnknownFlags(flags) => write!(f, "unknown flags {flags:#06x}"),
             BlobError::Empty => write!(f, "it holds no values"),
@@ -78,7 +87,7 @@ impl fmt::Display for BlobError {
             ),
             BlobError::Checksum => write!(
                 f,
-                "checksum mismatch: the BLOB was changed after dist_empirical wrote it"
+                "checksum mismatch: the BLOB was changed after ogive wrote it"
             ),
             BlobError::Parts(StatsError::NotSorted { index }) => {
                 write!(f, "values are not sorted (at value {index})")
@@ -94,6 +103,12 @@ impl fmt::Display for BlobError {
             BlobError::BadTotal { stored, computed } => write!(
                 f,
                 "total weight {stored} does not match the weights, which sum to {computed}"
+            ),
+            BlobError::Readings(e) => write!(f, "its readings table is invalid: {e}"),
+            BlobError::EstimateMismatch => write!(
+                f,
+                "the stored estimate is not the one its readings give: the BLOB was changed \
+                 after dist_censored wrote it"
             ),
         }
     }

@@ -22,6 +22,7 @@
 
 #![deny(unsafe_code)]
 
+pub mod censored;
 pub mod empirical;
 pub mod model;
 pub mod sketch;
@@ -29,6 +30,7 @@ pub mod sketch;
 use std::fmt;
 
 use crate::stats::StatsError;
+use crate::stats::censored::{Censored, Method};
 use crate::stats::kde::{Bandwidth, Kde};
 use crate::stats::moments::{Moments, Profile};
 use crate::stats::quantile::QuantileType;
@@ -52,6 +54,9 @@ pub enum Dist {
     Empirical(Sample),
     /// A model: a parametric distribution or a Gaussian mixture.
     Model(Model),
+    /// A nonparametric maximum-likelihood estimate from censored readings
+    /// (`dist_censored`): Kaplan-Meier, its mirror, or Turnbull's.
+    Censored(Censored),
 }
 
 /// Why a SQL value is not a usable distribution. The adapters add the function name.
@@ -66,6 +71,8 @@ pub enum Dist {
 pub enum ValueError {
     /// A BLOB that is not a valid empirical distribution.
     BadBlob { arg: usize, problem: BlobError },
+    /// A BLOB of the censored kind that is not a valid censored estimate.
+    BadCensored { arg: usize, problem: BlobError },
     /// JSON text that is not a valid model (the problem names the field).
     NotAModel { arg: usize, problem: ModelError },
     /// A value of the wrong SQL type, or TEXT that is not JSON.
@@ -78,6 +85,11 @@ impl fmt::Display for ValueError {
             ValueError::BadBlob { arg, problem } => write!(
                 f,
                 "argument {arg} is not an empirical distribution ({problem}); build one with dist_empirical(x)"
+            ),
+            ValueError::BadCensored { arg, problem } => write!(
+                f,
+                "argument {arg} is not a valid censored estimate ({problem}); build one with \
+                 dist_censored(x, c)"
             ),
             ValueError::NotAModel { arg, problem } => {
                 write!(f, "argument {arg} is not a valid model: {problem}")
@@ -94,7 +106,9 @@ impl fmt::Display for ValueError {
 impl std::error::Error for ValueError {
     fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
         match self {
-            ValueError::BadBlob { problem, .. } => Some(problem),
+            ValueError::BadBlob { problem, .. } | ValueError::BadCensored { problem, .. } => {
+                Some(problem)
+            }
             ValueError::NotAModel { problem, .. } => Some(problem),
             ValueError::NotADistribution { .. } => None,
         }
@@ -103,10 +117,12 @@ impl std::error::Error for ValueError {
 
 impl Dist {
     /// Reads argument number `arg` (1-based, for messages) of a SQL function, given as a
-    /// BLOB, as an empirical distribution.
+    /// BLOB: an empirical distribution (format version 1) or a censored estimate
+    /// (version 2, kind 2).
     ///
     /// # Errors
-    /// [`ValueError::BadBlob`] for a BLOB that fails [`empirical::decode`].
+    /// [`ValueError::BadBlob`] for a BLOB that fails [`empirical::decode`];
+    /// [`ValueError::BadCensored`] for a version-2 BLOB that fails [`censored::decode`].
     ///
     /// # Example
     /// ```
@@ -115,6 +131,11 @@ impl Dist {
     /// assert!(e.to_string().starts_with("argument 1 is not an empirical distribution (bad header)"));
     /// ```
     pub fn from_blob(b: &[u8], arg: usize) -> Result<Dist, ValueError> {
+        if b.len() > 4 && empirical::looks_like_ogive(b) && b[4] == censored::VERSION {
+            return censored::decode(b)
+                .map(Dist::Censored)
+                .map_err(|problem| ValueError::BadCensored { arg, problem });
+        }
         empirical::decode(b)
             .map(Dist::Empirical)
             .map_err(|problem| ValueError::BadBlob { arg, problem })
@@ -162,10 +183,16 @@ impl Dist {
         match self {
             Dist::Empirical(_) => "an empirical distribution".to_string(),
             Dist::Model(m) => m.kind(),
+            Dist::Censored(c) => match c.method() {
+                Method::KaplanMeier => "a Kaplan-Meier estimate".to_string(),
+                Method::Mirror => "a mirrored Kaplan-Meier estimate".to_string(),
+                Method::Turnbull => "a Turnbull estimate".to_string(),
+            },
         }
     }
 
-    /// The cdf at `t`. `None` when undefined.
+    /// The cdf at `t`. `None` when undefined (for a censored estimate: inside an interval
+    /// whose mass the estimate does not spread, or beyond the last censored reading).
     ///
     /// # Example
     /// ```
@@ -177,13 +204,16 @@ impl Dist {
         match self {
             Dist::Empirical(s) => s.cdf(t),
             Dist::Model(m) => Some(m.cdf(t)).filter(|c| !c.is_nan()),
+            Dist::Censored(c) => c.cdf(t),
         }
     }
 
     /// The p-quantile. For an empirical distribution, `ty` picks the Hyndman-Fan
     /// definition. A model's quantile is the inverse of its continuous cdf, the same under
     /// every definition, so `ty` does not apply to it; at `p = 0` and `p = 1` it is the end
-    /// of the support, infinite where the support is unbounded. `Ok(None)` when undefined.
+    /// of the support, infinite where the support is unbounded. A censored estimate's
+    /// quantile is the inverse of its cdf, `inf {t : F(t) >= p}` (`ty` does not apply),
+    /// `None` where that point is not determined. `Ok(None)` when undefined.
     ///
     /// # Errors
     /// [`StatsError::ProbabilityOutOfRange`] when `p` is not in `[0, 1]`.
@@ -206,13 +236,14 @@ impl Dist {
                 // With p checked, a model's quantile cannot fail.
                 Ok(m.quantile(p).ok().filter(|q| !q.is_nan()))
             }
+            Dist::Censored(c) => c.quantile(p),
         }
     }
 
     /// A density evaluator. For an empirical distribution, the Gaussian kernel density
     /// estimate with the given bandwidth; for a model, its own density (the bandwidth does
     /// not apply). `None` when the density is undefined (for example, a bandwidth rule on
-    /// fewer than two distinct values).
+    /// fewer than two distinct values), and for a censored estimate, which has none.
     ///
     /// # Example
     /// ```
@@ -226,12 +257,13 @@ impl Dist {
         match self {
             Dist::Empirical(s) => Kde::new(s, bandwidth).map(Density::Kernel),
             Dist::Model(m) => Some(Density::Model(m)),
+            Dist::Censored(_) => None,
         }
     }
 
     /// The number of observations: n of an unweighted sample, or the total weight; for a
     /// fitted model, the number of values it was fitted to (its `n`), and `None` for a
-    /// model built from known parameters.
+    /// model built from known parameters; for a censored estimate, its number of readings.
     ///
     /// # Example
     /// ```
@@ -246,11 +278,12 @@ impl Dist {
             Dist::Empirical(s) if s.is_weighted() => Some(Size::Weight(s.total_weight())),
             Dist::Empirical(s) => Some(Size::Count(s.len() as u64)),
             Dist::Model(m) => m.n().map(Size::Count),
+            Dist::Censored(c) => Some(Size::Count(c.n())),
         }
     }
 
     /// The mean (of a model, the mean of the distribution). `None` when undefined (an
-    /// infinite value, an overflow).
+    /// infinite value, an overflow, a censored estimate).
     ///
     /// # Example
     /// ```
@@ -262,12 +295,13 @@ impl Dist {
         match self {
             Dist::Empirical(s) => Moments::of(s.values(), s.weights()).map(|m| m.mean),
             Dist::Model(m) => m.mean(),
+            Dist::Censored(_) => None,
         }
     }
 
     /// The standard deviation; for an empirical distribution the sample one (divisor
     /// n - 1, or W - 1 with weights), for a model that of the distribution. `None` when
-    /// undefined (one observation, an infinite value, an overflow).
+    /// undefined (one observation, an infinite value, an overflow, a censored estimate).
     ///
     /// # Example
     /// ```
@@ -279,6 +313,7 @@ impl Dist {
         match self {
             Dist::Empirical(s) => Moments::of(s.values(), s.weights())?.sample_sd(),
             Dist::Model(m) => m.sd(),
+            Dist::Censored(_) => None,
         }
     }
 
@@ -295,7 +330,7 @@ impl Dist {
     pub fn profile(&self) -> Option<Profile> {
         match self {
             Dist::Empirical(s) => s.profile(),
-            Dist::Model(_) => None,
+            Dist::Model(_) | Dist::Censored(_) => None,
         }
     }
 }
@@ -332,6 +367,38 @@ impl Density<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_version_1_blob_still_decodes_bit_identically() {
+        // The original layout written by hand (docs/empirical-blob.md, version 1): the
+        // unweighted values 1.5 and 4, n = 2, total 2, checksum over the other words.
+        let mut b = vec![0x89, b'O', b'G', b'V', 1, 1, 0, 0];
+        b.extend_from_slice(&2u64.to_le_bytes());
+        b.extend_from_slice(&2.0f64.to_le_bytes());
+        b.extend_from_slice(&[0; 8]);
+        b.extend_from_slice(&1.5f64.to_le_bytes());
+        b.extend_from_slice(&4.0f64.to_le_bytes());
+        let sum = empirical::checksum(&b);
+        b[24..32].copy_from_slice(&sum.to_le_bytes());
+        let Dist::Empirical(s) = Dist::from_blob(&b, 1).unwrap() else {
+            panic!("a version-1 BLOB must read as an empirical distribution");
+        };
+        assert_eq!(s.values(), &[1.5, 4.0]);
+        assert_eq!(empirical::encode(&s), b);
+        // A censored BLOB reads as a censored estimate; a damaged one names its kind.
+        let e = crate::stats::censored::Censored::from_readings(&[(
+            1.0,
+            crate::stats::censored::Code::Exact,
+        )])
+        .unwrap();
+        let c = censored::encode(&e);
+        assert_eq!(Dist::from_blob(&c, 1).unwrap(), Dist::Censored(e));
+        let e = Dist::from_blob(&c[..50], 2).unwrap_err();
+        assert!(
+            e.to_string()
+                .starts_with("argument 2 is not a valid censored estimate (truncated or corrupted")
+        );
+    }
 
     #[test]
     fn values_are_checked() {

@@ -512,7 +512,10 @@ def good_blob(conn):
         (lambda b: b[:20], "(bad header)"),
         (lambda b: b"\x00\xff", "(bad header)"),
         (lambda b: b"\x89PNG\r\n\x1a\n" + b"\0" * 40, "(bad header)"),
-        (lambda b: b[:4] + b"\x02" + b[5:], "(format version 2; this ogive reads version 1)"),
+        (
+            lambda b: b[:4] + b"\x03" + b[5:],
+            "(format version 3; this ogive reads versions 1 (empirical) and 2 (censored))",
+        ),
         (lambda b: b[:40] + struct.pack("<d", 2.5) + b[48:], "(checksum mismatch"),
         (lambda b: write_empirical([1.0, 3.0, 2.0]), "(values are not sorted (at value 2))"),
         (lambda b: write_empirical([1.0, 2.0], n=3), "(truncated or corrupted: n = 3 needs 56 bytes, the BLOB has 48)"),
