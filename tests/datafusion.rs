@@ -145,6 +145,15 @@ const EXACT: &[&str] = &[
     "SELECT dist_merge(d) FROM (SELECT g, dist_empirical(x) AS d FROM t GROUP BY g)",
     "SELECT g, dist_fit(x, 'gamma'), dist_fit(x, 'normal') FROM t GROUP BY g ORDER BY g",
     "SELECT dist_mixture(x, 2) FROM t",
+    "SELECT g, dist_fit(x, 'normal', 0.1), dist_fit(x, 'gamma', 'auto'), \
+     dist_fit_censored(x, CASE WHEN x > 5 THEN 1 WHEN x < 1 THEN -1 ELSE 0 END, 'weibull') \
+     FROM t GROUP BY g ORDER BY g",
+    "SELECT dist_mixture(x, NULL, 0.1), dist_mixture(x, 2, 'auto') FROM t",
+    "SELECT g, dist_cdf(d, 3.0), dist_quantile(d, 0.5), dist_n(d), dist_band(d, 3.0, 0.05) \
+     FROM (SELECT g, dist_censored(x, CASE WHEN x > 5 THEN 1 ELSE 0 END) AS d FROM t GROUP BY g) \
+     ORDER BY g",
+    "SELECT m ->> '$.n_right', m ->> '$.resolution' \
+     FROM (SELECT dist_fit_censored(x, CASE WHEN x > 5 THEN 1 ELSE 0 END, 'normal') AS m FROM t)",
     "SELECT g, dist_cdf(d, 3.0), dist_quantile(d, 0.25), dist_n(d), dist_mean(d), dist_sd(d), \
      dist_profile(d), dist_band(d, 3.0, 0.05) FROM (SELECT g, dist_empirical(x) AS d FROM t GROUP BY g) \
      ORDER BY g",
