@@ -8,13 +8,16 @@
 use super::args::{
     ArgError, Constant, FunctionError, TextConstant, fail, number, resolution, text, whole,
 };
+use super::dist::empirical;
 use super::reader::{Call, model_of};
 use super::state::{AggregateImp, Args, Field, Reader, State, Writer, push, try_extend};
 use super::value::Out;
 use super::{FunctionDef, Imp, Kind, Returns, TableImp};
-use crate::stats::fit::{Family, FitError, fit};
-use crate::stats::mixture::{MAX_COMPONENTS, MixtureError, fit_mixture_rounded};
-use crate::stats::readings::{fit_censored, fit_rounded};
+use crate::stats::fit::{Family, FitError, fit, fit_weighted};
+use crate::stats::mixture::{
+    MAX_COMPONENTS, MixtureError, fit_mixture_rounded, fit_mixture_weighted,
+};
+use crate::stats::readings::{fit_censored, fit_rounded, fit_rounded_weighted};
 use crate::stats::resolution::{Resolution, resolve};
 use crate::value::model::{Law, Model};
 
@@ -110,6 +113,49 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                   (0.9), (9.0), (9.2), (8.8), (9.1), (8.9))",
         example_result: "2",
         imp: Imp::Aggregate(AggregateImp::of::<DistMixtureState>()),
+    },
+    FunctionDef {
+        name: "dist_fit_to",
+        kind: Kind::Scalar,
+        returns: Returns::Text,
+        arities: &[2, 3],
+        signature: "dist_fit_to(d, family [, resolution])",
+        summary: "model JSON: dist_fit of a stored distribution value (frequency weights \
+                  included), without its rows",
+        help: "Fits family to the empirical distribution d (from dist_empirical, weighted or \
+               not, or dist_merge: a value kept in a table) by maximum likelihood, as dist_fit \
+               does to rows: same families, parameters, resolution and model JSON. A weight \
+               counts as that many copies of its value, so with whole-number weights the fit \
+               equals dist_fit over the replicated rows (to 1e-9 relative; bit for bit for an \
+               unweighted d); fractional weights are allowed: the likelihood is weighted, n is \
+               the total weight rounded to a whole number and bic uses the exact total. Values \
+               of weight 0 take no part. NULL d or family gives NULL. Errors: d that is a model \
+               or a censored estimate; as dist_fit.",
+        example: "SELECT dist_fit_to(dist_empirical(column1, column2), 'exponential') ->> '$.rate' \
+                  FROM (VALUES (1, 3), (5, 1))",
+        example_result: "0.5",
+        imp: Imp::Scalar(dist_fit_to),
+    },
+    FunctionDef {
+        name: "dist_mixture_to",
+        kind: Kind::Scalar,
+        returns: Returns::Text,
+        arities: &[1, 2, 3],
+        signature: "dist_mixture_to(d [, k [, resolution]])",
+        summary: "model JSON: dist_mixture of a stored distribution value (frequency weights \
+                  included), without its rows",
+        help: "Fits a Gaussian mixture to the empirical distribution d (from dist_empirical, \
+               weighted or not, or dist_merge) as dist_mixture does to rows: k (NULL or omitted: \
+               by BIC from 1..6), resolution and model JSON the same. EM works on distinct \
+               values with counts, so with whole-number weights the fit is that of the \
+               replicated rows, bit for bit; fractional weights are allowed (n is the total \
+               weight rounded, bic and the 3k - 1 rule use the exact total). Values of weight 0 \
+               take no part. NULL d gives NULL. Errors: d that is a model or a censored \
+               estimate; as dist_mixture.",
+        example: "SELECT dist_mixture_to(dist_empirical(column1)) ->> '$.k' FROM (VALUES (1.0), \
+                  (1.2), (0.8), (1.1), (0.9), (9.0), (9.2), (8.8), (9.1), (8.9))",
+        example_result: "2",
+        imp: Imp::Scalar(dist_mixture_to),
     },
     FunctionDef {
         name: "dist_model",
@@ -222,9 +268,9 @@ fn observe_resolution(
     Ok(())
 }
 
-/// The step of sorted values under a resolution constant (`None`: exact).
-fn step_of(sorted: &[f64], r: &Constant<Resolution>) -> std::result::Result<Option<f64>, ArgError> {
-    let Some(&r) = r.get() else {
+/// The step of sorted values under a resolution (`None` or `Exact`: exact readings).
+fn step_of(sorted: &[f64], r: Option<Resolution>) -> std::result::Result<Option<f64>, ArgError> {
+    let Some(r) = r else {
         return Ok(None);
     };
     if r == Resolution::Exact {
@@ -290,7 +336,7 @@ impl State for DistFitState {
         // (or of the parts a partitioned engine merged).
         self.xs.sort_unstable_by(f64::total_cmp);
         let go = || -> std::result::Result<Out, ArgError> {
-            let step = step_of(&self.xs, &self.resolution)?;
+            let step = step_of(&self.xs, self.resolution.get().copied())?;
             let f = match step {
                 Some(r) => fit_rounded(&self.xs, family, r)?,
                 None => fit(&self.xs, family)?,
@@ -485,6 +531,95 @@ impl State for DistMixtureState {
 
 // ---------------------------------------------------------------------------------------
 // dist_model(family, params), dist_component(model, t)
+
+// ---------------------------------------------------------------------------------------
+// dist_fit_to(d, family [, resolution]), dist_mixture_to(d [, k [, resolution]])
+
+/// The values and frequency weights of a stored empirical distribution (weights `None`
+/// when it is unweighted), without the values of weight 0.
+fn weighted_values(
+    call: &mut Call<'_>,
+    instead: &'static str,
+) -> Result<Option<(Vec<f64>, Option<Vec<f64>>)>> {
+    let Some(d) = call.dist(0)? else {
+        return Ok(None);
+    };
+    let s = empirical(&d, 1, instead).map_err(|e| call.fail(e))?;
+    Ok(Some(match s.weights() {
+        None => (s.values().to_vec(), None),
+        Some(ws) => {
+            let (xs, ws): (Vec<f64>, Vec<f64>) = s
+                .values()
+                .iter()
+                .zip(ws)
+                .filter(|(_, w)| **w > 0.0)
+                .map(|(&x, &w)| (x, w))
+                .unzip();
+            (xs, Some(ws))
+        }
+    }))
+}
+
+/// An optional `resolution` argument of a scalar (NULL or absent: exact).
+fn resolution_at(call: &Call<'_>, i: usize) -> Result<Option<Resolution>> {
+    call.optional(i)
+        .map(resolution)
+        .transpose()
+        .map(Option::flatten)
+        .map_err(|e| call.fail(e))
+}
+
+const FIT_A_MODEL: &str = "a model is a fit already: read its parameters with ->>, or fit the \
+                           rows it came from";
+
+fn dist_fit_to(call: &mut Call<'_>) -> Result<Out> {
+    let family = text(call.get(1), "family").map_err(|e| call.fail(e))?;
+    let family = family
+        .map(|f| Family::from_name(f).map_err(|e| call.fail(e)))
+        .transpose()?;
+    let resolution = resolution_at(call, 2)?;
+    let Some(family) = family else {
+        return Ok(Out::Null);
+    };
+    let Some((xs, ws)) = weighted_values(call, FIT_A_MODEL)? else {
+        return Ok(Out::Null);
+    };
+    let go = || -> std::result::Result<Out, ArgError> {
+        // The values of an empirical distribution are sorted, as dist_fit sorts its rows.
+        let step = step_of(&xs, resolution)?;
+        let f = match (&ws, step) {
+            (None, Some(r)) => fit_rounded(&xs, family, r)?,
+            (None, None) => fit(&xs, family)?,
+            (Some(ws), Some(r)) => fit_rounded_weighted(&xs, ws, family, r)?,
+            (Some(ws), None) => fit_weighted(&xs, ws, family)?,
+        };
+        Ok(Out::Text(Model::from(f).rounded_to(step).to_json()))
+    };
+    go().map_err(|e| call.fail(e))
+}
+
+fn dist_mixture_to(call: &mut Call<'_>) -> Result<Out> {
+    let k = match call.optional(1) {
+        None => None,
+        Some(_) => call.whole(1, "k")?,
+    };
+    if let Some(k) = k
+        && !(1..=MAX_COMPONENTS as i64).contains(&k)
+    {
+        return Err(call.fail(MixtureError::BadK(k)));
+    }
+    let resolution = resolution_at(call, 2)?.unwrap_or(Resolution::Exact);
+    let Some((xs, ws)) = weighted_values(call, FIT_A_MODEL)? else {
+        return Ok(Out::Null);
+    };
+    let k = k.map(|k| k as usize);
+    let f = match ws {
+        None => fit_mixture_rounded(&xs, k, resolution),
+        Some(ws) => fit_mixture_weighted(&xs, &ws, k, resolution),
+    }
+    .map_err(|e| call.fail(e))?;
+    Ok(Out::Text(Model::from(f).to_json()))
+}
 
 fn dist_model(call: &mut Call<'_>) -> Result<Out> {
     let family = text(call.get(0), "family").map_err(|e| call.fail(e))?;

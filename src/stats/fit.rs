@@ -192,6 +192,8 @@ pub enum FitError {
     },
     /// The wrong number of parameters (when building a [`Parametric`]).
     ParameterCount { family: Family, got: usize },
+    /// A frequency weight that is not finite and `> 0`.
+    BadWeight(f64),
     /// A censoring code other than -1, 0 or 1.
     BadCode(i64),
     /// Every reading is censored, so no likelihood pins the family down.
@@ -254,6 +256,10 @@ impl fmt::Display for FitError {
                 f,
                 "a {family} model has parameters {}, got {got} values",
                 family.parameter_names().join(", ")
+            ),
+            FitError::BadWeight(w) => write!(
+                f,
+                "weights must be finite and > 0 to fit, got {w}; drop rows of weight 0"
             ),
             FitError::BadCode(c) => write!(
                 f,
@@ -1020,12 +1026,26 @@ impl FitSummary {
     /// assert_eq!(s.bic, 2.0 * 100f64.ln() + 20.0);
     /// ```
     pub fn new(loglik: f64, parameters: usize, n: u64) -> FitSummary {
+        FitSummary::weighted(loglik, parameters, n as f64)
+    }
+
+    /// The summary of a fit to frequency-weighted values of total weight `total`: `n` is
+    /// the total rounded to a whole number, BIC uses the exact total (the same as
+    /// [`FitSummary::new`] for a whole total).
+    ///
+    /// # Example
+    /// ```
+    /// let s = ogive::stats::fit::FitSummary::weighted(-10.0, 2, 99.5);
+    /// assert_eq!(s.n, 100);
+    /// assert_eq!(s.bic, 2.0 * 99.5f64.ln() + 20.0);
+    /// ```
+    pub fn weighted(loglik: f64, parameters: usize, total: f64) -> FitSummary {
         let p = parameters as f64;
         FitSummary {
-            n,
+            n: total.round() as u64,
             loglik,
             aic: 2.0 * p - 2.0 * loglik,
-            bic: p * (n as f64).ln() - 2.0 * loglik,
+            bic: p * total.ln() - 2.0 * loglik,
         }
     }
 }
@@ -1056,15 +1076,50 @@ pub struct ParametricFit {
 /// # Ok::<(), ogive::stats::fit::FitError>(())
 /// ```
 pub fn fit(xs: &[f64], family: Family) -> Result<ParametricFit, FitError> {
+    fit_with(xs, None, family)
+}
+
+/// [`fit`] with frequency weights: `ws[i]` copies of `xs[i]` (any positive finite weight;
+/// whole numbers make it the fit of the replicated values). The log-likelihood is the
+/// weighted one, `n` in the summary the total weight rounded to the nearest whole number,
+/// and BIC uses the exact total.
+///
+/// # Errors
+/// As [`fit`], counting weight instead of values for [`FitError::TooFewPoints`];
+/// [`FitError::BadWeight`] for a weight that is not finite and `> 0`.
+///
+/// # Example
+/// ```
+/// use ogive::stats::fit::{Family, fit, fit_weighted};
+/// let w = fit_weighted(&[1.0, 2.0, 3.0], &[2.0, 1.0, 3.0], Family::Gamma)?;
+/// let r = fit(&[1.0, 1.0, 2.0, 3.0, 3.0, 3.0], Family::Gamma)?;
+/// let (a, b) = (w.distribution.parameters()[0].1, r.distribution.parameters()[0].1);
+/// assert!((a - b).abs() < 1e-12 * b);
+/// # Ok::<(), ogive::stats::fit::FitError>(())
+/// ```
+pub fn fit_weighted(xs: &[f64], ws: &[f64], family: Family) -> Result<ParametricFit, FitError> {
+    if let Some(&bad) = ws.iter().find(|w| !(w.is_finite() && **w > 0.0)) {
+        return Err(FitError::BadWeight(bad));
+    }
+    fit_with(
+        &xs[..xs.len().min(ws.len())],
+        Some(&ws[..xs.len().min(ws.len())]),
+        family,
+    )
+}
+
+/// The body of [`fit`] and [`fit_weighted`]; `ws` is `None` for unit weights.
+fn fit_with(xs: &[f64], ws: Option<&[f64]>, family: Family) -> Result<ParametricFit, FitError> {
     let need = family.parameter_names().len();
     if let Some(&bad) = xs.iter().find(|x| !x.is_finite()) {
         return Err(FitError::NotFinite(bad));
     }
-    if xs.len() < need {
+    let n = ws.map_or(xs.len() as f64, |w| compensated(w.iter().copied()));
+    if n < need as f64 || xs.is_empty() {
         return Err(FitError::TooFewPoints {
             family,
             need,
-            got: xs.len(),
+            got: n.floor() as usize,
         });
     }
     // The exponential's MLE, rate = 1 / mean, needs only a positive mean (scipy's
@@ -1083,23 +1138,23 @@ pub fn fit(xs: &[f64], family: Family) -> Result<ParametricFit, FitError> {
     if lo == hi && (family != Family::Exponential || lo == 0.0) {
         return Err(FitError::AllEqual { family, value: lo });
     }
-    let n = xs.len() as f64;
+    let w = Weights { ws, total: n };
     let (parameters, loglik) = match family {
         Family::Normal => {
-            let (mean, sd) = mean_and_sd(xs.iter().copied());
+            let (mean, sd) = mean_and_sd(xs, &w, |x| x);
             ([mean, sd], normal_loglik(n, sd))
         }
         Family::LogNormal => {
-            let (mu, sigma) = mean_and_sd(xs.iter().map(|x| x.ln()));
-            let sum_ln = compensated(xs.iter().map(|x| x.ln()));
+            let (mu, sigma) = mean_and_sd(xs, &w, f64::ln);
+            let sum_ln = w.sum(xs.iter().map(|x| x.ln()));
             ([mu, sigma], normal_loglik(n, sigma) - sum_ln)
         }
         Family::Exponential => {
-            let rate = 1.0 / mean(xs);
+            let rate = 1.0 / mean(xs, &w);
             ([rate, 0.0], n * (rate.ln() - 1.0))
         }
-        Family::Gamma => fit_gamma(xs),
-        Family::Weibull => fit_weibull(xs),
+        Family::Gamma => fit_gamma(xs, &w),
+        Family::Weibull => fit_weibull(xs, &w),
         Family::Uniform => ([lo, hi], -n * (hi - lo).ln()),
     };
     if !loglik.is_finite() || parameters.iter().any(|p| !p.is_finite()) {
@@ -1109,8 +1164,24 @@ pub fn fit(xs: &[f64], family: Family) -> Result<ParametricFit, FitError> {
         .map_err(|_| FitError::Degenerate { family })?;
     Ok(ParametricFit {
         distribution,
-        summary: FitSummary::new(loglik, need, xs.len() as u64),
+        summary: FitSummary::weighted(loglik, need, n),
     })
+}
+
+/// Frequency weights of a sample (`None`: one each) and their total.
+struct Weights<'a> {
+    ws: Option<&'a [f64]>,
+    total: f64,
+}
+
+impl Weights<'_> {
+    /// The compensated sum of `w_i v_i` (of `v_i` for unit weights).
+    fn sum(&self, values: impl Iterator<Item = f64>) -> f64 {
+        match self.ws {
+            None => compensated(values),
+            Some(ws) => compensated(values.zip(ws).map(|(v, &w)| w * v)),
+        }
+    }
 }
 
 /// The compensated sum of an iterator.
@@ -1120,23 +1191,23 @@ fn compensated(xs: impl Iterator<Item = f64>) -> f64 {
     s.value()
 }
 
-/// The mean of a non-empty slice, by a compensated sum (falling back to summing `x / n`
-/// when the sum overflows).
-fn mean(xs: &[f64]) -> f64 {
-    let n = xs.len() as f64;
-    let m = compensated(xs.iter().copied()) / n;
+/// The weighted mean of a non-empty slice, by a compensated sum (falling back to summing
+/// `x / n` when the sum overflows).
+fn mean(xs: &[f64], w: &Weights<'_>) -> f64 {
+    let n = w.total;
+    let m = w.sum(xs.iter().copied()) / n;
     if m.is_finite() {
         m
     } else {
-        compensated(xs.iter().map(|x| x / n))
+        w.sum(xs.iter().map(|x| x / n))
     }
 }
 
-/// The mean and the standard deviation with divisor n (two passes, the squares scaled by
-/// the largest deviation so they cannot overflow).
-fn mean_and_sd(xs: impl Iterator<Item = f64> + Clone) -> (f64, f64) {
-    let values: Vec<f64> = xs.collect();
-    let m = mean(&values);
+/// The weighted mean and standard deviation (divisor the total weight) of `f(x)`: two
+/// passes, the squares scaled by the largest deviation so they cannot overflow.
+fn mean_and_sd(xs: &[f64], w: &Weights<'_>, f: impl Fn(f64) -> f64) -> (f64, f64) {
+    let values: Vec<f64> = xs.iter().map(|&x| f(x)).collect();
+    let m = mean(&values, w);
     let scale = values.iter().fold(0.0f64, |a, x| a.max((x - m).abs()));
     if scale == 0.0 {
         return (m, 0.0);
@@ -1146,11 +1217,11 @@ fn mean_and_sd(xs: impl Iterator<Item = f64> + Clone) -> (f64, f64) {
         let half = values
             .iter()
             .fold(0.0f64, |a, x| a.max((0.5 * x - 0.5 * m).abs()));
-        let ss = compensated(values.iter().map(|x| ((0.5 * x - 0.5 * m) / half).powi(2)));
-        return (m, 2.0 * half * (ss / values.len() as f64).sqrt());
+        let ss = w.sum(values.iter().map(|x| ((0.5 * x - 0.5 * m) / half).powi(2)));
+        return (m, 2.0 * half * (ss / w.total).sqrt());
     }
-    let ss = compensated(values.iter().map(|x| ((x - m) / scale).powi(2)));
-    (m, scale * (ss / values.len() as f64).sqrt())
+    let ss = w.sum(values.iter().map(|x| ((x - m) / scale).powi(2)));
+    (m, scale * (ss / w.total).sqrt())
 }
 
 /// The maximised normal log-likelihood of n values with MLE standard deviation `sd`.
@@ -1219,11 +1290,11 @@ pub fn trigamma(x: f64) -> f64 {
 }
 
 /// Gamma MLE: `([shape, scale], loglik)`.
-fn fit_gamma(xs: &[f64]) -> ([f64; 2], f64) {
-    let n = xs.len() as f64;
-    let m = mean(xs);
+fn fit_gamma(xs: &[f64], w: &Weights<'_>) -> ([f64; 2], f64) {
+    let n = w.total;
+    let m = mean(xs, w);
     // s = ln(mean) - mean(ln x), computed as -mean(ln(x / mean)) to avoid cancellation.
-    let s = -compensated(xs.iter().map(|x| (x / m).ln())) / n;
+    let s = -w.sum(xs.iter().map(|x| (x / m).ln())) / n;
     if !(s > 0.0 && s.is_finite()) {
         return ([f64::NAN, f64::NAN], f64::NAN);
     }
@@ -1242,25 +1313,27 @@ fn fit_gamma(xs: &[f64]) -> ([f64; 2], f64) {
     let loglik = if shape >= LARGE_SHAPE {
         // The closed form below subtracts terms of size n * shape; the log density of
         // incomplete_gamma::ln_density has no such cancellation.
-        compensated(
+        w.sum(
             xs.iter()
                 .map(|x| incomplete_gamma::ln_density(shape, x / scale)),
         ) - n * scale.ln()
     } else {
-        let sum_ln = compensated(xs.iter().map(|x| x.ln()));
+        let sum_ln = w.sum(xs.iter().map(|x| x.ln()));
         (shape - 1.0) * sum_ln - n * shape - n * shape * scale.ln() - n * ln_gamma(shape)
     };
     ([shape, scale], loglik)
 }
 
 /// Weibull MLE: `([shape, scale], loglik)`.
-fn fit_weibull(xs: &[f64]) -> ([f64; 2], f64) {
-    let n = xs.len() as f64;
+fn fit_weibull(xs: &[f64], wts: &Weights<'_>) -> ([f64; 2], f64) {
+    let n = wts.total;
     let logs: Vec<f64> = xs.iter().map(|x| x.ln()).collect();
     let top = logs.iter().fold(f64::NEG_INFINITY, |a, &l| a.max(l));
     // l = ln(x / max x) <= 0, so exp(k l) <= 1 never overflows.
     let l: Vec<f64> = logs.iter().map(|&v| v - top).collect();
-    let (mean_l, sd_l) = mean_and_sd(l.iter().copied());
+    let (mean_l, sd_l) = mean_and_sd(&l, wts, |v| v);
+    // A unit weight multiplies exactly, so unweighted fits are unchanged by it.
+    let weight = |i: usize| wts.ws.map_or(1.0, |ws| ws[i]);
     // h(k) = sum(w l) / sum(w) - 1/k - mean(l), w = exp(k l); h'(k) = var_w(l) + 1/k^2.
     let equation = |k: f64| {
         let (mut sw, mut swl, mut swl2) = (
@@ -1268,8 +1341,8 @@ fn fit_weibull(xs: &[f64]) -> ([f64; 2], f64) {
             NeumaierSum::default(),
             NeumaierSum::default(),
         );
-        for &li in &l {
-            let w = (k * li).exp();
+        for (i, &li) in l.iter().enumerate() {
+            let w = weight(i) * (k * li).exp();
             sw.add(w);
             swl.add(w * li);
             swl2.add(w * li * li);
@@ -1284,10 +1357,10 @@ fn fit_weibull(xs: &[f64]) -> ([f64; 2], f64) {
         Some((lo, hi)) => solve_increasing(equation, lo, hi, start),
         None => f64::NAN,
     };
-    let sum_w = compensated(l.iter().map(|&li| (shape * li).exp()));
+    let sum_w = wts.sum(l.iter().map(|&li| (shape * li).exp()));
     let ln_scale = top + (sum_w / n).ln() / shape;
-    let sum_ln = compensated(logs.iter().copied());
-    let sum_pow = compensated(logs.iter().map(|&v| (shape * (v - ln_scale)).exp()));
+    let sum_ln = wts.sum(logs.iter().copied());
+    let sum_pow = wts.sum(logs.iter().map(|&v| (shape * (v - ln_scale)).exp()));
     let loglik = n * shape.ln() - n * shape * ln_scale + (shape - 1.0) * sum_ln - sum_pow;
     ([shape, ln_scale.exp()], loglik)
 }

@@ -94,17 +94,74 @@ const TOLERANCE: f64 = 1e-13;
 /// # Ok::<(), ogive::stats::fit::FitError>(())
 /// ```
 pub fn fit_rounded(xs: &[f64], family: Family, step: f64) -> Result<ParametricFit, FitError> {
-    check_values(xs, family, |x| x >= 0.0)?;
+    check_values(xs, xs.len() as f64, family, |x| x >= 0.0)?;
     let (values, counts) = distinct(xs);
+    fit_grouped(&values, &counts, xs.len() as f64, family, step)
+}
+
+/// [`fit_rounded`] on frequency-weighted readings: `weights[i]` copies of `values[i]`
+/// (whole numbers give the fit of the replicated readings; fractional weights are
+/// allowed). `n` in the summary is the total weight rounded, BIC uses the exact total.
+///
+/// # Errors
+/// As [`fit_rounded`], and [`FitError::BadWeight`] for a weight that is not finite and
+/// `> 0`.
+///
+/// # Example
+/// ```
+/// use ogive::stats::fit::Family;
+/// use ogive::stats::readings::{fit_rounded, fit_rounded_weighted};
+/// let w = fit_rounded_weighted(&[9.0, 10.0, 11.0], &[1.0, 3.0, 2.0], Family::Normal, 1.0)?;
+/// let r = fit_rounded(&[9.0, 10.0, 10.0, 10.0, 11.0, 11.0], Family::Normal, 1.0)?;
+/// assert_eq!(w, r);
+/// # Ok::<(), ogive::stats::fit::FitError>(())
+/// ```
+pub fn fit_rounded_weighted(
+    values: &[f64],
+    weights: &[f64],
+    family: Family,
+    step: f64,
+) -> Result<ParametricFit, FitError> {
+    if let Some(&bad) = weights.iter().find(|w| !(w.is_finite() && **w > 0.0)) {
+        return Err(FitError::BadWeight(bad));
+    }
+    let mut pairs: Vec<(f64, f64)> = values
+        .iter()
+        .copied()
+        .zip(weights.iter().copied())
+        .collect();
+    pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let (mut xs, mut counts): (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
+    for (v, w) in pairs {
+        match (xs.last(), counts.last_mut()) {
+            (Some(&last), Some(c)) if last == v => *c += w,
+            _ => {
+                xs.push(v);
+                counts.push(w);
+            }
+        }
+    }
+    let total = super::sum::sum(&counts);
+    check_values(&xs, total, family, |x| x >= 0.0)?;
+    fit_grouped(&xs, &counts, total, family, step)
+}
+
+/// The binned fit of distinct values with counts summing to `total`.
+fn fit_grouped(
+    values: &[f64],
+    counts: &[f64],
+    total: f64,
+    family: Family,
+    step: f64,
+) -> Result<ParametricFit, FitError> {
     let grouped: Vec<(Reading, f64)> = values
         .iter()
-        .zip(&counts)
+        .zip(counts)
         .map(|(&x, &c)| (Reading::Within(x - step / 2.0, x + step / 2.0), c))
         .collect();
-    let n = xs.len() as u64;
     let need = family.parameter_names().len();
-    let start = moment_start(family, &values, &counts, step)?;
-    climb(family, start, &grouped, need, n)
+    let start = moment_start(family, values, counts, step)?;
+    climb(family, start, &grouped, need, total)
 }
 
 /// The distinct values of `xs` in increasing order, with their counts (one pass when
@@ -262,7 +319,7 @@ pub fn fit_censored(
             return Err(FitError::NonPositive { family, value });
         }
     }
-    let n = xs.len() as u64;
+    let n = xs.len() as f64;
     let grouped = group(readings.into_iter());
     let start = censored_start(xs, family)?;
     Ok((climb(family, start, &grouped, need, n)?, counts))
@@ -283,16 +340,21 @@ fn censored_start(xs: &[f64], family: Family) -> Result<Parametric, FitError> {
 
 /// Checks finiteness and the support: every value finite, and for the positive families
 /// `allowed(x)`.
-fn check_values(xs: &[f64], family: Family, allowed: impl Fn(f64) -> bool) -> Result<(), FitError> {
+fn check_values(
+    xs: &[f64],
+    total: f64,
+    family: Family,
+    allowed: impl Fn(f64) -> bool,
+) -> Result<(), FitError> {
     if let Some(&bad) = xs.iter().find(|x| !x.is_finite()) {
         return Err(FitError::NotFinite(bad));
     }
     let need = family.parameter_names().len();
-    if xs.len() < need {
+    if total < need as f64 || xs.is_empty() {
         return Err(FitError::TooFewPoints {
             family,
             need,
-            got: xs.len(),
+            got: total.floor() as usize,
         });
     }
     if family.needs_positive()
@@ -387,7 +449,7 @@ fn climb(
     start: Parametric,
     grouped: &[(Reading, f64)],
     need: usize,
-    n: u64,
+    n: f64,
 ) -> Result<ParametricFit, FitError> {
     let free = to_free(&start);
     let step: [f64; 2] = match family {
@@ -418,7 +480,7 @@ fn finish(
     distribution: Parametric,
     loglik: f64,
     need: usize,
-    n: u64,
+    n: f64,
 ) -> Result<ParametricFit, FitError> {
     let family = distribution.family();
     if !loglik.is_finite() {
@@ -426,7 +488,7 @@ fn finish(
     }
     Ok(ParametricFit {
         distribution,
-        summary: FitSummary::new(loglik, need, n),
+        summary: FitSummary::weighted(loglik, need, n),
     })
 }
 

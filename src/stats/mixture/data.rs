@@ -48,7 +48,17 @@ impl Data {
         }
         x.truncate(distinct);
         count.shrink_to_fit();
-        let total = xs.len() as f64;
+        Data::merged(x, count, xs.len() as f64, resolution)
+    }
+
+    /// The data of distinct values in increasing order with positive counts (frequency
+    /// weights, whole or not) summing to `total`.
+    pub(super) fn merged(
+        mut x: Vec<f64>,
+        count: Vec<f64>,
+        total: f64,
+        resolution: Resolution,
+    ) -> Result<Data, MixtureError> {
         if x.len() == 1 {
             return Err(MixtureError::AllEqual(x[0]));
         }

@@ -82,13 +82,58 @@ pub fn fit_mixture_rounded(
     fit_thinned(xs, k, THIN_TO, resolution)
 }
 
-/// [`fit_mixture`], ranking the starts on at most `thin_to` merged values.
-pub(super) fn fit_thinned(
-    xs: &[f64],
+/// [`fit_mixture_rounded`] on frequency-weighted values: `weights[i]` copies of
+/// `values[i]`. With whole-number weights it is the fit of the replicated values (EM
+/// works on distinct values with counts in any case); fractional weights are allowed.
+/// `n` in the summary is the total weight rounded to a whole number; BIC, and the rule
+/// that a k needs at least `3k - 1` of it, use the exact total.
+///
+/// # Errors
+/// As [`fit_mixture_rounded`], and [`MixtureError::BadWeight`] for a weight that is not
+/// finite and `> 0`.
+///
+/// # Example
+/// ```
+/// use ogive::stats::mixture::{fit_mixture, fit_mixture_weighted};
+/// use ogive::stats::resolution::Resolution;
+/// let w = fit_mixture_weighted(&[1.0, 1.2, 5.0, 5.1], &[2.0, 1.0, 1.0, 3.0], Some(2), Resolution::Exact)?;
+/// let r = fit_mixture(&[1.0, 1.0, 1.2, 5.0, 5.1, 5.1, 5.1], Some(2))?;
+/// assert_eq!(w.summary.loglik, r.summary.loglik);
+/// # Ok::<(), ogive::stats::mixture::MixtureError>(())
+/// ```
+pub fn fit_mixture_weighted(
+    values: &[f64],
+    weights: &[f64],
     k: Option<usize>,
-    thin_to: usize,
     resolution: Resolution,
 ) -> Result<MixtureFit, MixtureError> {
+    if let Some(&bad) = weights.iter().find(|w| !(w.is_finite() && **w > 0.0)) {
+        return Err(MixtureError::BadWeight(bad));
+    }
+    check_k_and_values(k, values)?;
+    let mut pairs: Vec<(f64, f64)> = values
+        .iter()
+        .copied()
+        .zip(weights.iter().copied())
+        .collect();
+    pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let (mut x, mut count): (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
+    for (v, w) in pairs {
+        match (x.last(), count.last_mut()) {
+            (Some(&last), Some(c)) if last == v => *c += w,
+            _ => {
+                x.push(v);
+                count.push(w);
+            }
+        }
+    }
+    let total = crate::stats::sum::sum(&count);
+    let data = Data::merged(x, count, total, resolution)?;
+    fit_data(data, k, THIN_TO)
+}
+
+/// The checks shared by every entry: k in range, every value finite.
+fn check_k_and_values(k: Option<usize>, xs: &[f64]) -> Result<(), MixtureError> {
     if let Some(k) = k
         && !(1..=MAX_COMPONENTS).contains(&k)
     {
@@ -97,17 +142,42 @@ pub(super) fn fit_thinned(
     if let Some(&bad) = xs.iter().find(|x| !x.is_finite()) {
         return Err(MixtureError::NotFinite(bad));
     }
-    let n = xs.len() as u64;
+    Ok(())
+}
+
+/// [`fit_mixture`], ranking the starts on at most `thin_to` merged values.
+pub(super) fn fit_thinned(
+    xs: &[f64],
+    k: Option<usize>,
+    thin_to: usize,
+    resolution: Resolution,
+) -> Result<MixtureFit, MixtureError> {
+    check_k_and_values(k, xs)?;
     let need = |k: usize| 3 * k - 1;
     let first_k = k.unwrap_or(1);
-    if n < need(first_k) as u64 {
+    if xs.len() < need(first_k) {
         return Err(MixtureError::TooFewPoints {
             k: first_k,
             need: need(first_k),
-            got: n,
+            got: xs.len() as u64,
         });
     }
     let data = Data::new(xs, resolution)?;
+    fit_data(data, k, thin_to)
+}
+
+/// The fit of merged data.
+fn fit_data(data: Data, k: Option<usize>, thin_to: usize) -> Result<MixtureFit, MixtureError> {
+    let total = data.total;
+    let need = |k: usize| 3 * k - 1;
+    let first_k = k.unwrap_or(1);
+    if total < need(first_k) as f64 {
+        return Err(MixtureError::TooFewPoints {
+            k: first_k,
+            need: need(first_k),
+            got: total.floor() as u64,
+        });
+    }
     let distinct = data.x.len();
     if distinct < first_k {
         return Err(MixtureError::TooFewDistinct {
@@ -118,7 +188,7 @@ pub(super) fn fit_thinned(
     let ks: Vec<usize> = match k {
         Some(k) => vec![k],
         None => (1..=MAX_BIC_K)
-            .filter(|&k| k <= distinct && need(k) as u64 <= n)
+            .filter(|&k| k <= distinct && need(k) as f64 <= total)
             .collect(),
     };
     let thin = data.thinned(thin_to);
@@ -128,7 +198,7 @@ pub(super) fn fit_thinned(
         let run = data.best_run(k, thin.as_ref());
         let scored = run.map(|r| {
             let loglik = data.loglik_in_x(r.loglik);
-            (loglik, FitSummary::new(loglik, need(k), n).bic, r)
+            (loglik, FitSummary::weighted(loglik, need(k), total).bic, r)
         });
         candidates.push(Candidate {
             k,
@@ -163,7 +233,7 @@ pub(super) fn fit_thinned(
             .ok_or(MixtureError::NoFit { k })?
     };
     let loglik = data.loglik_in_x(run.loglik);
-    let summary = FitSummary::new(loglik, need(k), n);
+    let summary = FitSummary::weighted(loglik, need(k), total);
     candidates[slot] = Candidate {
         k,
         loglik: Some(loglik),

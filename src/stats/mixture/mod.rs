@@ -97,7 +97,7 @@ mod starts;
 #[cfg(test)]
 mod tests;
 
-pub use fit::{Candidate, MixtureFit, fit_mixture, fit_mixture_rounded};
+pub use fit::{Candidate, MixtureFit, fit_mixture, fit_mixture_rounded, fit_mixture_weighted};
 pub use model::Mixture;
 
 /// The most components a mixture may have.
@@ -176,6 +176,8 @@ pub enum MixtureError {
     WeightSum(f64),
     /// A stated resolution that does not fit the values.
     Grid(GridError),
+    /// A frequency weight that is not finite and `> 0`.
+    BadWeight(f64),
 }
 
 impl fmt::Display for MixtureError {
@@ -215,6 +217,10 @@ impl fmt::Display for MixtureError {
             } => write!(f, "components[{index}].{field} must be {rule}, got {value}"),
             MixtureError::WeightSum(s) => write!(f, "the component weights must sum to 1, got {s}"),
             MixtureError::Grid(e) => e.fmt(f),
+            MixtureError::BadWeight(w) => write!(
+                f,
+                "weights must be finite and > 0 to fit, got {w}; drop rows of weight 0"
+            ),
         }
     }
 }
