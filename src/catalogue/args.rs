@@ -274,6 +274,17 @@ impl FunctionError {
     pub fn is_out_of_memory(&self) -> bool {
         matches!(self.error, ArgError::OutOfMemory { .. })
     }
+
+    /// Whether the engine's cancellation stopped the call ([`crate::stats::cancel`]);
+    /// engines report this with their interrupt code.
+    pub fn is_interrupted(&self) -> bool {
+        matches!(
+            self.error,
+            ArgError::Fit(FitError::Interrupted)
+                | ArgError::Mixture(MixtureError::Interrupted)
+                | ArgError::Censored(CensoredError::Interrupted)
+        )
+    }
 }
 
 /// The one helper that names the function in an error.

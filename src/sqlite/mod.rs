@@ -133,6 +133,31 @@ pub fn out(v: &Value) -> Out {
     }
 }
 
+/// Runs `f` with the connection's interrupt flag as the kernels' cancellation check
+/// ([`crate::stats::cancel`]), where the host has `sqlite3_is_interrupted` (3.41.0 and
+/// later); on older hosts nothing is cancelled before the statement's next row.
+pub(crate) fn cancellable<R>(db: *mut rusqlite::ffi::sqlite3, f: impl FnOnce() -> R) -> R {
+    // SAFETY: sqlite3_libversion_number exists in every SQLite; `db` is the handle of the
+    // connection running the callback, alive for the callback's duration, and the check
+    // is removed before `f` returns.
+    #[allow(unsafe_code)]
+    let has_flag = unsafe { rusqlite::ffi::sqlite3_libversion_number() } >= 3_041_000;
+    if db.is_null() || !has_flag {
+        return f();
+    }
+    let db = db as usize;
+    crate::stats::cancel::with_check(
+        Box::new(move || {
+            // SAFETY: as above; the pointer is only used while the callback runs.
+            #[allow(unsafe_code)]
+            unsafe {
+                rusqlite::ffi::sqlite3_is_interrupted(db as *mut rusqlite::ffi::sqlite3) != 0
+            }
+        }),
+        f,
+    )
+}
+
 /// The one helper that turns a catalogue error into the error SQLite reports.
 pub fn to_sqlite(e: FunctionError) -> rusqlite::Error {
     rusqlite::Error::UserFunctionError(Box::new(e))
@@ -177,7 +202,10 @@ fn scalar(name: &'static str, f: ScalarFn, ctx: &Context<'_>) -> rusqlite::Resul
     }
     let mut memo = AuxMemo { ctx };
     let mut call = Call::new(name, &args[..n], &mut memo);
-    f(&mut call)
+    // SAFETY: the connection running this callback; its handle is only read here.
+    #[allow(unsafe_code)]
+    let db = unsafe { ctx.get_connection().map_or(std::ptr::null_mut(), |c| c.handle()) };
+    cancellable(db, || f(&mut call))
         .map(|o| {
             if let Some(e) = Returns::drift(name, &o) {
                 panic!("{e}");

@@ -159,6 +159,7 @@ unsafe extern "C" fn destroy(p: *mut c_void) {
 #[inline(never)]
 unsafe fn fail_raw(ctx: *mut sqlite3_context, error: FunctionError) {
     let nomem = error.is_out_of_memory();
+    let interrupted = error.is_interrupted();
     let message = error.to_string();
     let len = c_int::try_from(message.len()).unwrap_or(c_int::MAX);
     // SAFETY: per the contract; SQLite copies the message (not NUL-terminated, so its
@@ -166,9 +167,14 @@ unsafe fn fail_raw(ctx: *mut sqlite3_context, error: FunctionError) {
     // The message is set last, as rusqlite does, except out of memory, whose code must
     // survive the message.
     unsafe {
-        if nomem {
+        if nomem || interrupted {
             ffi::sqlite3_result_error(ctx, message.as_ptr().cast(), len);
-            ffi::sqlite3_result_error_code(ctx, ffi::SQLITE_NOMEM);
+            let code = if nomem {
+                ffi::SQLITE_NOMEM
+            } else {
+                ffi::SQLITE_INTERRUPT
+            };
+            ffi::sqlite3_result_error_code(ctx, code);
         } else {
             ffi::sqlite3_result_error_code(ctx, ffi::SQLITE_CONSTRAINT_FUNCTION);
             ffi::sqlite3_result_error(ctx, message.as_ptr().cast(), len);
@@ -464,10 +470,11 @@ unsafe extern "C" fn x_final(ctx: *mut sqlite3_context) {
         let slot = Box::from_raw(*p);
         *p = std::ptr::null_mut();
         let name = slot.name;
+        let db = ffi::sqlite3_context_db_handle(ctx);
         let r = catch_unwind(AssertUnwindSafe(move || {
             let mut slot = slot;
             slot.lane = None;
-            slot.state.finalize()
+            super::cancellable(db, || slot.state.finalize())
         }));
         if let Some(out) = report(ctx, name, r) {
             answer(ctx, out);

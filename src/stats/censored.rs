@@ -177,6 +177,8 @@ pub enum CensoredError {
     AlphaOutOfRange(f64),
     /// Greenwood's interval asked of Turnbull's estimate.
     NoGreenwood,
+    /// The engine asked the call to stop ([`crate::stats::cancel`]).
+    Interrupted,
 }
 
 impl fmt::Display for CensoredError {
@@ -218,6 +220,7 @@ impl fmt::Display for CensoredError {
                  for which Greenwood's formula does not hold, so no pointwise interval is given; \
                  Greenwood's interval needs readings censored on one side only"
             ),
+            CensoredError::Interrupted => f.write_str("interrupted"),
         }
     }
 }
@@ -580,6 +583,9 @@ impl Censored {
         let mut trial = zeros()?;
         self.converged = false;
         for pass in 1..=MAX_PASSES {
+            if crate::stats::cancel::requested() {
+                return Err(CensoredError::Interrupted);
+            }
             self.passes = pass;
             c.gradient(&p, &mut d);
             let mut total = NeumaierSum::default();

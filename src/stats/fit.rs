@@ -204,6 +204,8 @@ pub enum FitError {
     },
     /// The numerical maximisation did not settle within its budget.
     NoConvergence { family: Family },
+    /// The engine asked the fit to stop ([`crate::stats::cancel`]).
+    Interrupted,
 }
 
 impl fmt::Display for FitError {
@@ -276,6 +278,7 @@ impl fmt::Display for FitError {
                  no maximum likelihood; it needs at least one exact reading (c = 0)",
                 a = article(*family)
             ),
+            FitError::Interrupted => f.write_str("interrupted"),
             FitError::NoConvergence { family } => write!(
                 f,
                 "the {family} likelihood did not reach its maximum within the evaluation budget; \

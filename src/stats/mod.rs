@@ -23,6 +23,7 @@
 //! - [`gof`]: two-sample Cramer-von Mises, k-sample Anderson-Darling, Wasserstein-1.
 //! - [`lilliefors`]: Kolmogorov-Smirnov with estimated normal or exponential parameters.
 //! - [`rng`]: a seeded generator for repeatable simulations.
+//! - [`cancel`]: cooperative cancellation, polled by the long kernels.
 //! - [`fit`]: parametric families and their maximum-likelihood fits.
 //! - [`readings`]: the same fits on rounded (binned) and censored readings.
 //! - [`simplex`]: the Nelder-Mead method behind [`readings`].
@@ -51,6 +52,7 @@
 #![deny(unsafe_code)]
 
 pub mod band;
+pub mod cancel;
 pub mod censored;
 pub mod ecdf;
 pub mod fit;

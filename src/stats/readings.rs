@@ -467,6 +467,9 @@ fn climb(
     let objective =
         |t: &[f64]| from_free(family, t).map_or(f64::NEG_INFINITY, |d| loglik(&d, grouped));
     let c = maximise(objective, &free[..need], &step[..need], TOLERANCE, BUDGET);
+    if crate::stats::cancel::requested() {
+        return Err(FitError::Interrupted);
+    }
     if !c.converged {
         return Err(FitError::NoConvergence { family });
     }

@@ -145,7 +145,7 @@ fn one_run(
         if spread_ok && size_ok {
             return (vertex[0], best, true);
         }
-        if *evaluations >= budget {
+        if *evaluations >= budget || crate::stats::cancel::requested() {
             return (vertex[0], best, false);
         }
         let mut centre = [0.0; MAX_DIM];

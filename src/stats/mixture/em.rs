@@ -121,6 +121,7 @@ impl Data {
     /// ends the cycle. Every cycle therefore raises the likelihood, as plain EM does, and
     /// the fixed points are those of EM.
     pub(super) fn em(&self, start: Params, done: u32, limit: u32, tolerance: f64) -> Option<Run> {
+        let limit = limit.min(done.saturating_add(self.pass_budget(start.k)));
         let mut passes = done;
         let (mut ll0, mut p1) = self.em_pass(&start)?;
         passes += 1;
@@ -135,7 +136,8 @@ impl Data {
             })
         };
         loop {
-            if passes + 2 > limit {
+            // A cancelled fit ends here, unconverged; the caller reports it.
+            if passes + 2 > limit || crate::stats::cancel::requested() {
                 return stop(p0, ll0, passes, false, tolerance);
             }
             let (ll1, p2) = self.em_pass(&p1)?;
@@ -206,6 +208,16 @@ impl Data {
             }
             (p0, ll0, p1) = (next, ll, after);
         }
+    }
+
+    /// The most passes one run may make over these points with k components: enough for
+    /// [`WORK_PER_RUN`] point-component evaluations, and at least [`MIN_RUN_PASSES`]. A
+    /// run that reaches it ends unconverged (`converged: false`), so a slowly converging
+    /// fit over many distinct values (two nearly identical components) ends in bounded
+    /// time and says so.
+    pub(super) fn pass_budget(&self, k: usize) -> u32 {
+        let per_pass = (self.x.len() * k.max(1)) as f64;
+        (WORK_PER_RUN / per_pass).clamp(f64::from(MIN_RUN_PASSES), f64::from(u32::MAX)) as u32
     }
 
     /// One pass: the log-likelihood of `p` and the EM update of `p`. Sums run in blocks

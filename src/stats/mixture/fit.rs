@@ -196,6 +196,9 @@ fn fit_data(data: Data, k: Option<usize>, thin_to: usize) -> Result<MixtureFit, 
     let mut best: Option<(f64, usize, Run)> = None;
     for &k in &ks {
         let run = data.best_run(k, thin.as_ref());
+        if crate::stats::cancel::requested() {
+            return Err(MixtureError::Interrupted);
+        }
         let scored = run.map(|r| {
             let loglik = data.loglik_in_x(r.loglik);
             (loglik, FitSummary::weighted(loglik, need(k), total).bic, r)
@@ -216,6 +219,9 @@ fn fit_data(data: Data, k: Option<usize>, thin_to: usize) -> Result<MixtureFit, 
         return Err(MixtureError::NoFit { k: k_last });
     };
     let run = data.resume(run, TOLERANCE).unwrap_or(run);
+    if crate::stats::cancel::requested() {
+        return Err(MixtureError::Interrupted);
+    }
     let k = run.params.k;
     let mixture = if k == 1 && data.width.is_none() {
         // One component's MLE is the sample mean and the sd with divisor n: exactly the

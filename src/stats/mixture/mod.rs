@@ -28,8 +28,13 @@
 //! - **Convergence.** A run stops when the log-likelihood is within `1e-12` per value of
 //!   its maximum, as estimated from the rise of one EM step and the rate at which EM
 //!   steps shrink (`rise / (1 - rate^2)`, Aitken's reasoning as in Bohning et al. 1994),
-//!   so that slowly converging runs go on; or after 10 000 passes (then `converged` is
-//!   false). The estimate needs two passes (from `p0`, EM gives `p1` and `p2`); when it
+//!   so that slowly converging runs go on; or after 10 000 passes, or once a run has made
+//!   `4e8` point-component evaluations (at least 100 passes: on 400,000 distinct values
+//!   with two components, 500 passes, about a second), and then `converged` is false.
+//!   Two nearly identical components make EM crawl along a flat ridge of the
+//!   likelihood; the cap bounds that work, and the result says it stopped short.
+//! - **Cancellation.** Every pass polls [`crate::stats::cancel`]; a cancelled fit stops
+//!   within a pass with [`MixtureError::Interrupted`]. The estimate needs two passes (from `p0`, EM gives `p1` and `p2`); when it
 //!   is met and EM converges fast (rate at most 1/2, where the estimate is at most 4/3
 //!   of the measured rise and so hardly depends on the estimated rate) the run ends at
 //!   once with `p1`, which is at least as good as `p0`, so a run that starts next to its
@@ -127,6 +132,10 @@ const BLOCK: usize = 64;
 /// Iteration limits: all starts, then the finalists.
 const SHORT_ITERATIONS: u32 = 12;
 const MAX_ITERATIONS: u32 = 10_000;
+/// Point-component evaluations one EM run may make (about a second of passes), and the
+/// fewest passes a run is allowed whatever the size (see `Data::pass_budget`).
+const WORK_PER_RUN: f64 = 4e8;
+const MIN_RUN_PASSES: u32 = 100;
 /// Number of k-means++ starts (besides the quantile start) and of finalists.
 const KMEANS_STARTS: u64 = 9;
 const FINALISTS: usize = 2;
@@ -178,6 +187,8 @@ pub enum MixtureError {
     Grid(GridError),
     /// A frequency weight that is not finite and `> 0`.
     BadWeight(f64),
+    /// The engine asked the fit to stop ([`crate::stats::cancel`]).
+    Interrupted,
 }
 
 impl fmt::Display for MixtureError {
@@ -217,6 +228,7 @@ impl fmt::Display for MixtureError {
             } => write!(f, "components[{index}].{field} must be {rule}, got {value}"),
             MixtureError::WeightSum(s) => write!(f, "the component weights must sum to 1, got {s}"),
             MixtureError::Grid(e) => e.fmt(f),
+            MixtureError::Interrupted => f.write_str("interrupted"),
             MixtureError::BadWeight(w) => write!(
                 f,
                 "weights must be finite and > 0 to fit, got {w}; drop rows of weight 0"

@@ -326,3 +326,16 @@ fn one_component_mean_is_the_compensated_mean() {
         c.sd
     );
 }
+
+#[test]
+fn runs_over_many_distinct_values_have_a_bounded_pass_budget() {
+    // 4e8 point-component evaluations per run: 500 passes for two components over
+    // 400,000 distinct values, never fewer than 100, and for small data far above the
+    // 10,000-pass cap (which then governs).
+    let many: Vec<f64> = (0..400_000).map(|i| f64::from(i) * 1e-3).collect();
+    let data = Data::new(&many, Resolution::Exact).unwrap();
+    assert_eq!(data.pass_budget(2), 500);
+    assert_eq!(data.pass_budget(16), 100);
+    let few = Data::new(&normals(5, 1000), Resolution::Exact).unwrap();
+    assert!(few.pass_budget(6) > MAX_ITERATIONS);
+}
