@@ -97,7 +97,11 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                bic}]}. Without k (or with k NULL), every k from 1 to 6 (at most the number of \
                distinct values, and with n >= 3k - 1) is fitted and the least BIC wins; \
                k_candidates lists them all. Ten seeded starts per k: the same data always gives \
-               the same fit. Component variances are floored at 1e-6 times the data's \
+               the same fit. Each EM run has a bounded budget (10,000 passes, and about 4e8 \
+               point-component evaluations: 500 passes for 2 components over 400,000 distinct \
+               values); a run that ends on it reports converged false, and an interrupt \
+               (Ctrl-C in the shell, sqlite3_interrupt; SQLite 3.41 or later) stops the fit \
+               within a pass. Component variances are floored at 1e-6 times the data's \
                variance. On readings rounded to a step (0.1 degC, whole milliseconds) the \
                likelihood of a continuous density rewards narrow components sitting on single \
                grid values, so BIC can pick a k with such spikes: give resolution, the step (a \
