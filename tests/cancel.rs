@@ -38,8 +38,12 @@ fn interrupted(conn: &Connection, sql: &str, after: Duration) -> Option<String> 
 #[test]
 fn a_long_mixture_fit_stops_on_interrupt() {
     let conn = connection();
-    let e = interrupted(&conn, "SELECT dist_mixture(x, 16) FROM t", Duration::from_millis(300))
-        .expect("the 16-component fit finished before the interrupt");
+    let e = interrupted(
+        &conn,
+        "SELECT dist_mixture(x, 16) FROM t",
+        Duration::from_millis(300),
+    )
+    .expect("the 16-component fit finished before the interrupt");
     assert!(e.contains("dist_mixture: interrupted"), "{e}");
     // The connection works on afterwards, and so does the same fit on a small table.
     let k: i64 = conn
@@ -57,8 +61,12 @@ fn a_scalar_fit_of_a_stored_value_stops_on_interrupt() {
     let conn = connection();
     conn.execute_batch("CREATE TABLE d AS SELECT dist_empirical(x) AS d FROM t")
         .unwrap();
-    let e = interrupted(&conn, "SELECT dist_mixture_to(d, 16) FROM d", Duration::from_millis(300))
-        .expect("the 16-component fit finished before the interrupt");
+    let e = interrupted(
+        &conn,
+        "SELECT dist_mixture_to(d, 16) FROM d",
+        Duration::from_millis(300),
+    )
+    .expect("the 16-component fit finished before the interrupt");
     assert!(e.contains("dist_mixture_to: interrupted"), "{e}");
 }
 

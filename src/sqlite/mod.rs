@@ -204,7 +204,10 @@ fn scalar(name: &'static str, f: ScalarFn, ctx: &Context<'_>) -> rusqlite::Resul
     let mut call = Call::new(name, &args[..n], &mut memo);
     // SAFETY: the connection running this callback; its handle is only read here.
     #[allow(unsafe_code)]
-    let db = unsafe { ctx.get_connection().map_or(std::ptr::null_mut(), |c| c.handle()) };
+    let db = unsafe {
+        ctx.get_connection()
+            .map_or(std::ptr::null_mut(), |c| c.handle())
+    };
     cancellable(db, || f(&mut call))
         .map(|o| {
             if let Some(e) = Returns::drift(name, &o) {

@@ -82,7 +82,8 @@ pub fn maximise(
             best_value = value;
         }
         converged = met;
-        let settled = run > 0 && !(gain > tolerance * (best_value.abs() + 1.0));
+        // A NaN gain (never expected) counts as settled.
+        let settled = run > 0 && (gain.is_nan() || gain <= tolerance * (best_value.abs() + 1.0));
         if !met || settled || evaluations >= budget {
             break;
         }
@@ -184,9 +185,10 @@ fn one_run(
             continue;
         }
         // Shrink towards the best vertex.
+        let best_point = vertex[0];
         for i in 1..n {
-            for d in 0..dim {
-                vertex[i][d] = vertex[0][d] + 0.5 * (vertex[i][d] - vertex[0][d]);
+            for (v, b) in vertex[i].iter_mut().zip(best_point).take(dim) {
+                *v = b + 0.5 * (*v - b);
             }
             value[i] = eval(&vertex[i], evaluations);
         }
