@@ -125,22 +125,7 @@ pub fn fit_rounded_weighted(
     if let Some(&bad) = weights.iter().find(|w| !(w.is_finite() && **w > 0.0)) {
         return Err(FitError::BadWeight(bad));
     }
-    let mut pairs: Vec<(f64, f64)> = values
-        .iter()
-        .copied()
-        .zip(weights.iter().copied())
-        .collect();
-    pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let (mut xs, mut counts): (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
-    for (v, w) in pairs {
-        match (xs.last(), counts.last_mut()) {
-            (Some(&last), Some(c)) if last == v => *c += w,
-            _ => {
-                xs.push(v);
-                counts.push(w);
-            }
-        }
-    }
+    let (xs, counts) = super::sorting::merge_weighted(values, weights);
     let total = super::sum::sum(&counts);
     check_values(&xs, total, family, |x| x >= 0.0)?;
     fit_grouped(&xs, &counts, total, family, step)

@@ -27,6 +27,35 @@ pub const BUCKET_MIN: usize = 1 << 12;
 /// Values per bucket, on average.
 const PER_BUCKET: usize = 4;
 
+/// Weighted values sorted by value (in `total_cmp` order), identical values merged into
+/// one with their weights summed: the distinct values and their weights. The two slices
+/// pair up to the shorter one's length.
+///
+/// # Example
+/// ```
+/// let (x, w) = ogive::stats::sorting::merge_weighted(&[3.0, 1.0, 3.0], &[1.0, 2.0, 0.5]);
+/// assert_eq!((x, w), (vec![1.0, 3.0], vec![2.0, 1.5]));
+/// ```
+pub fn merge_weighted(values: &[f64], weights: &[f64]) -> (Vec<f64>, Vec<f64>) {
+    let mut pairs: Vec<(f64, f64)> = values
+        .iter()
+        .copied()
+        .zip(weights.iter().copied())
+        .collect();
+    pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let (mut x, mut w): (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
+    for (v, c) in pairs {
+        match (x.last(), w.last_mut()) {
+            (Some(&last), Some(total)) if last.total_cmp(&v).is_eq() => *total += c,
+            _ => {
+                x.push(v);
+                w.push(c);
+            }
+        }
+    }
+    (x, w)
+}
+
 /// The values of `xs` sorted increasing in the order of [`f64::total_cmp`], the same
 /// as `xs.to_vec()` sorted by `sort_unstable_by(f64::total_cmp)`.
 ///

@@ -197,19 +197,7 @@ impl Data {
                 s2[j].add(r * m2[j]);
             }
         }
-        let mut next = *p;
-        for j in 0..k {
-            let w = s0[j].value();
-            if w.is_nan() || w <= LOST_WEIGHT * self.total {
-                return None;
-            }
-            let shift = s1[j].value() / w;
-            next.weight[j] = w / self.total;
-            next.mean[j] = p.mean[j] + shift;
-            next.var[j] = (s2[j].value() / w - shift * shift).max(VARIANCE_FLOOR);
-        }
-        let ll = loglik.value();
-        ll.is_finite().then_some((ll, next))
+        self.m_step(p, &s0, &s1, &s2, loglik.value())
     }
 }
 

@@ -314,8 +314,23 @@ impl Data {
                 s2[j].add(b2);
             }
         }
+        self.m_step(p, &s0, &s1, &s2, loglik.value())
+    }
+
+    /// The M-step shared by the exact and the grouped passes: from each component's
+    /// weighted count `s0`, first and second moments about its current mean `s1`, `s2`,
+    /// the next parameters (variances floored), with the pass's log-likelihood; `None`
+    /// when a component is lost or the log-likelihood is not finite.
+    pub(super) fn m_step(
+        &self,
+        p: &Params,
+        s0: &[NeumaierSum; MAX_COMPONENTS],
+        s1: &[NeumaierSum; MAX_COMPONENTS],
+        s2: &[NeumaierSum; MAX_COMPONENTS],
+        loglik: f64,
+    ) -> Option<(f64, Params)> {
         let mut next = *p;
-        for j in 0..k {
+        for j in 0..p.k {
             let w = s0[j].value();
             if w.is_nan() || w <= LOST_WEIGHT * self.total {
                 return None;
@@ -325,8 +340,7 @@ impl Data {
             next.mean[j] = p.mean[j] + shift;
             next.var[j] = (s2[j].value() / w - shift * shift).max(VARIANCE_FLOOR);
         }
-        let ll = loglik.value();
-        ll.is_finite().then_some((ll, next))
+        loglik.is_finite().then_some((loglik, next))
     }
 }
 

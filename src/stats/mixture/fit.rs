@@ -111,22 +111,7 @@ pub fn fit_mixture_weighted(
         return Err(MixtureError::BadWeight(bad));
     }
     check_k_and_values(k, values)?;
-    let mut pairs: Vec<(f64, f64)> = values
-        .iter()
-        .copied()
-        .zip(weights.iter().copied())
-        .collect();
-    pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let (mut x, mut count): (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
-    for (v, w) in pairs {
-        match (x.last(), count.last_mut()) {
-            (Some(&last), Some(c)) if last == v => *c += w,
-            _ => {
-                x.push(v);
-                count.push(w);
-            }
-        }
-    }
+    let (x, count) = crate::stats::sorting::merge_weighted(values, weights);
     let total = crate::stats::sum::sum(&count);
     let data = Data::merged(x, count, total, resolution)?;
     fit_data(data, k, THIN_TO)
