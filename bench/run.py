@@ -314,7 +314,7 @@ def bench_mixture(ext, rows, reps, report):
         rows.append((f"sklearn GaussianMixture(3, tol={tol:g}).fit: equal log-likelihood", took))
     note = (
         f"log-likelihood: ogive {og_ll:.4f} in {model.get('iterations')} iterations over all rows "
-        f"(10 starts ranked on a thinned copy; converged: {model.get('converged')}); scikit-learn "
+        f"(50 starts ranked on a thinned copy; converged: {model.get('converged')}); scikit-learn "
         f"with its defaults {default_ll:.4f} in {default_iter} iterations. Equal quality means "
         f"within {MIXTURE_SLACK:g} per row ({slack:.2f} in all) of ogive's log-likelihood or above it; "
         "scikit-learn's tolerance ladder (one k-means start, max_iter 100000): "
