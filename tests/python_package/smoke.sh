@@ -42,6 +42,8 @@ cleanup() {
     rm -rf "$WORK"
 }
 trap cleanup EXIT
+trap 'exit 143' TERM    # the outer timeout's signal: exit through cleanup
+trap 'exit 130' INT
 
 VENV=$WORK/venv
 echo "== fresh venv: $PY ($("$PY" --version), sqlite3 $("$PY" -c 'import sqlite3; print(sqlite3.sqlite_version)'))"
