@@ -274,22 +274,11 @@ fn observe_resolution(
 
 /// The step of sorted values under a resolution (`None` or `Exact`: exact readings).
 fn step_of(sorted: &[f64], r: Option<Resolution>) -> std::result::Result<Option<f64>, ArgError> {
-    let Some(r) = r else {
-        return Ok(None);
-    };
-    if r == Resolution::Exact {
-        return Ok(None);
+    match r {
+        None | Some(Resolution::Exact) => Ok(None),
+        // The grid rules hold on sorted values with their ties (a tie is on any grid).
+        Some(r) => Ok(resolve(sorted, r)?),
     }
-    let mut distinct: Vec<f64> = Vec::new();
-    distinct
-        .try_reserve(sorted.len())
-        .map_err(|_| ArgError::OutOfMemory { held: sorted.len() })?;
-    for &x in sorted {
-        if distinct.last() != Some(&x) {
-            distinct.push(x);
-        }
-    }
-    Ok(resolve(&distinct, r)?)
 }
 
 /// State of `dist_fit`: the values, the family and the resolution.

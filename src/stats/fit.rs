@@ -625,11 +625,11 @@ impl Parametric {
     /// # Ok::<(), ogive::stats::fit::FitError>(())
     /// ```
     pub fn ln_mass(&self, lo: f64, hi: f64) -> f64 {
-        let below = self.cdf(lo);
-        let mass = if below > 0.5 {
+        // Two evaluations: the tail is chosen by where lo lies against the centre.
+        let mass = if lo > self.centre() {
             self.sf(lo) - self.sf(hi)
         } else {
-            self.cdf(hi) - below
+            self.cdf(hi) - self.cdf(lo)
         };
         if mass > 0.0 {
             return mass.ln();
@@ -643,6 +643,20 @@ impl Parametric {
             }
         }
         f64::NEG_INFINITY
+    }
+
+    /// The median where it has a closed form, else the mean (the gamma): a point that
+    /// splits the mass near evenly, which [`Parametric::ln_mass`] uses to choose a tail.
+    fn centre(&self) -> f64 {
+        let [a, b] = self.parameters;
+        match self.family {
+            Family::Normal => a,
+            Family::LogNormal => a.exp(),
+            Family::Exponential => std::f64::consts::LN_2 / a,
+            Family::Weibull => b * std::f64::consts::LN_2.powf(1.0 / a),
+            Family::Uniform => 0.5 * a + 0.5 * b,
+            Family::Gamma => a * b,
+        }
     }
 
     /// `ln cdf(t)`, from the survival function where the cdf is near 1.

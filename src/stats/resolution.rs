@@ -73,7 +73,7 @@ impl std::error::Error for GridError {}
 const MAX_DIVISOR: u32 = 64;
 
 /// The step to fit with: `None` for exact readings (stated, or `Auto` finding no grid),
-/// `Some(r)` for readings rounded to `r`. `sorted` holds the distinct readings in
+/// `Some(r)` for readings rounded to `r`. `sorted` holds the readings (ties allowed) in
 /// increasing order.
 ///
 /// # Errors
@@ -111,7 +111,7 @@ pub fn resolve(sorted: &[f64], r: Resolution) -> Result<Option<f64>, GridError> 
 }
 
 /// The largest step on whose grid every reading lies, `None` when there is none (or
-/// fewer than two distinct readings). `sorted` holds the distinct readings in
+/// fewer than two distinct readings). `sorted` holds the readings (ties allowed) in
 /// increasing order.
 ///
 /// # Example
