@@ -26,7 +26,7 @@ fuzz_target!(|data: &[u8]| {
 fn exercise(bytes: &[u8]) {
     exercise_censored(bytes);
     // The same bytes read as the other version, so both decoders see every input.
-    if bytes.len() > 4 {
+    if bytes.len() > 5 {
         let mut other = bytes.to_vec();
         other[4] = if bytes[4] == 2 { 1 } else { 2 };
         other[5] = other[4];
