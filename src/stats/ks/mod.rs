@@ -65,10 +65,12 @@ use std::fmt;
 
 mod distribution;
 mod one_sample;
+mod ties;
 mod two_sample;
 
 pub use distribution::*;
 pub use one_sample::*;
+pub use ties::*;
 pub use two_sample::*;
 
 /// Two-sample sizes with `n1 * n2` up to this use the exact p-value under [`PMethod::Auto`]
@@ -112,6 +114,15 @@ pub enum TestError {
     /// The data admit no model of the kind asked for (a constant sample, a negative value
     /// for an exponential model); says why.
     Degenerate(String),
+    /// An observation point of the Brownian bridge outside `(0, 1)`.
+    BadPoint(f64),
+    /// More observation points of the Brownian bridge than the tied limit handles.
+    TooManyPoints {
+        /// How many were given.
+        got: usize,
+        /// The limit ([`MAX_TIE_POINTS`]).
+        limit: usize,
+    },
     /// The cdf returned something outside `[0, 1]` (or NaN).
     BadCdf {
         /// The argument.
@@ -145,6 +156,14 @@ impl fmt::Display for TestError {
             }
             TestError::BadWeight(w) => write!(f, "weights must be finite and >= 0, got {w}"),
             TestError::Degenerate(why) => write!(f, "{why}"),
+            TestError::BadPoint(u) => write!(
+                f,
+                "the bridge's observation points must lie strictly between 0 and 1, got {u}"
+            ),
+            TestError::TooManyPoints { got, limit } => write!(
+                f,
+                "the bridge can be observed at no more than {limit} points, got {got}"
+            ),
             TestError::BadCdf { x, value } => write!(
                 f,
                 "the cdf must return a probability in [0, 1], got {value} at {x}"
@@ -241,14 +260,18 @@ pub enum MethodUsed {
     Exact,
     /// An asymptotic formula.
     Asymptotic,
+    /// The large-sample limit with ties: the Brownian bridge observed at the pooled sample's
+    /// distinct values ([`ties_2samp_p`]).
+    AsymptoticTies,
 }
 
 impl MethodUsed {
-    /// `exact` or `asymptotic`.
+    /// `exact`, `asymptotic` or `asymptotic, ties`.
     pub fn name(self) -> &'static str {
         match self {
             MethodUsed::Exact => "exact",
             MethodUsed::Asymptotic => "asymptotic",
+            MethodUsed::AsymptoticTies => "asymptotic, ties",
         }
     }
 }
