@@ -44,6 +44,11 @@
 //! - one-sided: Smirnov's limit `exp(-2 z^2)`, `z = sqrt(en) d`, with Hodges' (1958,
 //!   eq. 5.3) small-sample correction: `exp(-2 z^2 - 2 z (m + 2 n) / (3 sqrt(m n (m + n))))`
 //!   with `m >= n` the two sizes.
+//! - with ties in the pooled sample: the limit for discrete data, the Brownian bridge observed
+//!   only at the pooled ECDF's values at the distinct values (`ties.rs`, [`ties_2samp_p`];
+//!   Schmid 1958, Noether 1963), reported as [`MethodUsed::AsymptoticTies`]. Without ties the
+//!   formulas above are used unchanged; above [`MAX_TIE_POINTS`] distinct values too (then
+//!   conservative: the sup over all of `[0, 1]` is at least the max over the values).
 //!
 //! # One sample
 //!
@@ -58,7 +63,8 @@
 //! [`crate::stats::lilliefors`].
 //!
 //! Files: this one holds the shared vocabulary (alternatives, methods, errors);
-//! `two_sample.rs` the two-sample test, `one_sample.rs` the one-sample test, and
+//! `two_sample.rs` the two-sample test, `ties.rs` its large-sample p-value with ties,
+//! `one_sample.rs` the one-sample test, and
 //! `distribution.rs` the Kolmogorov and Smirnov distributions they refer to.
 
 use std::fmt;
