@@ -67,9 +67,13 @@ pub static FUNCTIONS: &[FunctionDef] = &[
            method: 'auto' (default: exact when n1 * n2 <= 1e8, asymptotic beyond), 'exact' \
            (lattice-path count, refused above n1 * n2 = 4e9) or 'asymp'. Exact p-values are \
            conditional on the tie pattern of the pooled values (Hodges 1958; Schroer and \
-           Trenkler 1995), so they stay exact for rounded measurements; the asymptotic ones are \
-           Kolmogorov's limit corrected by the one-sample distribution at size n1 n2 / (n1 + n2) \
-           (two-sided) and Hodges' formula (one-sided). The result's method says which was used. \
+           Trenkler 1995), so they stay exact for rounded measurements. Asymptotic p-values without \
+           ties are Kolmogorov's limit corrected by the one-sample distribution at size \
+           n1 n2 / (n1 + n2) (two-sided) and Hodges' formula (one-sided), method 'asymptotic'; \
+           with ties they are the limit for discrete data, the Brownian bridge observed only at \
+           the pooled sample's distinct values (Schmid 1958; Noether 1963), method \
+           'asymptotic, ties' (up to 20000 distinct values; beyond, the tie-free limit, which \
+           is then conservative). The result's method says which was used. \
            Rows with NULL x or NULL in_second are skipped. NULL when either sample has no \
            values (there is nothing to compare), or when alternative or method is NULL. \
            alternative and method must be the same on every row of a group. Errors: non-numeric \
@@ -89,7 +93,9 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         help: "Two empirical distributions: the two-sample test of ks_test on the values they \
                hold, the same JSON to the last digit as ks_test over the rows they were built \
                from, with the same alternative ('two-sided' default, 'less', 'greater'; d1 \
-               plays sample 1) and method ('auto' default, 'exact', 'asymp'). An empirical \
+               plays sample 1) and method ('auto' default, 'exact', 'asymp'; with ties the \
+               asymptotic p-value is the discrete-data limit, method 'asymptotic, ties', as \
+               in ks_test). An empirical \
                distribution and a model (JSON from dist_fit, dist_mixture or dist_model, \
                either order): the one-sample test of the data against the model's cdf, with \
                test 'one-sample', the model's family, and null for the model's n1 or n2. Its \
@@ -131,7 +137,8 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         signature: "dist_distance(d1, d2, metric)",
         summary: "how far apart two distributions are: metric 'ks', 'wasserstein', 'cvm' or 'ad' (against a model 'ks'); JSON {metric, statistic, p, method, n1, n2}",
         help: "metric 'ks': the two-sided Kolmogorov-Smirnov statistic max |F1 - F2| and its \
-               p-value, as dist_ks. 'wasserstein': the L1 distance between the two cdfs, \
+               p-value, as dist_ks (method 'exact', 'asymptotic', or 'asymptotic, ties' for \
+               large tied samples). 'wasserstein': the L1 distance between the two cdfs, \
                integral |F1 - F2| dt, in the units of the values (how far, on average, mass \
                must move to turn one into the other); any frequency weights; no p; statistic \
                null when infinite (an infinite value in one distribution only). 'cvm': the \

@@ -44,6 +44,11 @@
 //! - one-sided: Smirnov's limit `exp(-2 z^2)`, `z = sqrt(en) d`, with Hodges' (1958,
 //!   eq. 5.3) small-sample correction: `exp(-2 z^2 - 2 z (m + 2 n) / (3 sqrt(m n (m + n))))`
 //!   with `m >= n` the two sizes.
+//! - with ties in the pooled sample: the limit for discrete data, the Brownian bridge observed
+//!   only at the pooled ECDF's values at the distinct values (`ties.rs`, [`ties_2samp_p`];
+//!   Schmid 1958, Noether 1963), reported as [`MethodUsed::AsymptoticTies`]. Without ties the
+//!   formulas above are used unchanged; above [`MAX_TIE_POINTS`] distinct values too (then
+//!   conservative: the sup over all of `[0, 1]` is at least the max over the values).
 //!
 //! # One sample
 //!
@@ -58,17 +63,20 @@
 //! [`crate::stats::lilliefors`].
 //!
 //! Files: this one holds the shared vocabulary (alternatives, methods, errors);
-//! `two_sample.rs` the two-sample test, `one_sample.rs` the one-sample test, and
+//! `two_sample.rs` the two-sample test, `ties.rs` its large-sample p-value with ties,
+//! `one_sample.rs` the one-sample test, and
 //! `distribution.rs` the Kolmogorov and Smirnov distributions they refer to.
 
 use std::fmt;
 
 mod distribution;
 mod one_sample;
+mod ties;
 mod two_sample;
 
 pub use distribution::*;
 pub use one_sample::*;
+pub use ties::*;
 pub use two_sample::*;
 
 /// Two-sample sizes with `n1 * n2` up to this use the exact p-value under [`PMethod::Auto`]
@@ -112,6 +120,15 @@ pub enum TestError {
     /// The data admit no model of the kind asked for (a constant sample, a negative value
     /// for an exponential model); says why.
     Degenerate(String),
+    /// An observation point of the Brownian bridge outside `(0, 1)`.
+    BadPoint(f64),
+    /// More observation points of the Brownian bridge than the tied limit handles.
+    TooManyPoints {
+        /// How many were given.
+        got: usize,
+        /// The limit ([`MAX_TIE_POINTS`]).
+        limit: usize,
+    },
     /// The cdf returned something outside `[0, 1]` (or NaN).
     BadCdf {
         /// The argument.
@@ -145,6 +162,14 @@ impl fmt::Display for TestError {
             }
             TestError::BadWeight(w) => write!(f, "weights must be finite and >= 0, got {w}"),
             TestError::Degenerate(why) => write!(f, "{why}"),
+            TestError::BadPoint(u) => write!(
+                f,
+                "the bridge's observation points must lie strictly between 0 and 1, got {u}"
+            ),
+            TestError::TooManyPoints { got, limit } => write!(
+                f,
+                "the bridge can be observed at no more than {limit} points, got {got}"
+            ),
             TestError::BadCdf { x, value } => write!(
                 f,
                 "the cdf must return a probability in [0, 1], got {value} at {x}"
@@ -241,14 +266,18 @@ pub enum MethodUsed {
     Exact,
     /// An asymptotic formula.
     Asymptotic,
+    /// The large-sample limit with ties: the Brownian bridge observed at the pooled sample's
+    /// distinct values ([`ties_2samp_p`]).
+    AsymptoticTies,
 }
 
 impl MethodUsed {
-    /// `exact` or `asymptotic`.
+    /// `exact`, `asymptotic` or `asymptotic, ties`.
     pub fn name(self) -> &'static str {
         match self {
             MethodUsed::Exact => "exact",
             MethodUsed::Asymptotic => "asymptotic",
+            MethodUsed::AsymptoticTies => "asymptotic, ties",
         }
     }
 }

@@ -195,10 +195,22 @@ pub fn ks_2samp_from_statistic(
     };
     let h = s.numerator(alternative);
     let d = s.d(alternative);
-    let p = if exact {
-        exact_2samp_p(s.n1, s.n2, h, &s.blocks, alternative)
+    let (p, method) = if exact {
+        (
+            exact_2samp_p(s.n1, s.n2, h, &s.blocks, alternative),
+            MethodUsed::Exact,
+        )
+    } else if let Some(p) = s
+        .has_ties()
+        .then(|| ties_2samp_p(s.n1, s.n2, &s.blocks, d, alternative))
+        .flatten()
+    {
+        (p, MethodUsed::AsymptoticTies)
     } else {
-        asymptotic_2samp_p(s.n1, s.n2, d, alternative)
+        (
+            asymptotic_2samp_p(s.n1, s.n2, d, alternative),
+            MethodUsed::Asymptotic,
+        )
     };
     Ok(KsResult {
         d,
@@ -206,11 +218,7 @@ pub fn ks_2samp_from_statistic(
         n1: s.n1,
         n2: s.n2,
         alternative,
-        method: if exact {
-            MethodUsed::Exact
-        } else {
-            MethodUsed::Asymptotic
-        },
+        method,
     })
 }
 
