@@ -13,6 +13,8 @@
 //!   weights, evaluated with the kernels above.
 //! - [`kde`]: the Gaussian kernel density estimate, bandwidth by Scott's or Silverman's
 //!   rule.
+//! - [`series`]: the effective sample size of serially correlated readings (Geyer's
+//!   initial monotone sequence on the decile indicators).
 //! - [`band`]: the Dvoretzky-Kiefer-Wolfowitz confidence band of an empirical cdf.
 //! - [`censored`]: nonparametric maximum-likelihood estimates from censored readings
 //!   (Kaplan-Meier, its mirror for left-censoring, Turnbull), with Greenwood's interval.
@@ -74,6 +76,7 @@ pub mod resolution;
 pub mod rng;
 pub mod roots;
 pub mod sample;
+pub mod series;
 pub mod simplex;
 pub mod sketch;
 pub mod sorting;
