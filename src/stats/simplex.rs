@@ -82,7 +82,8 @@ pub fn maximise(
             best_value = value;
         }
         converged = met;
-        let settled = run > 0 && !(gain > tolerance * (best_value.abs() + 1.0));
+        let threshold = tolerance * (best_value.abs() + 1.0);
+        let settled = run > 0 && (gain.is_nan() || threshold.is_nan() || gain <= threshold);
         if !met || settled || evaluations >= budget {
             break;
         }
@@ -185,8 +186,9 @@ fn one_run(
         }
         // Shrink towards the best vertex.
         for i in 1..n {
-            for d in 0..dim {
-                vertex[i][d] = vertex[0][d] + 0.5 * (vertex[i][d] - vertex[0][d]);
+            let (best, rest) = vertex.split_at_mut(1);
+            for (v, &b) in rest[i - 1].iter_mut().zip(best[0].iter()).take(dim) {
+                *v = b + 0.5 * (*v - b);
             }
             value[i] = eval(&vertex[i], evaluations);
         }
