@@ -16,6 +16,7 @@ Samples are seeded numpy draws; "with ties" means rounded to a coarse grid.
 """
 
 import json
+import math
 import warnings
 
 import numpy as np
@@ -82,11 +83,13 @@ def test_dist_ks_matches_scipy_ks_2samp_without_ties(conn):
 
 def test_dist_ks_with_ties_matches_scipy_asymp_and_enumeration(conn):
     # With ties scipy's exact p-value ignores the tie pattern, so the exact p-value is checked
-    # against exhaustive enumeration (n1 + n2 <= 14, 1e-12 absolute), and d against
-    # scipy.stats.ks_2samp(x, y, alternative=A, method='asymp') to 1e-14 relative. With ties
-    # the asymptotic p-value is that of the Brownian bridge at the pooled distinct values
-    # (method 'asymptotic, ties'), checked against a permutation test in test_ks_ties.py;
-    # here only that it is reported as such and is a probability.
+    # against exhaustive enumeration (n1 + n2 <= 14, 1e-12 absolute), while d is checked
+    # against scipy.stats.ks_2samp(x, y, alternative=A, method='asymp') to 1e-14 relative.
+    # The asymptotic p-value with ties is the Brownian bridge watched at the distinct pooled
+    # values ('asymptotic, ties'; checked against a permutation test in test_ks_ties.py); its
+    # sup over a subset of [0, 1] cannot exceed the continuous limit, so p must be at most
+    # scipy.stats.kstwobign.sf(z) (two-sided) or exp(-2 z^2) (one-sided, Smirnov's limit),
+    # z = sqrt(n1 n2 / (n1 + n2)) d, up to 1e-12.
     pairs = seeded_pairs(41, SIZES, ties=True)
     small = seeded_pairs(42, [(5, 7, 0.5), (6, 6, 0.0), (4, 9, 1.0), (7, 7, 0.3)], ties=True)
     load_pairs(conn, pairs + small)
@@ -95,8 +98,10 @@ def test_dist_ks_with_ties_matches_scipy_asymp_and_enumeration(conn):
         for g, (x, y) in enumerate(pairs):
             want = scipy.stats.ks_2samp(x, y, alternative=alt, method="asymp")
             assert close(asymp[g]["d"], float(want.statistic), 1e-14), (g, alt)
+            z = math.sqrt(len(x) * len(y) / (len(x) + len(y))) * asymp[g]["d"]
+            bound = scipy.stats.kstwobign.sf(z) if alt == "two-sided" else math.exp(-2 * z * z)
             assert asymp[g]["method"] == "asymptotic, ties", asymp[g]
-            assert 0.0 <= asymp[g]["p"] <= 1.0, (g, alt, asymp[g])
+            assert 0 <= asymp[g]["p"] <= bound + 1e-12, (g, alt, asymp[g], bound)
         exact = per_group(conn, "dist_ks(a.d, b.d, ?, 'exact')", (alt,))
         for k, (x, y) in enumerate(small):
             got = exact[len(pairs) + k]["p"]
