@@ -535,12 +535,12 @@ impl State for DistMixtureState {
 // ---------------------------------------------------------------------------------------
 // dist_fit_to(d, family [, resolution]), dist_mixture_to(d [, k [, resolution]])
 
+/// Values and their frequency weights (`None` when unweighted).
+type ValuesAndWeights = (Vec<f64>, Option<Vec<f64>>);
+
 /// The values and frequency weights of a stored empirical distribution (weights `None`
 /// when it is unweighted), without the values of weight 0.
-fn weighted_values(
-    call: &mut Call<'_>,
-    instead: &'static str,
-) -> Result<Option<(Vec<f64>, Option<Vec<f64>>)>> {
+fn weighted_values(call: &mut Call<'_>, instead: &'static str) -> Result<Option<ValuesAndWeights>> {
     let Some(d) = call.dist(0)? else {
         return Ok(None);
     };

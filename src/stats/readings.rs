@@ -408,7 +408,7 @@ fn loglik(d: &Parametric, grouped: &[(Reading, f64)]) -> f64 {
             Reading::AtMost(x) => d.ln_cdf(x),
             Reading::Above(x) => d.ln_sf(x),
         };
-        if !(term > f64::NEG_INFINITY) {
+        if term.is_nan() || term == f64::NEG_INFINITY {
             return f64::NEG_INFINITY;
         }
         s.add(count * term);

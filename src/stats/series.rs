@@ -209,7 +209,7 @@ pub fn integrated_time(y: &[f64], max_lag: usize) -> Option<Tau> {
 fn integrated_time_centred(c: &[f64], max_lag: usize) -> Option<Tau> {
     let n = c.len();
     let g0 = autocovariance(c, 0);
-    if !(g0 > 0.0) {
+    if g0.is_nan() || g0 <= 0.0 {
         return None;
     }
     let cap = max_lag.min(n - 1);
@@ -225,7 +225,7 @@ fn integrated_time_centred(c: &[f64], max_lag: usize) -> Option<Tau> {
             break;
         }
         let g = if m == 0 { g0 } else { autocovariance(c, k0) } + autocovariance(c, k1);
-        if !(g > 0.0) {
+        if g.is_nan() || g <= 0.0 {
             break;
         }
         let g = g.min(prev);
@@ -380,7 +380,7 @@ pub fn effective_size(in_order: &[f64], sorted: &[f64]) -> Result<Effective, Ser
         j += times;
     }
     let den = den.value();
-    if !(den > 0.0) {
+    if den.is_nan() || den <= 0.0 {
         return Ok(all);
     }
     let tau = num.value() / den;

@@ -82,7 +82,7 @@ pub fn maximise(
             best_value = value;
         }
         converged = met;
-        let settled = run > 0 && !(gain > tolerance * (best_value.abs() + 1.0));
+        let settled = run > 0 && (gain.is_nan() || gain <= tolerance * (best_value.abs() + 1.0));
         if !met || settled || evaluations >= budget {
             break;
         }
@@ -184,6 +184,7 @@ fn one_run(
             continue;
         }
         // Shrink towards the best vertex.
+        #[allow(clippy::needless_range_loop)] // vertex[0] is read while vertex[i] changes
         for i in 1..n {
             for d in 0..dim {
                 vertex[i][d] = vertex[0][d] + 0.5 * (vertex[i][d] - vertex[0][d]);

@@ -85,7 +85,7 @@ fn between(a: &End, b: &End) -> (f64, f64, f64) {
     } else {
         1.0 - a.tail - b.tail
     };
-    if !(z > TINY) {
+    if z.is_nan() || z <= TINY {
         return if a.t >= 0.0 {
             far_upper(a.t, b.t)
         } else {
