@@ -95,9 +95,28 @@ fn rows_for(name: &str, xs: &[Option<f64>], pick: &[u8]) -> Option<Vec<Vec<V>>> 
                 if vals.is_empty() {
                     vec![V::Null]
                 } else {
+                    let n = vals.len() as f64;
                     let s = ogive::stats::sample::Sample::from_values(vals).unwrap();
-                    vec![V::B(empirical::encode(&s))]
+                    // Some parts are series values (dist_series), with n_eff below n.
+                    if pick[c.len() % pick.len()].is_multiple_of(3) {
+                        vec![V::B(empirical::encode_series(&s, (0.7 * n).max(1.0)))]
+                    } else {
+                        vec![V::B(empirical::encode(&s))]
+                    }
                 }
+            })
+            .collect(),
+        "dist_series" => xs
+            .iter()
+            .enumerate()
+            .map(|(i, v)| {
+                // Times with ties (the merged result must sort them the same way whatever
+                // the order rows arrive in), and a NULL time now and then.
+                let t = match pick[i % pick.len()] % 9 {
+                    0 => V::Null,
+                    k => V::I(i64::from(k) + (i as i64 / 3)),
+                };
+                vec![x(v), t]
             })
             .collect(),
         "dist_censored" => xs

@@ -90,6 +90,8 @@ pub enum ArgError {
     Censored(CensoredError),
     /// A censored estimate given to a function that does not take one.
     NotForCensored { arg: usize, got: String },
+    /// A bad reading or time of a series (`dist_series`).
+    Series(crate::stats::series::SeriesError),
 }
 
 impl fmt::Display for ArgError {
@@ -160,6 +162,7 @@ impl fmt::Display for ArgError {
                  run the same ogive"
             ),
             ArgError::Censored(e) => e.fmt(f),
+            ArgError::Series(e) => e.fmt(f),
             ArgError::NotForCensored { arg, got } => write!(
                 f,
                 "argument {arg} is {got} (from dist_censored), which this function does not take; \
@@ -188,6 +191,7 @@ impl std::error::Error for ArgError {
             ArgError::Sketch(e) => Some(e),
             ArgError::Grid(e) => Some(e),
             ArgError::Censored(e) => Some(e),
+            ArgError::Series(e) => Some(e),
             _ => None,
         }
     }
@@ -238,6 +242,12 @@ impl From<GridError> for ArgError {
 impl From<CensoredError> for ArgError {
     fn from(e: CensoredError) -> Self {
         ArgError::Censored(e)
+    }
+}
+
+impl From<crate::stats::series::SeriesError> for ArgError {
+    fn from(e: crate::stats::series::SeriesError) -> Self {
+        ArgError::Series(e)
     }
 }
 

@@ -353,7 +353,7 @@ impl State for EcdfState {
 }
 
 /// Writes an exact sum by its limbs.
-fn save_exact(w: &mut Writer, s: &ExactSum) {
+pub(crate) fn save_exact(w: &mut Writer, s: &ExactSum) {
     let limbs = s.limbs();
     w.u64(limbs.len() as u64);
     for l in limbs {
@@ -362,7 +362,7 @@ fn save_exact(w: &mut Writer, s: &ExactSum) {
 }
 
 /// Reads an exact sum written by [`save_exact`].
-fn load_exact(r: &mut Reader<'_>) -> std::result::Result<ExactSum, ArgError> {
+pub(crate) fn load_exact(r: &mut Reader<'_>) -> std::result::Result<ExactSum, ArgError> {
     let n = r.u64()?;
     let mut limbs = Vec::new();
     for _ in 0..n.min(1 << 12) {

@@ -42,7 +42,8 @@ use crate::stats::censored::Censored;
 use crate::stats::fit::Family;
 use crate::stats::gof::{anderson_darling_ksamp, cramer_von_mises_2samp, wasserstein_1};
 use crate::stats::ks::{
-    Alternative, KsOneResult, KsResult, PMethod, TestError, ks_1samp, ks_2samp,
+    Alternative, KsOneResult, KsResult, PMethod, TestError, asymptotic_2samp_p,
+    kolmogorov_limit_sf, ks_1samp, ks_2samp, two_sample_statistic,
 };
 use crate::stats::lilliefors::{self, Scale, lilliefors_p};
 use crate::stats::sample::Sample;
@@ -410,10 +411,132 @@ impl KsMethod {
     }
 }
 
+/// An empirical argument: its sample and, for a series value (`dist_series`), its
+/// effective size.
+#[derive(Debug, Clone, Copy)]
+struct Emp<'a> {
+    sample: &'a Sample,
+    n_eff: Option<f64>,
+}
+
+impl<'a> Emp<'a> {
+    fn of(d: &'a Dist) -> Option<Emp<'a>> {
+        match d {
+            Dist::Empirical(sample) => Some(Emp {
+                sample,
+                n_eff: None,
+            }),
+            Dist::Series(sample, n_eff) => Some(Emp {
+                sample,
+                n_eff: Some(*n_eff),
+            }),
+            Dist::Model(_) | Dist::Censored(_) => None,
+        }
+    }
+
+    /// The size the p-value uses: n_eff for a series value, else the row count.
+    fn size(&self, rows: usize) -> f64 {
+        self.n_eff.unwrap_or(rows as f64)
+    }
+
+    /// Whether this side counts for fewer than its rows.
+    fn reduced(&self, rows: usize) -> bool {
+        self.size(rows) < rows as f64
+    }
+
+    /// The reported n_eff: a series value's, else the row count.
+    fn n_eff_json(&self, rows: usize) -> serde_json::Value {
+        json!(self.size(rows))
+    }
+}
+
+/// The name of the p-value method when an effective size below n replaces n.
+pub const N_EFF_METHOD: &str = "asymptotic with n_eff";
+
+/// A whole effective size for the Kolmogorov distributions, at least 1.
+fn whole_size(n_eff: f64) -> usize {
+    (n_eff.round_ties_even() as usize).max(1)
+}
+
+/// The two-sample Kolmogorov-Smirnov test of two empirical arguments, as `dist_ks`
+/// (`as_distance` false) or `dist_distance` reports it. When either is a series value
+/// counting for fewer than its rows, the statistic is that of the rows and the p-value the
+/// asymptotic one at the effective sizes (the exact lattice count assumes independent
+/// rows, so a forced 'exact' is an error); a series value adds `n_eff1` and `n_eff2`.
+fn ks_two(
+    x: Emp<'_>,
+    y: Emp<'_>,
+    alternative: Alternative,
+    method: PMethod,
+    as_distance: bool,
+) -> std::result::Result<serde_json::Value, ArgError> {
+    let xs = rows_of(x.sample, 1)?;
+    let ys = rows_of(y.sample, 2)?;
+    let reduced = x.reduced(xs.len()) || y.reduced(ys.len());
+    let mut report = if reduced {
+        if method == PMethod::Exact {
+            return Err(exact_needs_independence());
+        }
+        let s = two_sample_statistic(&xs, &ys)?;
+        let d = s.d(alternative);
+        let p = asymptotic_2samp_p(
+            whole_size(x.size(xs.len())),
+            whole_size(y.size(ys.len())),
+            d,
+            alternative,
+        );
+        ks_json(
+            &KsReport {
+                d,
+                p,
+                n1: json!(xs.len()),
+                n2: json!(ys.len()),
+                method: N_EFF_METHOD,
+                alternative,
+                family: None,
+            },
+            as_distance,
+        )
+    } else {
+        let r = ks_2samp(&xs, &ys, alternative, method)?;
+        ks_json(&KsReport::two_sample(&r), as_distance)
+    };
+    if x.n_eff.is_some() || y.n_eff.is_some() {
+        report["n_eff1"] = x.n_eff_json(xs.len());
+        report["n_eff2"] = y.n_eff_json(ys.len());
+    }
+    Ok(report)
+}
+
+/// The method of a Cramer-von Mises or Anderson-Darling result whose p-value is withheld
+/// because a series value counts for fewer than its rows.
+pub const WITHHELD: &str = "no p-value: serially correlated readings (n_eff below n)";
+
+/// The error for a forced exact p-value on a series value.
+fn exact_needs_independence() -> ArgError {
+    ArgError::BadOption {
+        what: "method",
+        detail: "'exact' counts splits of independent rows and does not apply to a series \
+                 value whose n_eff is below its n; use 'auto' or 'asymp' (the asymptotic \
+                 p-value at n_eff)"
+            .to_string(),
+    }
+}
+
+/// Adds `n_eff1` and `n_eff2` to a two-sample report when either side is a series value.
+fn add_n_eff(report: &mut serde_json::Value, x: Emp<'_>, y: Emp<'_>, n1: usize, n2: usize) {
+    if x.n_eff.is_some() || y.n_eff.is_some() {
+        report["n_eff1"] = x.n_eff_json(n1);
+        report["n_eff2"] = y.n_eff_json(n2);
+    }
+}
+
 /// What a one-sample test against a model needs to know about the call.
 struct OneSample<'a> {
     /// The empirical distribution.
     sample: &'a Sample,
+    /// Its effective size when it is a series value.
+    n_eff: Option<f64>,
     /// Its argument number (1 or 2).
     arg: usize,
     /// The model.
@@ -423,7 +546,7 @@ struct OneSample<'a> {
 /// The two distribution arguments of a comparison.
 enum Pair<'a> {
     /// Two empirical distributions: a two-sample comparison.
-    Two(&'a Sample, &'a Sample),
+    Two(Emp<'a>, Emp<'a>),
     /// An empirical distribution and a model: a one-sample one.
     One(OneSample<'a>),
     /// A censored estimate (argument `arg`) and a model: a distance only.
@@ -438,18 +561,27 @@ impl<'a> Pair<'a> {
     /// Sorts the arguments into a comparison; two models are an error (`why` says what
     /// the function compares).
     fn of(d1: &'a Dist, d2: &'a Dist, why: &'static str) -> std::result::Result<Self, ArgError> {
+        match (Emp::of(d1), Emp::of(d2), d1, d2) {
+            (Some(x), Some(y), ..) => return Ok(Pair::Two(x, y)),
+            (Some(x), None, _, Dist::Model(model)) => {
+                return Ok(Pair::One(OneSample {
+                    sample: x.sample,
+                    n_eff: x.n_eff,
+                    arg: 1,
+                    model,
+                }));
+            }
+            (None, Some(y), Dist::Model(model), _) => {
+                return Ok(Pair::One(OneSample {
+                    sample: y.sample,
+                    n_eff: y.n_eff,
+                    arg: 2,
+                    model,
+                }));
+            }
+            _ => {}
+        }
         match (d1, d2) {
-            (Dist::Empirical(x), Dist::Empirical(y)) => Ok(Pair::Two(x, y)),
-            (Dist::Empirical(sample), Dist::Model(model)) => Ok(Pair::One(OneSample {
-                sample,
-                arg: 1,
-                model,
-            })),
-            (Dist::Model(model), Dist::Empirical(sample)) => Ok(Pair::One(OneSample {
-                sample,
-                arg: 2,
-                model,
-            })),
             (Dist::Model(_), Dist::Model(_)) => Err(ArgError::NeedsEmpirical {
                 arg: 1,
                 got: d1.kind(),
@@ -473,6 +605,8 @@ impl<'a> Pair<'a> {
                 arg: 2,
                 got: d2.kind(),
             }),
+            // Handled above: at least one side is empirical and the other a model.
+            _ => Err(ArgError::Internal("an unpaired distribution".into())),
         }
     }
 }
@@ -497,9 +631,49 @@ impl<'a> OneSample<'a> {
             (2, Alternative::Greater) => Alternative::Less,
             (_, a) => a,
         };
+        let reduced = self.n_eff.is_some_and(|e| e < rows.len() as f64);
+        if reduced && method == PMethod::Exact {
+            return Err(TestError::ExactTooLarge {
+                detail: "'exact' assumes independent rows; a series value whose n_eff is \
+                         below its n gets the asymptotic p-value at n_eff ('auto' or 'asymp')"
+                    .to_string(),
+            });
+        }
         let mut r = ks_1samp(rows, |t| self.model.cdf(t), kernel_alternative, method)?;
         r.alternative = alternative;
+        if let (true, Some(n_eff)) = (reduced, self.n_eff) {
+            // Kolmogorov's limit (two-sided) or Smirnov's exp(-2 z^2) (one-sided), z =
+            // sqrt(n_eff) d.
+            let z = n_eff.sqrt() * r.d;
+            r.p = match alternative {
+                Alternative::TwoSided => kolmogorov_limit_sf(z),
+                _ => (-2.0 * z * z).exp(),
+            }
+            .clamp(0.0, 1.0);
+        }
         Ok(r)
+    }
+
+    /// The p-value method's name for a result of [`OneSample::ks`].
+    fn method_name(&self, r: &KsOneResult) -> &'static str {
+        if self.n_eff.is_some_and(|e| e < r.n as f64) {
+            N_EFF_METHOD
+        } else {
+            r.method.name()
+        }
+    }
+
+    /// Adds `n_eff1` and `n_eff2` (null on the model's side) for a series value.
+    fn add_n_eff(&self, report: &mut serde_json::Value, rows: usize) {
+        if let Some(n_eff) = self.n_eff {
+            let (a, b) = if self.arg == 1 {
+                (json!(n_eff.min(rows as f64)), serde_json::Value::Null)
+            } else {
+                (serde_json::Value::Null, json!(n_eff.min(rows as f64)))
+            };
+            report["n_eff1"] = a;
+            report["n_eff2"] = b;
+        }
     }
 
     /// `(n1, n2)` for a result: the sample's size on its side, null on the model's.
@@ -555,6 +729,13 @@ impl<'a> OneSample<'a> {
             }
         };
         let rows = self.rows()?;
+        if self.n_eff.is_some_and(|e| e < rows.len() as f64) {
+            return Err(wrong(
+                "'lilliefors' simulates independent rows and does not apply to a series value \
+                 whose n_eff is below its n; use 'auto' (the asymptotic p-value at n_eff)"
+                    .to_string(),
+            ));
+        }
         if rows.len() < family.min_n() {
             return Err(TestError::TooFewValues {
                 needed: family.min_n(),
@@ -591,12 +772,7 @@ fn dist_ks(call: &mut Call<'_>) -> Result<Out> {
     .map_err(|e| fail(NAME, e))?;
     let out = match (pair, method) {
         (Pair::Two(x, y), KsMethod::Ks(method)) => {
-            let x = rows_of(x, 1).map_err(|e| fail(NAME, e))?;
-            let y = rows_of(y, 2).map_err(|e| fail(NAME, e))?;
-            let r = ks_2samp(&x, &y, alternative, method).map_err(|e| fail(NAME, e))?;
-            return Ok(Out::Text(
-                ks_json(&KsReport::two_sample(&r), false).to_string(),
-            ));
+            ks_two(x, y, alternative, method, false).map_err(|e| fail(NAME, e))?
         }
         (Pair::Two(..), KsMethod::Lilliefors) => {
             return Err(fail(
@@ -615,7 +791,9 @@ fn dist_ks(call: &mut Call<'_>) -> Result<Out> {
             let r = one
                 .ks(&rows, alternative, method)
                 .map_err(|e| fail(NAME, e))?;
-            ks_json(&one.report(&r, r.method.name()), false)
+            let mut out = ks_json(&one.report(&r, one.method_name(&r)), false);
+            one.add_n_eff(&mut out, rows.len());
+            out
         }
         (Pair::One(one), KsMethod::Lilliefors) => {
             one.lilliefors(alternative).map_err(|e| fail(NAME, e))?
@@ -747,53 +925,67 @@ fn dist_distance(call: &mut Call<'_>) -> Result<Out> {
         }
     };
     // The rank metrics read whole weights as replicated rows.
+    let (ex, ey) = (x, y);
+    let (x, y) = (ex.sample, ey.sample);
     let rows = || -> Result<(Rows<'_>, Rows<'_>)> {
         let xs = rows_of(x, 1).map_err(|e| fail(NAME, e))?;
         let ys = rows_of(y, 2).map_err(|e| fail(NAME, e))?;
         Ok((xs, ys))
     };
+    // Whether a series value counts for fewer than its rows: the Cramer-von Mises and
+    // Anderson-Darling p-values have no effective-size form here, so they are withheld.
+    let reduced = |xs: &[f64], ys: &[f64]| ex.reduced(xs.len()) || ey.reduced(ys.len());
     let out = match metric {
         Metric::Wasserstein => {
             wasserstein_1(x.values(), x.weights(), y.values(), y.weights()).map(|w| {
-                json!({
+                let mut v = json!({
                     "metric": metric.name(),
                     "statistic": w,
                     "n1": size_json(x),
                     "n2": size_json(y),
-                })
+                });
+                let (n1, n2) = (x.total_weight() as usize, y.total_weight() as usize);
+                add_n_eff(&mut v, ex, ey, n1, n2);
+                v
             })
         }
         Metric::Ks => {
-            let (xs, ys) = rows()?;
-            ks_2samp(&xs, &ys, Alternative::TwoSided, PMethod::Auto)
-                .map(|r| ks_json(&KsReport::two_sample(&r), true))
+            return ks_two(ex, ey, Alternative::TwoSided, PMethod::Auto, true)
+                .map(|v| Out::Text(v.to_string()))
+                .map_err(|e| fail(NAME, e));
         }
         Metric::Cvm => {
             let (xs, ys) = rows()?;
+            let withheld = reduced(&xs, &ys);
             cramer_von_mises_2samp(&xs, &ys, PMethod::Auto).map(|r| {
-                json!({
+                let mut v = json!({
                     "metric": metric.name(),
                     "statistic": r.statistic,
-                    "p": r.p,
-                    "method": r.method.name(),
+                    "p": if withheld { None } else { Some(r.p) },
+                    "method": if withheld { WITHHELD } else { r.method.name() },
                     "n1": xs.len(),
                     "n2": ys.len(),
-                })
+                });
+                add_n_eff(&mut v, ex, ey, xs.len(), ys.len());
+                v
             })
         }
         Metric::Ad => {
             let (xs, ys) = rows()?;
+            let withheld = reduced(&xs, &ys);
             anderson_darling_ksamp(&[&xs, &ys]).map(|r| {
-                json!({
+                let mut v = json!({
                     "metric": metric.name(),
                     "statistic": r.statistic,
                     "a2akn": r.a2akn,
-                    "p": r.p,
+                    "p": if withheld { None } else { Some(r.p) },
                     "p_range": r.p_range.name(),
-                    "method": "interpolated",
+                    "method": if withheld { WITHHELD } else { "interpolated" },
                     "n1": xs.len(),
                     "n2": ys.len(),
-                })
+                });
+                add_n_eff(&mut v, ex, ey, xs.len(), ys.len());
+                v
             })
         }
     };
@@ -826,9 +1018,9 @@ fn one_sample_distance(one: &OneSample<'_>, metric: Metric) -> std::result::Resu
     }
     let rows = one.rows()?;
     let r = one.ks(&rows, Alternative::TwoSided, PMethod::Auto)?;
-    Ok(Out::Text(
-        ks_json(&one.report(&r, r.method.name()), true).to_string(),
-    ))
+    let mut out = ks_json(&one.report(&r, one.method_name(&r)), true);
+    one.add_n_eff(&mut out, rows.len());
+    Ok(Out::Text(out.to_string()))
 }
 
 #[cfg(test)]

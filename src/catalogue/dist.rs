@@ -26,8 +26,9 @@ use serde_json::json;
 
 use super::args::{ArgError, FunctionError, fail, number, whole};
 use super::column::profile_json;
+use super::column::{load_exact, save_exact};
 use super::reader::{Call, NoMemo};
-use super::state::{AggregateImp, Args, Reader, State, Writer};
+use super::state::{AggregateImp, Args, Reader, State, Writer, push, try_extend};
 use super::value::{Arg, Out, describe};
 
 use super::{FunctionDef, Imp, Kind, Returns, TableImp};
@@ -38,6 +39,8 @@ use crate::stats::histogram::{BinRule, histogram};
 use crate::stats::kde::Bandwidth;
 use crate::stats::quantile::QuantileType;
 use crate::stats::sample::{Sample, SampleBuilder};
+use crate::stats::series;
+use crate::stats::sum::ExactSum;
 use crate::value::{Dist, Size, empirical};
 
 type Result<T> = std::result::Result<T, FunctionError>;
@@ -62,6 +65,50 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         imp: Imp::Aggregate(AggregateImp::of::<DistEmpiricalState>()),
     },
     FunctionDef {
+        name: "dist_series",
+        kind: Kind::Aggregate,
+        returns: Returns::Blob,
+        arities: &[2],
+        signature: "dist_series(x, t)",
+        summary: "the empirical distribution of x, as dist_empirical, plus an effective sample size n_eff from the readings in the order of t",
+        help: "Builds the same distribution as dist_empirical(x) (every dist_ function takes \
+               it) and estimates from the readings in time order (t ascending, ties in t \
+               broken by x) how many independent readings they are worth: n_eff = n / tau, \
+               tau the integrated autocorrelation time of the indicators 1{x <= q} at the \
+               nine deciles q, each cut by Geyer's (1992) initial monotone sequence window \
+               (at most 1000 lags) and averaged with weights p(1 - p), clamped to [1, n] \
+               (docs: src/stats/series.rs). dist_ks, dist_distance and dist_band then use \
+               n_eff in place of n. Limits: it assumes the series is stationary (a trend or \
+               a level shift inside the group reads as strong dependence, small n_eff); \
+               readings should be evenly spaced in t (only their order is used); short \
+               series (a few hundred readings) give noisy n_eff; fewer than 8 readings or \
+               no spread give n_eff = n. t is a number (for text timestamps use \
+               unixepoch(ts) or julianday(ts)). NULL x or NULL t skips the row; an empty \
+               group gives NULL. Errors: non-numeric x or t, an infinite x or t.",
+        example: "WITH RECURSIVE r(i) AS (SELECT 1 UNION ALL SELECT i + 1 FROM r WHERE i < 20) \
+                  SELECT dist_n_eff(dist_series(i % 2, i)) FROM r",
+        example_result: "20.0",
+        imp: Imp::Aggregate(AggregateImp::of::<DistSeriesState>()),
+    },
+    FunctionDef {
+        name: "dist_n_eff",
+        kind: Kind::Scalar,
+        returns: Returns::Real,
+        arities: &[1],
+        signature: "dist_n_eff(d)",
+        summary: "effective sample size of d: n_eff of a dist_series value, n (the total weight) of a dist_empirical one",
+        help: "The effective sample size that dist_ks, dist_distance and dist_band use: for a \
+               value from dist_series the n_eff estimated from its readings' serial \
+               dependence (see dist_series), for a merged one the sum of its parts' n_eff; \
+               for a value from dist_empirical its n (the total weight when weighted), as a \
+               REAL. NULL for a model (not a sample) and for a censored estimate (its \
+               sampling error is that of the Kaplan-Meier or Turnbull estimate, which no \
+               single size describes; dist_band gives Greenwood's interval), and for NULL d.",
+        example: "SELECT dist_n_eff(dist_empirical(column1)) FROM (VALUES (1), (2), (4))",
+        example_result: "3.0",
+        imp: Imp::Scalar(n_eff),
+    },
+    FunctionDef {
         name: "dist_merge",
         kind: Kind::Aggregate,
         returns: Returns::Blob,
@@ -72,8 +119,12 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                same BLOB, bit for bit, as dist_empirical over all their rows at once, so \
                per-day or per-shard values can be rolled up without the raw data. Merging \
                a weighted with an unweighted distribution gives each unweighted value weight \
-               1. NULL d is skipped. Errors: d not a distribution BLOB, or a model (a model \
-               is not a set of values; fit the merged values instead).",
+               1. Merging values from dist_series gives a series value whose n_eff is the \
+               sum of the parts' (a plain part counts its n): right when the parts are \
+               independent series (different trailers, or days far enough apart), and \
+               conservative when they are pieces of one series cut apart. NULL d is \
+               skipped. Errors: d not a distribution BLOB, or a model (a model is not a \
+               set of values; fit the merged values instead).",
         example: "WITH days(d) AS (SELECT dist_empirical(column1) FROM (VALUES (1), (2)) \
                   UNION ALL SELECT dist_empirical(column1) FROM (VALUES (3))) \
                   SELECT dist_quantile(dist_merge(d), 0.5) FROM days",
@@ -214,7 +265,9 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         help: "The Dvoretzky-Kiefer-Wolfowitz band with Massart's constant: the ECDF at t \
                plus and minus sqrt(ln(2/alpha) / (2n)), clipped to [0, 1]. The band holds the \
                true cdf at every t at once with probability at least 1 - alpha (for \
-               continuous data; n is the total weight when weighted). For a Kaplan-Meier or \
+               continuous data; n is the total weight when weighted). For a value from \
+               dist_series n_eff takes the place of n (an approximation: DKW's bound is \
+               proven for independent readings) and the JSON adds n_eff. For a Kaplan-Meier or \
                mirrored estimate (dist_censored) it is instead Greenwood's (1926) POINTWISE \
                1 - alpha interval for the cdf at t, on the log-log scale (S^exp(+-z se / \
                (S |ln S|)), S the Kaplan-Meier survival, for the mirror its cdf), with the \
@@ -314,7 +367,7 @@ pub(crate) fn empirical<'a>(
     instead: &'static str,
 ) -> std::result::Result<&'a Sample, ArgError> {
     match d {
-        Dist::Empirical(s) => Ok(s),
+        Dist::Empirical(s) | Dist::Series(s, _) => Ok(s),
         Dist::Model(_) => Err(ArgError::NeedsEmpirical {
             arg,
             got: d.kind(),
@@ -439,6 +492,10 @@ fn size(call: &mut Call<'_>) -> Result<Out> {
     })
 }
 
+fn n_eff(call: &mut Call<'_>) -> Result<Out> {
+    Ok(Out::real(call.dist(0)?.and_then(|d| d.n_eff())))
+}
+
 fn mean(call: &mut Call<'_>) -> Result<Out> {
     Ok(Out::real(call.dist(0)?.and_then(|d| d.mean())))
 }
@@ -494,6 +551,12 @@ fn band(call: &mut Call<'_>) -> Result<Out> {
     let Some(f) = s.cdf(t) else {
         return Ok(Out::Null);
     };
+    if let Dist::Series(_, n_eff) = &*d {
+        let b = dkw_band(f, *n_eff, alpha).map_err(|e| fail(NAME, e))?;
+        return Ok(Out::Text(
+            json!({"lower": b.lower, "upper": b.upper, "n_eff": n_eff}).to_string(),
+        ));
+    }
     let b = dkw_band(f, s.total_weight(), alpha).map_err(|e| fail(NAME, e))?;
     Ok(Out::Text(
         json!({"lower": b.lower, "upper": b.upper}).to_string(),
@@ -508,6 +571,10 @@ fn band(call: &mut Call<'_>) -> Result<Out> {
 #[derive(Debug)]
 pub struct BuilderState<K> {
     b: Option<SampleBuilder>,
+    /// `dist_merge`: the exact sum of the parts' effective sizes (a plain part's total
+    /// weight), and whether any part was a series value.
+    n_eff: ExactSum,
+    series: bool,
     kind: std::marker::PhantomData<K>,
 }
 
@@ -515,9 +582,17 @@ impl<K> Default for BuilderState<K> {
     fn default() -> Self {
         BuilderState {
             b: None,
+            n_eff: ExactSum::default(),
+            series: false,
             kind: std::marker::PhantomData,
         }
     }
+}
+
+/// A merged value's effective size: the parts' sum, kept within
+/// `[min(1, total weight), total weight]` (rounding may carry the sum just past the total).
+fn merged_n_eff(sum: f64, total: f64) -> f64 {
+    sum.min(total).max(total.min(1.0))
 }
 
 /// How a row adds to a [`BuilderState`].
@@ -528,17 +603,29 @@ pub trait BuildRow: Send + Sync + 'static {
     ///
     /// # Errors
     /// The function's argument errors.
-    fn step(b: &mut Option<SampleBuilder>, args: &Args<'_>) -> Result<()>;
+    fn step(b: &mut Option<SampleBuilder>, n_eff: &mut NEff<'_>, args: &Args<'_>) -> Result<()>;
+}
+
+/// Where a row of `dist_merge` adds its effective size.
+pub struct NEff<'a> {
+    sum: &'a mut ExactSum,
+    series: &'a mut bool,
 }
 
 impl<K: BuildRow> State for BuilderState<K> {
     const NAME: &'static str = K::NAME;
 
     fn step(&mut self, args: &Args<'_>) -> Result<()> {
-        K::step(&mut self.b, args)
+        let mut n_eff = NEff {
+            sum: &mut self.n_eff,
+            series: &mut self.series,
+        };
+        K::step(&mut self.b, &mut n_eff, args)
     }
 
     fn merge(&mut self, other: Self) -> Result<()> {
+        self.series |= other.series;
+        self.n_eff.absorb(&other.n_eff);
         let Some(theirs) = other.b else {
             return Ok(());
         };
@@ -558,6 +645,9 @@ impl<K: BuildRow> State for BuilderState<K> {
         let s = b.finish().map_err(|e| fail(K::NAME, e))?;
         Ok(if s.is_empty() {
             Out::Null
+        } else if self.series {
+            let n_eff = merged_n_eff(self.n_eff.value(), s.total_weight());
+            Out::Blob(empirical::encode_series(&s, n_eff))
         } else {
             Out::Blob(empirical::encode(&s))
         })
@@ -565,7 +655,8 @@ impl<K: BuildRow> State for BuilderState<K> {
 
     /// The saved form: a flag for "weighted" (a builder of `dist_empirical(x, w)` whose
     /// rows all had zero weight holds nothing, yet stays weighted), then the existing BLOB
-    /// (docs/empirical-blob.md) of what the part holds.
+    /// (docs/empirical-blob.md) of what the part holds; then whether a series part was
+    /// seen and the exact sum of the parts' effective sizes.
     fn save(&self, w: &mut Writer) {
         match &self.b {
             None => w.u8(0),
@@ -575,21 +666,27 @@ impl<K: BuildRow> State for BuilderState<K> {
                 w.opt_bytes(blob.as_ref().map(empirical::encode).as_deref());
             }
         }
+        w.bool(self.series);
+        save_exact(w, &self.n_eff);
     }
 
     fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
         let tag = r.u8()?;
         let mut state = Self::default();
-        if tag == 0 {
-            return Ok(state);
+        if tag > 2 {
+            return Err(ArgError::BadState(format!("a builder tag {tag}")));
         }
-        let mut b = SampleBuilder::new(tag == 2);
-        if let Some(bytes) = r.opt_bytes()? {
-            let s = empirical::decode(bytes)
-                .map_err(|e| ArgError::BadState(format!("its distribution BLOB: {e}")))?;
-            b.extend(&s);
+        if tag != 0 {
+            let mut b = SampleBuilder::new(tag == 2);
+            if let Some(bytes) = r.opt_bytes()? {
+                let s = empirical::decode(bytes)
+                    .map_err(|e| ArgError::BadState(format!("its distribution BLOB: {e}")))?;
+                b.extend(&s);
+            }
+            state.b = Some(b);
         }
-        state.b = Some(b);
+        state.series = r.bool()?;
+        state.n_eff = load_exact(r)?;
         Ok(state)
     }
 }
@@ -601,7 +698,7 @@ pub struct FromRows;
 impl BuildRow for FromRows {
     const NAME: &'static str = "dist_empirical";
 
-    fn step(b: &mut Option<SampleBuilder>, args: &Args<'_>) -> Result<()> {
+    fn step(b: &mut Option<SampleBuilder>, _: &mut NEff<'_>, args: &Args<'_>) -> Result<()> {
         let weighted = args.len() > 1;
         let b = b.get_or_insert_with(|| SampleBuilder::new(weighted));
         let mut go = || -> std::result::Result<(), ArgError> {
@@ -630,7 +727,7 @@ pub struct FromDists;
 impl BuildRow for FromDists {
     const NAME: &'static str = "dist_merge";
 
-    fn step(b: &mut Option<SampleBuilder>, args: &Args<'_>) -> Result<()> {
+    fn step(b: &mut Option<SampleBuilder>, n_eff: &mut NEff<'_>, args: &Args<'_>) -> Result<()> {
         let b = b.get_or_insert_with(|| SampleBuilder::new(false));
         let row = [args.get(0)];
         let mut memo = NoMemo;
@@ -643,6 +740,9 @@ impl BuildRow for FromDists {
             "only samples merge: fit a model to the merged values instead",
         )
         .map_err(|e| fail(Self::NAME, e))?;
+        *n_eff.series |= matches!(&*d, Dist::Series(..));
+        let part = d.n_eff().unwrap_or(s.total_weight());
+        n_eff.sum.add(part).map_err(|e| fail(Self::NAME, e))?;
         b.extend(s);
         Ok(())
     }
@@ -653,6 +753,85 @@ pub type DistEmpiricalState = BuilderState<FromRows>;
 
 /// State of `dist_merge(d)`.
 pub type DistMergeState = BuilderState<FromDists>;
+
+/// State of `dist_series(x, t)`: the readings as (t, x) pairs, in arrival order until
+/// `finalize` sorts them by t (ties by x), so the answer never depends on row order.
+#[derive(Debug, Default)]
+pub struct DistSeriesState {
+    t: Vec<f64>,
+    x: Vec<f64>,
+}
+
+impl State for DistSeriesState {
+    const NAME: &'static str = "dist_series";
+
+    fn step(&mut self, args: &Args<'_>) -> Result<()> {
+        let mut go = || -> std::result::Result<(), ArgError> {
+            let x = number(args.get(0), "x")?;
+            let t = number(args.get(1), "t")?;
+            let (Some(x), Some(t)) = (x, t) else {
+                return Ok(());
+            };
+            series::check_reading(x)?;
+            series::check_time(t)?;
+            push(&mut self.t, t)?;
+            if let Err(e) = push(&mut self.x, x) {
+                self.t.pop();
+                return Err(e);
+            }
+            Ok(())
+        };
+        go().map_err(|e| fail(Self::NAME, e))
+    }
+
+    fn merge(&mut self, other: Self) -> Result<()> {
+        try_extend(&mut self.t, &other.t).map_err(|e| fail(Self::NAME, e))?;
+        try_extend(&mut self.x, &other.x).map_err(|e| {
+            self.t.truncate(self.x.len());
+            fail(Self::NAME, e)
+        })
+    }
+
+    fn finalize(&mut self) -> Result<Out> {
+        if self.x.is_empty() {
+            return Ok(Out::Null);
+        }
+        let mut pairs: Vec<(f64, f64)> = Vec::new();
+        pairs
+            .try_reserve_exact(self.x.len())
+            .map_err(|_| fail(Self::NAME, ArgError::OutOfMemory { held: self.x.len() }))?;
+        pairs.extend(self.t.iter().copied().zip(self.x.iter().copied()));
+        pairs.sort_by(series::time_order);
+        let in_order: Vec<f64> = pairs.iter().map(|p| p.1).collect();
+        let sample = Sample::from_values(in_order.clone()).map_err(|e| fail(Self::NAME, e))?;
+        let e =
+            series::effective_size(&in_order, sample.values()).map_err(|e| fail(Self::NAME, e))?;
+        Ok(Out::Blob(empirical::encode_series(&sample, e.n_eff)))
+    }
+
+    /// The saved form: the times, then the readings, each as f64s, in arrival order.
+    fn save(&self, w: &mut Writer) {
+        w.f64s(&self.t);
+        w.f64s(&self.x);
+    }
+
+    fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        let t = r.f64s()?;
+        let x = r.f64s()?;
+        if t.len() != x.len() {
+            return Err(ArgError::BadState(format!(
+                "{} times for {} readings",
+                t.len(),
+                x.len()
+            )));
+        }
+        for (&t, &x) in t.iter().zip(&x) {
+            series::check_time(t)?;
+            series::check_reading(x)?;
+        }
+        Ok(DistSeriesState { t, x })
+    }
+}
 
 // ---------------------------------------------------------------------------------------
 // Table-valued functions

@@ -182,10 +182,12 @@ impl<'a> Call<'a> {
         };
         match &*d {
             Dist::Model(_) => Ok(Some(d)),
-            Dist::Empirical(_) | Dist::Censored(_) => Err(self.fail(ArgError::NeedsModel {
-                arg: i + 1,
-                got: d.kind(),
-            })),
+            Dist::Empirical(_) | Dist::Series(..) | Dist::Censored(_) => {
+                Err(self.fail(ArgError::NeedsModel {
+                    arg: i + 1,
+                    got: d.kind(),
+                }))
+            }
         }
     }
 
@@ -207,7 +209,7 @@ impl<'a> Call<'a> {
 pub fn model_of(d: &Dist) -> Option<&Model> {
     match d {
         Dist::Model(m) => Some(m),
-        Dist::Empirical(_) | Dist::Censored(_) => None,
+        Dist::Empirical(_) | Dist::Series(..) | Dist::Censored(_) => None,
     }
 }
 

@@ -266,7 +266,7 @@ fn load_boxed<S: State>(bytes: &[u8]) -> Result<Box<dyn Aggregator>, FunctionErr
 /// The first four bytes of a saved state.
 pub const STATE_MAGIC: [u8; 4] = [0x89, b'O', b'G', b'S'];
 /// The version of the saved form this build writes and reads.
-pub const STATE_VERSION: u8 = 2;
+pub const STATE_VERSION: u8 = 3;
 
 /// Writes a saved state: the header, then fields in the order the state's `save` puts
 /// them, all little-endian.

@@ -19,6 +19,12 @@
 //! say, the checksum must match (a change to any single 8-byte word is always caught),
 //! the values must be in order, and the stored total weight must equal the one
 //! recomputed from the values and weights, bit for bit.
+//!
+//! Version 3, kind 3 is the same value from a series (`dist_series`): the same header with
+//! version 3 and kind 3, one more word at offset 32, the effective sample size n_eff
+//! (f64, `0 < n_eff <= total weight`, at least `min(1, total weight)`), then the values
+//! (and weights) from offset 40. [`encode_series`] and [`decode_series`] read and write it;
+//! version 1 is written and read exactly as before.
 
 use std::fmt;
 
@@ -32,6 +38,12 @@ pub const MAGIC: [u8; 4] = [0x89, b'O', b'G', b'V'];
 pub const VERSION: u8 = 1;
 /// The kind byte of an empirical distribution.
 pub const KIND_EMPIRICAL: u8 = 1;
+/// The format version of an empirical distribution that carries an effective size.
+pub const VERSION_SERIES: u8 = 3;
+/// The kind byte of an empirical distribution of a series.
+pub const KIND_SERIES: u8 = 3;
+/// The header of a series value: the version-1 header and n_eff.
+pub const SERIES_HEADER_LEN: usize = 40;
 /// Flag bit: the BLOB carries weights.
 pub const FLAG_WEIGHTED: u16 = 1;
 /// The size of the header in bytes.
@@ -66,6 +78,9 @@ pub enum BlobError {
     Readings(crate::stats::censored::CensoredError),
     /// A censored estimate whose stored estimate is not the one its readings give.
     EstimateMismatch,
+    /// A series value whose effective size is not finite, not positive, above the total
+    /// weight, or below `min(1, total weight)`.
+    BadEffectiveSize { n_eff: f64, total: f64 },
 }
 
 impl fmt::Display for BlobError {
@@ -75,8 +90,8 @@ impl fmt::Display for BlobError {
             BlobError::WrongVersion(v) => {
                 write!(
                     f,
-                    "format version {v}; this ogive reads versions {VERSION} (empirical) and 2 \
-                     (censored)"
+                    "format version {v}; this ogive reads versions {VERSION} (empirical), 2 \
+                     (censored) and 3 (series)"
                 )
             }
             BlobError::UnknownFlags(flags) => write!(f, "unknown flags {flags:#06x}"),
@@ -109,6 +124,11 @@ impl fmt::Display for BlobError {
                 f,
                 "the stored estimate is not the one its readings give: the BLOB was changed \
                  after dist_censored wrote it"
+            ),
+            BlobError::BadEffectiveSize { n_eff, total } => write!(
+                f,
+                "its effective size {n_eff} is not between min(1, total weight) and the total \
+                 weight {total}"
             ),
         }
     }
@@ -168,17 +188,52 @@ pub fn checksum(bytes: &[u8]) -> u64 {
 /// assert_eq!(decode(&blob).unwrap(), s);
 /// ```
 pub fn encode(s: &Sample) -> Vec<u8> {
+    write(s, None)
+}
+
+/// Writes a sample of a series with its effective size as a version-3 BLOB (kind 3). The
+/// caller keeps `n_eff` within `[min(1, total weight), total weight]`, which
+/// [`decode_series`] checks.
+///
+/// # Example
+/// ```
+/// use ogive::value::empirical::{decode_series, encode_series, SERIES_HEADER_LEN};
+/// use ogive::stats::sample::Sample;
+/// let s = Sample::from_values(vec![2.0, 1.0, 4.0]).unwrap();
+/// let blob = encode_series(&s, 1.5);
+/// assert_eq!(blob.len(), SERIES_HEADER_LEN + 3 * 8);
+/// assert_eq!(decode_series(&blob).unwrap(), (s, 1.5));
+/// ```
+pub fn encode_series(s: &Sample, n_eff: f64) -> Vec<u8> {
+    write(s, Some(n_eff))
+}
+
+/// Writes version 1, or version 3 when an effective size is given.
+fn write(s: &Sample, n_eff: Option<f64>) -> Vec<u8> {
     let weights = s.weights();
     let n = s.len();
-    let mut out = Vec::with_capacity(HEADER_LEN + 8 * n * (1 + usize::from(weights.is_some())));
+    let header = if n_eff.is_some() {
+        SERIES_HEADER_LEN
+    } else {
+        HEADER_LEN
+    };
+    let mut out = Vec::with_capacity(header + 8 * n * (1 + usize::from(weights.is_some())));
     out.extend_from_slice(&MAGIC);
-    out.push(VERSION);
-    out.push(KIND_EMPIRICAL);
+    if n_eff.is_some() {
+        out.push(VERSION_SERIES);
+        out.push(KIND_SERIES);
+    } else {
+        out.push(VERSION);
+        out.push(KIND_EMPIRICAL);
+    }
     let flags = if weights.is_some() { FLAG_WEIGHTED } else { 0 };
     out.extend_from_slice(&flags.to_le_bytes());
     out.extend_from_slice(&(n as u64).to_le_bytes());
     out.extend_from_slice(&s.total_weight().to_le_bytes());
     out.extend_from_slice(&[0; 8]);
+    if let Some(e) = n_eff {
+        out.extend_from_slice(&e.to_le_bytes());
+    }
     for &x in s.values() {
         out.extend_from_slice(&x.to_le_bytes());
     }
@@ -217,13 +272,40 @@ fn floats(bytes: &[u8], at: usize, count: usize) -> Vec<f64> {
 /// assert_eq!(decode(b"not a distribution"), Err(BlobError::BadHeader));
 /// ```
 pub fn decode(bytes: &[u8]) -> Result<Sample, BlobError> {
+    read(bytes, false).map(|(s, _)| s)
+}
+
+/// Reads and checks a version-3 BLOB: an empirical distribution of a series and its
+/// effective size.
+///
+/// # Errors
+/// As [`decode`], and [`BlobError::BadEffectiveSize`] for an effective size out of range.
+///
+/// # Example
+/// ```
+/// use ogive::value::empirical::{decode_series, encode, BlobError};
+/// use ogive::stats::sample::Sample;
+/// let plain = encode(&Sample::from_values(vec![1.0]).unwrap());
+/// assert_eq!(decode_series(&plain), Err(BlobError::WrongVersion(1)));
+/// ```
+pub fn decode_series(bytes: &[u8]) -> Result<(Sample, f64), BlobError> {
+    read(bytes, true).map(|(s, e)| (s, e.unwrap_or(f64::NAN)))
+}
+
+/// Reads version 1 (`series` false) or version 3.
+fn read(bytes: &[u8], series: bool) -> Result<(Sample, Option<f64>), BlobError> {
+    let (version, kind, header) = if series {
+        (VERSION_SERIES, KIND_SERIES, SERIES_HEADER_LEN)
+    } else {
+        (VERSION, KIND_EMPIRICAL, HEADER_LEN)
+    };
     if bytes.len() < HEADER_LEN || !looks_like_ogive(bytes) {
         return Err(BlobError::BadHeader);
     }
-    if bytes[4] != VERSION {
+    if bytes[4] != version {
         return Err(BlobError::WrongVersion(bytes[4]));
     }
-    if bytes[5] != KIND_EMPIRICAL {
+    if bytes[5] != kind {
         return Err(BlobError::BadHeader);
     }
     let flags = u16::from_le_bytes([bytes[6], bytes[7]]);
@@ -237,7 +319,7 @@ pub fn decode(bytes: &[u8]) -> Result<Sample, BlobError> {
         return Err(BlobError::Empty);
     }
     let per_value: u128 = if weighted { 16 } else { 8 };
-    let expected = HEADER_LEN as u128 + per_value * u128::from(n);
+    let expected = header as u128 + per_value * u128::from(n);
     if expected != bytes.len() as u128 {
         return Err(BlobError::LengthMismatch {
             n,
@@ -250,8 +332,8 @@ pub fn decode(bytes: &[u8]) -> Result<Sample, BlobError> {
     }
     // The length matched a real slice, so n fits in usize.
     let n = n as usize;
-    let values = floats(bytes, HEADER_LEN, n);
-    let weights = weighted.then(|| floats(bytes, HEADER_LEN + 8 * n, n));
+    let values = floats(bytes, header, n);
+    let weights = weighted.then(|| floats(bytes, header + 8 * n, n));
     let sample = Sample::from_sorted(values, weights).map_err(BlobError::Parts)?;
     let computed = sample.total_weight();
     if computed.to_bits() != stored_total.to_bits() {
@@ -260,7 +342,17 @@ pub fn decode(bytes: &[u8]) -> Result<Sample, BlobError> {
             computed,
         });
     }
-    Ok(sample)
+    if !series {
+        return Ok((sample, None));
+    }
+    let n_eff = f64::from_le_bytes(word(bytes, HEADER_LEN));
+    if !(n_eff > 0.0 && n_eff <= computed && n_eff >= computed.min(1.0)) {
+        return Err(BlobError::BadEffectiveSize {
+            n_eff,
+            total: computed,
+        });
+    }
+    Ok((sample, Some(n_eff)))
 }
 
 #[cfg(test)]
@@ -359,6 +451,39 @@ mod tests {
             let mut b = good.clone();
             b[bit / 8] ^= 1 << (bit % 8);
             assert!(decode(&b).is_err(), "bit {bit}");
+        }
+    }
+
+    #[test]
+    fn series_blobs_round_trip_and_are_checked() {
+        let s = Sample::from_values(vec![3.0, -1.0, 2.0]).unwrap();
+        let b = encode_series(&s, 2.25);
+        // Layout by hand: version 3, kind 3, the version-1 header words, n_eff at 32.
+        assert_eq!(&b[..8], &[0x89, b'O', b'G', b'V', 3, 3, 0, 0]);
+        assert_eq!(&b[16..24], &3.0f64.to_le_bytes());
+        assert_eq!(&b[32..40], &2.25f64.to_le_bytes());
+        assert_eq!(&b[40..48], &(-1.0f64).to_le_bytes());
+        assert_eq!(decode_series(&b), Ok((s.clone(), 2.25)));
+        assert_eq!(decode(&b), Err(BlobError::WrongVersion(3)));
+        let with = |n_eff: f64| {
+            let mut c = b.clone();
+            c[32..40].copy_from_slice(&n_eff.to_le_bytes());
+            decode_series(&reseal(c))
+        };
+        for bad in [0.0, 0.5, 3.5, f64::NAN, f64::INFINITY, -1.0] {
+            assert!(
+                matches!(with(bad), Err(BlobError::BadEffectiveSize { .. })),
+                "{bad}"
+            );
+        }
+        assert_eq!(with(1.0), Ok((s.clone(), 1.0)));
+        // Weighted, total below 1: n_eff may be the total.
+        let w = Sample::from_pairs(vec![(1.0, 0.25), (2.0, 0.5)]).unwrap();
+        assert_eq!(decode_series(&encode_series(&w, 0.75)), Ok((w, 0.75)));
+        for bit in 0..b.len() * 8 {
+            let mut c = b.clone();
+            c[bit / 8] ^= 1 << (bit % 8);
+            assert!(decode_series(&c).is_err(), "bit {bit}");
         }
     }
 }

@@ -57,6 +57,10 @@ pub enum Dist {
     /// A nonparametric maximum-likelihood estimate from censored readings
     /// (`dist_censored`): Kaplan-Meier, its mirror, or Turnbull's.
     Censored(Censored),
+    /// An empirical distribution of a series of readings (`dist_series`), with its
+    /// effective sample size: the same distribution as [`Dist::Empirical`], answering
+    /// every question the same way, plus the n_eff that the tests and the band use.
+    Series(Sample, f64),
 }
 
 /// Why a SQL value is not a usable distribution. The adapters add the function name.
@@ -131,6 +135,11 @@ impl Dist {
     /// assert!(e.to_string().starts_with("argument 1 is not an empirical distribution (bad header)"));
     /// ```
     pub fn from_blob(b: &[u8], arg: usize) -> Result<Dist, ValueError> {
+        if b.len() > 4 && empirical::looks_like_ogive(b) && b[4] == empirical::VERSION_SERIES {
+            return empirical::decode_series(b)
+                .map(|(s, n_eff)| Dist::Series(s, n_eff))
+                .map_err(|problem| ValueError::BadBlob { arg, problem });
+        }
         if b.len() > 4 && empirical::looks_like_ogive(b) && b[4] == censored::VERSION {
             return censored::decode(b)
                 .map(Dist::Censored)
@@ -182,6 +191,7 @@ impl Dist {
     pub fn kind(&self) -> String {
         match self {
             Dist::Empirical(_) => "an empirical distribution".to_string(),
+            Dist::Series(..) => "an empirical distribution of a series".to_string(),
             Dist::Model(m) => m.kind(),
             Dist::Censored(c) => match c.method() {
                 Method::KaplanMeier => "a Kaplan-Meier estimate".to_string(),
@@ -202,7 +212,7 @@ impl Dist {
     /// ```
     pub fn cdf(&self, t: f64) -> Option<f64> {
         match self {
-            Dist::Empirical(s) => s.cdf(t),
+            Dist::Empirical(s) | Dist::Series(s, _) => s.cdf(t),
             Dist::Model(m) => Some(m.cdf(t)).filter(|c| !c.is_nan()),
             Dist::Censored(c) => c.cdf(t),
         }
@@ -230,7 +240,7 @@ impl Dist {
     /// ```
     pub fn quantile(&self, p: f64, ty: QuantileType) -> Result<Option<f64>, StatsError> {
         match self {
-            Dist::Empirical(s) => s.quantile(p, ty),
+            Dist::Empirical(s) | Dist::Series(s, _) => s.quantile(p, ty),
             Dist::Model(m) => {
                 let p = crate::stats::check_probability(p)?;
                 // With p checked, a model's quantile cannot fail.
@@ -255,7 +265,7 @@ impl Dist {
     /// ```
     pub fn density(&self, bandwidth: Bandwidth) -> Option<Density<'_>> {
         match self {
-            Dist::Empirical(s) => Kde::new(s, bandwidth).map(Density::Kernel),
+            Dist::Empirical(s) | Dist::Series(s, _) => Kde::new(s, bandwidth).map(Density::Kernel),
             Dist::Model(m) => Some(Density::Model(m)),
             Dist::Censored(_) => None,
         }
@@ -275,10 +285,33 @@ impl Dist {
     /// ```
     pub fn size(&self) -> Option<Size> {
         match self {
-            Dist::Empirical(s) if s.is_weighted() => Some(Size::Weight(s.total_weight())),
-            Dist::Empirical(s) => Some(Size::Count(s.len() as u64)),
+            Dist::Empirical(s) | Dist::Series(s, _) if s.is_weighted() => {
+                Some(Size::Weight(s.total_weight()))
+            }
+            Dist::Empirical(s) | Dist::Series(s, _) => Some(Size::Count(s.len() as u64)),
             Dist::Model(m) => m.n().map(Size::Count),
             Dist::Censored(c) => Some(Size::Count(c.n())),
+        }
+    }
+
+    /// The effective sample size: a series value's n_eff (`dist_series`), the total weight
+    /// (n when unweighted) of a plain empirical distribution; `None` for a model (not a
+    /// sample) and for a censored estimate (its sampling error is that of the
+    /// Kaplan-Meier or Turnbull estimate, which no single size describes; its band is
+    /// Greenwood's).
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::sample::Sample, value::Dist};
+    /// let s = Sample::from_values(vec![1.0, 2.0, 3.0]).unwrap();
+    /// assert_eq!(Dist::Empirical(s.clone()).n_eff(), Some(3.0));
+    /// assert_eq!(Dist::Series(s, 1.5).n_eff(), Some(1.5));
+    /// ```
+    pub fn n_eff(&self) -> Option<f64> {
+        match self {
+            Dist::Empirical(s) => Some(s.total_weight()),
+            Dist::Series(_, n_eff) => Some(*n_eff),
+            Dist::Model(_) | Dist::Censored(_) => None,
         }
     }
 
@@ -293,7 +326,9 @@ impl Dist {
     /// ```
     pub fn mean(&self) -> Option<f64> {
         match self {
-            Dist::Empirical(s) => Moments::of(s.values(), s.weights()).map(|m| m.mean),
+            Dist::Empirical(s) | Dist::Series(s, _) => {
+                Moments::of(s.values(), s.weights()).map(|m| m.mean)
+            }
             Dist::Model(m) => m.mean(),
             Dist::Censored(_) => None,
         }
@@ -311,7 +346,9 @@ impl Dist {
     /// ```
     pub fn sd(&self) -> Option<f64> {
         match self {
-            Dist::Empirical(s) => Moments::of(s.values(), s.weights())?.sample_sd(),
+            Dist::Empirical(s) | Dist::Series(s, _) => {
+                Moments::of(s.values(), s.weights())?.sample_sd()
+            }
             Dist::Model(m) => m.sd(),
             Dist::Censored(_) => None,
         }
@@ -329,7 +366,7 @@ impl Dist {
     /// ```
     pub fn profile(&self) -> Option<Profile> {
         match self {
-            Dist::Empirical(s) => s.profile(),
+            Dist::Empirical(s) | Dist::Series(s, _) => s.profile(),
             Dist::Model(_) | Dist::Censored(_) => None,
         }
     }
@@ -385,6 +422,9 @@ mod tests {
         };
         assert_eq!(s.values(), &[1.5, 4.0]);
         assert_eq!(empirical::encode(&s), b);
+        // A series BLOB (version 3) reads as a series value with its n_eff.
+        let v3 = empirical::encode_series(&s, 1.25);
+        assert_eq!(Dist::from_blob(&v3, 1), Ok(Dist::Series(s.clone(), 1.25)));
         // A censored BLOB reads as a censored estimate; a damaged one names its kind.
         let e = crate::stats::censored::Censored::from_readings(&[(
             1.0,

@@ -513,8 +513,9 @@ def good_blob(conn):
         (lambda b: b"\x00\xff", "(bad header)"),
         (lambda b: b"\x89PNG\r\n\x1a\n" + b"\0" * 40, "(bad header)"),
         (
-            lambda b: b[:4] + b"\x03" + b[5:],
-            "(format version 3; this ogive reads versions 1 (empirical) and 2 (censored))",
+            lambda b: b[:4] + b"\x04" + b[5:],
+            "(format version 4; this ogive reads versions 1 (empirical), 2 (censored) and 3 "
+            "(series))",
         ),
         (lambda b: b[:40] + struct.pack("<d", 2.5) + b[48:], "(checksum mismatch"),
         (lambda b: write_empirical([1.0, 3.0, 2.0]), "(values are not sorted (at value 2))"),
