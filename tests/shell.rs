@@ -10,7 +10,8 @@
 //! file byte-for-byte unchanged, a failed import writes nothing, the demo's plots render
 //! to PNG (rsvg-convert), Ctrl-C ends a batch run with status 130, and a session at the
 //! prompt in a pseudo-terminal (tmux) runs a query, cancels one and leaves cleanly, and the
-//! README's "Which model fits?" example prints its rows on the demo database.
+//! README's "Which model fits?" and series-aware drift examples print their rows on the
+//! demo database.
 
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
@@ -693,12 +694,14 @@ fn demo_prints_its_tables_and_its_plots_render() {
     }
 }
 
-/// The README's "Which model fits?" example runs as printed on the demo database and prints
-/// the rows the README shows: its SQL blocks are run with `ogive run --format markdown` and
-/// every table line of the output must equal the README's, in order.
+/// The README's examples on the demo database ("Which model fits?" and the series-aware
+/// drift question) run as printed and print the rows the README shows: each section's SQL
+/// blocks are run with `ogive run --format markdown` and every table line of the output
+/// must equal the README's, in order. The drift question's SQL is also the demo's own
+/// (`sql/demo/04_drift_this_week.sql`, its last statement), so the two cannot drift apart.
 #[test]
-fn readme_which_model_fits_prints_its_rows_on_the_demo() {
-    let tmp = TempDir::new("readme-models");
+fn readme_examples_print_their_rows_on_the_demo() {
+    let tmp = TempDir::new("readme-demo");
     let db = tmp.path("fleet.db");
     let out_dir = tmp.path("plots");
     succeed(
@@ -708,33 +711,43 @@ fn readme_which_model_fits_prints_its_rows_on_the_demo() {
             .current_dir(root()),
     );
     let readme = std::fs::read_to_string(root().join("README.md")).unwrap();
-    let section = readme
-        .split("<!-- models-example:start -->")
-        .nth(1)
-        .and_then(|rest| rest.split("<!-- models-example:end -->").next())
-        .expect("the README has the models example");
-    let sql: Vec<&str> = section
-        .split("```sql\n")
-        .skip(1)
-        .filter_map(|block| block.split("```").next())
-        .collect();
-    assert_eq!(sql.len(), 2, "two SQL blocks");
-    let file = tmp.path("readme.sql");
-    std::fs::write(&file, sql.concat()).unwrap();
-    let stdout = succeed(
-        Command::new(BIN)
-            .args(["run", file.to_str().unwrap(), "--db", db.to_str().unwrap()])
-            .args(["--format", "markdown"]),
-    );
     let tables = |text: &str| -> Vec<String> {
         text.lines()
             .filter(|l| l.starts_with('|'))
             .map(str::to_owned)
             .collect()
     };
-    let printed = tables(section);
-    assert_eq!(printed.len(), 2 + 12 + 2 + 1, "{printed:?}");
-    assert_eq!(tables(&stdout), printed);
+    for (marker, blocks, lines) in [("models", 2, 2 + 12 + 2 + 1), ("series", 1, 2 + 12)] {
+        let section = readme
+            .split(&format!("<!-- {marker}-example:start -->"))
+            .nth(1)
+            .and_then(|rest| rest.split(&format!("<!-- {marker}-example:end -->")).next())
+            .unwrap_or_else(|| panic!("the README has the {marker} example"));
+        let sql: Vec<&str> = section
+            .split("```sql\n")
+            .skip(1)
+            .filter_map(|block| block.split("```").next())
+            .collect();
+        assert_eq!(sql.len(), blocks, "{marker}: SQL blocks");
+        if marker == "series" {
+            let demo =
+                std::fs::read_to_string(root().join("sql/demo/04_drift_this_week.sql")).unwrap();
+            assert!(
+                demo.ends_with(sql[0]),
+                "README's series query is the demo's last"
+            );
+        }
+        let file = tmp.path(&format!("{marker}.sql"));
+        std::fs::write(&file, sql.concat()).unwrap();
+        let stdout = succeed(
+            Command::new(BIN)
+                .args(["run", file.to_str().unwrap(), "--db", db.to_str().unwrap()])
+                .args(["--format", "markdown"]),
+        );
+        let printed = tables(section);
+        assert_eq!(printed.len(), lines, "{marker}: {printed:?}");
+        assert_eq!(tables(&stdout), printed, "{marker}");
+    }
 }
 
 #[cfg(unix)]

@@ -90,6 +90,8 @@ pub enum ArgError {
     Censored(CensoredError),
     /// A censored estimate given to a function that does not take one.
     NotForCensored { arg: usize, got: String },
+    /// A time argument that is neither a number nor an ISO-8601 date-time.
+    NotTime { what: &'static str, shown: String },
     /// A bad reading or time of a series (`dist_series`).
     Series(crate::stats::series::SeriesError),
 }
@@ -162,6 +164,12 @@ impl fmt::Display for ArgError {
                  run the same ogive"
             ),
             ArgError::Censored(e) => e.fmt(f),
+            ArgError::NotTime { what, shown } => write!(
+                f,
+                "{what} must be a number or an ISO-8601 date-time TEXT such as \
+                 '2024-09-02 05:00' (a date, then optionally HH:MM[:SS[.fff]] and Z or \
+                 +HH:MM), got {shown}"
+            ),
             ArgError::Series(e) => e.fmt(f),
             ArgError::NotForCensored { arg, got } => write!(
                 f,

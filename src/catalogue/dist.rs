@@ -82,9 +82,12 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                a level shift inside the group reads as strong dependence, small n_eff); \
                readings should be evenly spaced in t (only their order is used); short \
                series (a few hundred readings) give noisy n_eff; fewer than 8 readings or \
-               no spread give n_eff = n. t is a number (for text timestamps use \
-               unixepoch(ts) or julianday(ts)). NULL x or NULL t skips the row; an empty \
-               group gives NULL. Errors: non-numeric x or t, an infinite x or t.",
+               no spread give n_eff = n. t is a number in any unit, or ISO-8601 date-time \
+               TEXT as SQLite's date functions read it ('2024-09-02 05:00', a T instead \
+               of the space, seconds and fractions, Z or +HH:MM: moved to UTC); a time of \
+               day without a date, or a day that does not exist, is refused. NULL x or NULL \
+               t skips the row; an empty group gives NULL. Errors: x not a number, t \
+               neither a number nor such a date-time, an infinite x or t.",
         example: "WITH RECURSIVE r(i) AS (SELECT 1 UNION ALL SELECT i + 1 FROM r WHERE i < 20) \
                   SELECT dist_n_eff(dist_series(i % 2, i)) FROM r",
         example_result: "20.0",
@@ -768,7 +771,7 @@ impl State for DistSeriesState {
     fn step(&mut self, args: &Args<'_>) -> Result<()> {
         let mut go = || -> std::result::Result<(), ArgError> {
             let x = number(args.get(0), "x")?;
-            let t = number(args.get(1), "t")?;
+            let t = super::time::time(args.get(1), "t")?;
             let (Some(x), Some(t)) = (x, t) else {
                 return Ok(());
             };

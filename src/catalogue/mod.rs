@@ -24,6 +24,7 @@ pub mod models;
 pub mod reader;
 pub mod sketch;
 pub mod state;
+pub mod time;
 pub mod value;
 
 use args::FunctionError;
