@@ -645,12 +645,14 @@ pub fn parse_probabilities(s: &str) -> std::result::Result<Vec<f64>, ArgError> {
     let bad = |detail: String| ArgError::BadOption { what: "ps", detail };
     let v: serde_json::Value = serde_json::from_str(s).map_err(|e| {
         bad(format!(
-            "must be a JSON array of probabilities such as '[0.05, 0.5, 0.95]', got '{s}' ({e})"
+            "must be a JSON array of probabilities such as '[0.05, 0.5, 0.95]', got '{}' ({e})",
+            crate::stats::echo(s)
         ))
     })?;
     let arr = v.as_array().ok_or_else(|| {
         bad(format!(
-            "must be a JSON array of probabilities such as '[0.05, 0.5, 0.95]', got '{s}'"
+            "must be a JSON array of probabilities such as '[0.05, 0.5, 0.95]', got '{}'",
+            crate::stats::echo(s)
         ))
     })?;
     arr.iter()

@@ -406,7 +406,10 @@ impl KsMethod {
             .map(KsMethod::Ks)
             .map_err(|_| ArgError::BadOption {
                 what: "method",
-                detail: format!("must be 'auto', 'exact', 'asymp' or 'lilliefors', got '{s}'"),
+                detail: format!(
+                    "must be 'auto', 'exact', 'asymp' or 'lilliefors', got '{}'",
+                    crate::stats::echo(s)
+                ),
             })
     }
 }
@@ -873,7 +876,10 @@ impl Metric {
             "ad" => Ok(Metric::Ad),
             _ => Err(ArgError::BadOption {
                 what: "metric",
-                detail: format!("must be 'ks', 'wasserstein', 'cvm' or 'ad', got '{s}'"),
+                detail: format!(
+                    "must be 'ks', 'wasserstein', 'cvm' or 'ad', got '{}'",
+                    crate::stats::echo(s)
+                ),
             }),
         }
     }

@@ -213,7 +213,8 @@ impl fmt::Display for FitError {
         match self {
             FitError::UnknownFamily(name) => write!(
                 f,
-                "unknown family '{name}'; supported: {} (for a Gaussian mixture use dist_mixture)",
+                "unknown family '{}'; supported: {} (for a Gaussian mixture use dist_mixture)",
+                crate::stats::echo(name),
                 Family::names()
             ),
             FitError::TooFewPoints { family, need, got } => {
