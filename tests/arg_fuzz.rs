@@ -5,7 +5,8 @@
 //! every other answer must lie in its row's documented range (`FunctionDef::range`).
 //!
 //! A failure prints the case's seed and the failing call; `OGIVE_ARG_FUZZ_CASES=N` runs
-//! more cases (the default keeps a debug build well under 30 s).
+//! more cases (the default keeps a debug build well under 30 s), `OGIVE_ARG_FUZZ_FROM=S`
+//! starts at seed S (`OGIVE_ARG_FUZZ_FROM=S OGIVE_ARG_FUZZ_CASES=1` replays one case).
 
 #[path = "../fuzz/common/arg_calls.rs"]
 mod arg_calls;
@@ -31,9 +32,13 @@ fn seeded_random_calls_answer_in_range_or_name_the_function() {
         .ok()
         .and_then(|v| v.parse().ok())
         .unwrap_or(10_000);
+    let from: u64 = std::env::var("OGIVE_ARG_FUZZ_FROM")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(0);
     let conn = arg_calls::connection();
     let mut failures = Vec::new();
-    for seed in 0..cases {
+    for seed in from..from + cases {
         let data = bytes(seed, 64 + (seed as usize * 7) % 448);
         if let Err(e) = arg_calls::run_case(&conn, &data) {
             failures.push(format!("seed {seed}: {e}"));

@@ -199,6 +199,7 @@ fn every_row_documents_a_range_that_fits_its_type() {
                 | Range::Quantile
                 | Range::Probability
                 | Range::NonNegative
+                | Range::Density
                 | Range::Ordinal
         )
     };
@@ -215,7 +216,11 @@ fn every_row_documents_a_range_that_fits_its_type() {
             (Returns::Real, r) => {
                 matches!(
                     r,
-                    Range::Real | Range::Quantile | Range::Probability | Range::NonNegative
+                    Range::Real
+                        | Range::Quantile
+                        | Range::Probability
+                        | Range::NonNegative
+                        | Range::Density
                 )
             }
             (Returns::Integer, r) => matches!(r, Range::Ordinal | Range::NonNegative | Range::Real),

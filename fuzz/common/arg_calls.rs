@@ -711,7 +711,7 @@ fn show_params(bound: &[Value]) -> String {
     let shown: Vec<String> = bound
         .iter()
         .map(|v| match v {
-            Value::Text(t) if t.len() > 80 => format!("TEXT of {} bytes", t.len()),
+            Value::Text(t) if t.len() > 400 => format!("TEXT of {} bytes", t.len()),
             Value::Text(t) => format!("{t:?}"),
             Value::Blob(x) => format!(
                 "BLOB {}",

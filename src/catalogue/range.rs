@@ -27,6 +27,9 @@ pub enum Range {
     /// A real (or integer) >= 0: a density, a standard deviation, a count or total weight;
     /// finite whenever every input value is finite.
     NonNegative,
+    /// A density: a real >= 0, never NaN, and +Inf allowed even from finite inputs, at the
+    /// pole 0 of a gamma or Weibull model with shape below 1 (`dist_pdf`, `dist_curve`).
+    Density,
     /// An INTEGER >= 1: a component number.
     Ordinal,
     /// A BLOB that reads back as a distribution value (`Dist::from_blob`: empirical,
@@ -116,6 +119,8 @@ impl Range {
             (Range::Probability, Some(x)) => Err(format!("{x:e} is not in [0, 1]")),
             (Range::NonNegative, Some(x)) if x >= 0.0 => real(x, finite_inputs),
             (Range::NonNegative, Some(x)) => Err(format!("{x:e} is not >= 0")),
+            (Range::Density, Some(x)) if x >= 0.0 => Ok(()),
+            (Range::Density, Some(x)) => Err(format!("{x:e} is not >= 0")),
             (Range::Ordinal, _) => match out {
                 Out::Integer(i) if *i >= 1 => Ok(()),
                 other => Err(format!("{other:?} is not an INTEGER >= 1")),
