@@ -124,7 +124,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "profile",
         kind: Kind::Aggregate,
         returns: Returns::Text,
-        range: Range::JsonObject(super::range::PROFILE),
+        range: Range::JsonObject(&super::range::PROFILE),
         arities: &[1],
         signature: "profile(x)",
         summary: "JSON summary: n, mean, sd, min, q1, median, q3, max, skewness, excess_kurtosis",

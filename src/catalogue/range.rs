@@ -41,53 +41,75 @@ pub enum Range {
     Model,
     /// TEXT: a JSON array whose elements are null or numbers in the given range.
     JsonArray(&'static Range),
-    /// TEXT: a JSON object; each of these fields, where present (a field may be left out
-    /// where it does not apply, as `p` for the Wasserstein distance), is null or a number
-    /// in its range.
-    JsonObject(&'static [(&'static str, Range)]),
+    /// TEXT: a JSON object whose fields are as [`Fields`] says.
+    JsonObject(&'static Fields),
     /// Rows of a table function: one range per output column, in column order.
     Rows(&'static [Range]),
 }
 
+/// The numeric fields of a JSON object answer. Each field, where present (a field may be
+/// left out where it does not apply, as `p` for the Wasserstein distance), is null or a
+/// number in its range; the `ascending` ones, where present and not null, are in
+/// ascending order (a minimum at most a median, a band's lower end at most its upper).
+#[derive(Debug, PartialEq)]
+pub struct Fields {
+    /// The fields and their ranges.
+    pub each: &'static [(&'static str, Range)],
+    /// Fields whose values must not decrease in this order.
+    pub ascending: &'static [&'static str],
+}
+
 /// The fields of `profile` and `dist_profile`.
-pub const PROFILE: &[(&str, Range)] = &[
-    ("n", Range::NonNegative),
-    ("mean", Range::Real),
-    ("sd", Range::NonNegative),
-    ("min", Range::Real),
-    ("q1", Range::Real),
-    ("median", Range::Real),
-    ("q3", Range::Real),
-    ("max", Range::Real),
-    ("skewness", Range::Real),
-    ("excess_kurtosis", Range::Real),
-];
+pub const PROFILE: Fields = Fields {
+    each: &[
+        ("n", Range::NonNegative),
+        ("mean", Range::Real),
+        ("sd", Range::NonNegative),
+        ("min", Range::Real),
+        ("q1", Range::Real),
+        ("median", Range::Real),
+        ("q3", Range::Real),
+        ("max", Range::Real),
+        ("skewness", Range::Real),
+        ("excess_kurtosis", Range::Real),
+    ],
+    ascending: &["min", "q1", "median", "q3", "max"],
+};
 
 /// The fields of the Kolmogorov-Smirnov results (`ks_test`, `dist_ks`).
-pub const TEST: &[(&str, Range)] = &[
-    ("d", Range::Probability),
-    ("p", Range::Probability),
-    ("n1", Range::NonNegative),
-    ("n2", Range::NonNegative),
-    ("n_eff1", Range::NonNegative),
-    ("n_eff2", Range::NonNegative),
-];
+pub const TEST: Fields = Fields {
+    each: &[
+        ("d", Range::Probability),
+        ("p", Range::Probability),
+        ("n1", Range::NonNegative),
+        ("n2", Range::NonNegative),
+        ("n_eff1", Range::NonNegative),
+        ("n_eff2", Range::NonNegative),
+    ],
+    ascending: &[],
+};
 
 /// The fields of `dist_distance`. Its statistic is a real, not a non-negative one: for
 /// 'ad' it is the standardised (A2akN - 1) / sigma of Scholz and Stephens, negative for
 /// samples more alike than chance; the raw a2akn is >= 0.
-pub const DISTANCE: &[(&str, Range)] = &[
-    ("statistic", Range::Real),
-    ("a2akn", Range::NonNegative),
-    ("p", Range::Probability),
-    ("n1", Range::NonNegative),
-    ("n2", Range::NonNegative),
-    ("n_eff1", Range::NonNegative),
-    ("n_eff2", Range::NonNegative),
-];
+pub const DISTANCE: Fields = Fields {
+    each: &[
+        ("statistic", Range::Real),
+        ("a2akn", Range::NonNegative),
+        ("p", Range::Probability),
+        ("n1", Range::NonNegative),
+        ("n2", Range::NonNegative),
+        ("n_eff1", Range::NonNegative),
+        ("n_eff2", Range::NonNegative),
+    ],
+    ascending: &[],
+};
 
 /// The fields of `dist_band`.
-pub const BAND: &[(&str, Range)] = &[("lower", Range::Probability), ("upper", Range::Probability)];
+pub const BAND: Fields = Fields {
+    each: &[("lower", Range::Probability), ("upper", Range::Probability)],
+    ascending: &["lower", "upper"],
+};
 
 impl Range {
     /// Checks one answer. `finite_inputs` says that every input value of the call was
@@ -104,6 +126,9 @@ impl Range {
     /// assert!(Range::Real.check(&Out::Real(f64::INFINITY), true).is_err());
     /// assert!(Range::Real.check(&Out::Real(f64::INFINITY), false).is_ok());
     /// assert!(Range::JsonArray(&Range::Real).check(&Out::Text("[1, null]".into()), true).is_ok());
+    /// let band = Range::JsonObject(&ogive::catalogue::range::BAND);
+    /// assert!(band.check(&Out::Text(r#"{"lower": 0.2, "upper": 0.4}"#.into()), true).is_ok());
+    /// assert!(band.check(&Out::Text(r#"{"lower": 0.6, "upper": 0.4}"#.into()), true).is_err());
     /// ```
     pub fn check(&self, out: &Out, finite_inputs: bool) -> Result<(), String> {
         let number = match out {
@@ -146,12 +171,26 @@ impl Range {
                 other => Err(format!("{other} is not a JSON array")),
             },
             (Range::JsonObject(fields), _) => match json(out)? {
-                serde_json::Value::Object(map) => fields.iter().try_for_each(|(key, r)| {
-                    map.get(*key).map_or(Ok(()), |v| {
-                        r.check_json(v, finite_inputs)
-                            .map_err(|e| format!("field {key:?}: {e}"))
-                    })
-                }),
+                serde_json::Value::Object(map) => {
+                    fields.each.iter().try_for_each(|(key, r)| {
+                        map.get(*key).map_or(Ok(()), |v| {
+                            r.check_json(v, finite_inputs)
+                                .map_err(|e| format!("field {key:?}: {e}"))
+                        })
+                    })?;
+                    let ordered: Vec<(&str, f64)> = fields
+                        .ascending
+                        .iter()
+                        .filter_map(|k| map.get(*k).and_then(|v| v.as_f64()).map(|x| (*k, x)))
+                        .collect();
+                    match ordered.windows(2).find(|w| w[1].1 < w[0].1) {
+                        Some(w) => Err(format!(
+                            "{} = {:e} is above {} = {:e}",
+                            w[0].0, w[0].1, w[1].0, w[1].1
+                        )),
+                        None => Ok(()),
+                    }
+                }
                 other => Err(format!("{other} is not a JSON object")),
             },
             (Range::Rows(_), _) => Err("a table function's rows are checked by check_row".into()),
