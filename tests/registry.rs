@@ -184,3 +184,72 @@ fn table_functions_and_states_follow_their_rows() {
         }
     }
 }
+
+/// Every row documents the range of its answers ([`functions::Range`], checked on every
+/// answer by the argument fuzzer), and the range fits the row's declared type: a table
+/// function's has one range per output column, a BLOB's says which decoder reads it back,
+/// TEXT (always JSON) a model or a JSON shape, a REAL a real range, an INTEGER a whole one.
+#[test]
+fn every_row_documents_a_range_that_fits_its_type() {
+    use ogive::catalogue::{Imp, Range, Returns};
+    let numeric = |r: &Range| {
+        matches!(
+            r,
+            Range::Real
+                | Range::Quantile
+                | Range::Probability
+                | Range::NonNegative
+                | Range::Density
+                | Range::Ordinal
+        )
+    };
+    for d in functions::all() {
+        let fits = match (d.returns, &d.range) {
+            (Returns::Rows, Range::Rows(cols)) => match d.imp {
+                Imp::Table(t) => cols.len() == t.columns.len() && cols.iter().all(numeric),
+                _ => false,
+            },
+            (Returns::Blob, r) => matches!(r, Range::Distribution | Range::Sketch),
+            (Returns::Text, r) => {
+                matches!(r, Range::Model | Range::JsonArray(_) | Range::JsonObject(_))
+            }
+            (Returns::Real, r) => {
+                matches!(
+                    r,
+                    Range::Real
+                        | Range::Quantile
+                        | Range::Probability
+                        | Range::NonNegative
+                        | Range::Density
+                )
+            }
+            (Returns::Integer, r) => matches!(r, Range::Ordinal | Range::NonNegative | Range::Real),
+            (Returns::Count, r) => matches!(r, Range::NonNegative),
+            _ => false,
+        };
+        assert!(
+            fits,
+            "{}: range {:?} does not fit {:?}",
+            d.name, d.range, d.returns
+        );
+        // The example's own answer lies in the range.
+        if d.kind != Kind::Table {
+            let conn = Connection::open_in_memory().unwrap();
+            ogive::register(&conn).unwrap();
+            let v: Value = conn.query_row(d.example, [], |r| r.get(0)).unwrap();
+            // Only where the example selects the call itself (not a field of its JSON).
+            if d.example.starts_with(&format!("SELECT {}(", d.name)) && !d.example.contains("->") {
+                let out = match v {
+                    Value::Null => ogive::catalogue::value::Out::Null,
+                    Value::Integer(i) => ogive::catalogue::value::Out::Integer(i),
+                    Value::Real(r) => ogive::catalogue::value::Out::Real(r),
+                    Value::Text(t) => ogive::catalogue::value::Out::Text(t),
+                    Value::Blob(b) => ogive::catalogue::value::Out::Blob(b),
+                };
+                d.range
+                    .check(&out, true)
+                    .unwrap_or_else(|e| panic!("example of {}: {e}", d.name));
+            }
+        }
+    }
+}

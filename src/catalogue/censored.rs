@@ -9,7 +9,7 @@
 use super::args::{ArgError, FunctionError, fail, number};
 use super::state::{AggregateImp, Args, Reader, State, Writer, push, try_extend};
 use super::value::Out;
-use super::{FunctionDef, Imp, Kind, Returns};
+use super::{FunctionDef, Imp, Kind, Range, Returns};
 use crate::stats::censored::{Censored, CensoredError, Code};
 use crate::value::censored::encode;
 
@@ -20,6 +20,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[FunctionDef {
     name: "dist_censored",
     kind: Kind::Aggregate,
     returns: Returns::Blob,
+    range: Range::Distribution,
     arities: &[2],
     signature: "dist_censored(x, c)",
     summary: "distribution value from censored readings: Kaplan-Meier, its mirror for left-censoring, or Turnbull's estimate; c = 0 exact, -1 left-, 1 right-censored",

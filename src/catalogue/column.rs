@@ -18,7 +18,7 @@ use serde_json::json;
 use super::args::{ArgError, Constant, FunctionError, TextConstant, fail, number, whole};
 use super::state::{AggregateImp, Args, Lane, Reader, Sink, State, Writer, push, try_extend};
 use super::value::{Arg, Out};
-use super::{FunctionDef, Imp, Kind, Returns};
+use super::{FunctionDef, Imp, Kind, Range, Returns};
 use crate::stats::ecdf::{EcdfCounter, WeightedEcdfCounter};
 use crate::stats::moments::Profile;
 use crate::stats::order::OrderStatistics;
@@ -36,6 +36,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "ecdf",
         kind: Kind::Window,
         returns: Returns::Real,
+        range: Range::Probability,
         arities: &[2, 3],
         signature: "ecdf(x, t [, w])",
         summary: "share of x at or below t (weighted by w), in [0, 1]; O(1) memory, O(1) per row in a window",
@@ -54,6 +55,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "quantile",
         kind: Kind::Window,
         returns: Returns::Real,
+        range: Range::Real,
         arities: &[2, 3],
         signature: "quantile(x, p [, type])",
         summary: "empirical p-quantile of x; type 1..9 (Hyndman and Fan 1996), default 7; O(log w) per row in a window",
@@ -73,6 +75,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "median",
         kind: Kind::Window,
         returns: Returns::Real,
+        range: Range::Real,
         arities: &[1],
         signature: "median(x)",
         summary: "the median of x: quantile(x, 0.5), also over window frames",
@@ -88,6 +91,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "weighted_quantile",
         kind: Kind::Aggregate,
         returns: Returns::Real,
+        range: Range::Real,
         arities: &[3, 4],
         signature: "weighted_quantile(x, w, p [, type])",
         summary: "p-quantile of x with frequency weights w; equals quantile on replicated rows",
@@ -104,6 +108,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "quantiles",
         kind: Kind::Aggregate,
         returns: Returns::Text,
+        range: Range::JsonArray(&Range::Real),
         arities: &[2, 3],
         signature: "quantiles(x, ps [, type])",
         summary: "JSON array of the quantiles of x at each probability of the JSON array ps",
@@ -119,6 +124,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "profile",
         kind: Kind::Aggregate,
         returns: Returns::Text,
+        range: Range::JsonObject(&super::range::PROFILE),
         arities: &[1],
         signature: "profile(x)",
         summary: "JSON summary: n, mean, sd, min, q1, median, q3, max, skewness, excess_kurtosis",
@@ -645,12 +651,14 @@ pub fn parse_probabilities(s: &str) -> std::result::Result<Vec<f64>, ArgError> {
     let bad = |detail: String| ArgError::BadOption { what: "ps", detail };
     let v: serde_json::Value = serde_json::from_str(s).map_err(|e| {
         bad(format!(
-            "must be a JSON array of probabilities such as '[0.05, 0.5, 0.95]', got '{s}' ({e})"
+            "must be a JSON array of probabilities such as '[0.05, 0.5, 0.95]', got '{}' ({e})",
+            crate::stats::echo(s)
         ))
     })?;
     let arr = v.as_array().ok_or_else(|| {
         bad(format!(
-            "must be a JSON array of probabilities such as '[0.05, 0.5, 0.95]', got '{s}'"
+            "must be a JSON array of probabilities such as '[0.05, 0.5, 0.95]', got '{}'",
+            crate::stats::echo(s)
         ))
     })?;
     arr.iter()

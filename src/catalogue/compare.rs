@@ -37,7 +37,7 @@ use super::args::{ArgError, FunctionError, TextConstant, fail, number, text};
 use super::reader::Call;
 use super::state::{AggregateImp, Args, Reader, State, Writer, push, try_extend};
 use super::value::Out;
-use super::{FunctionDef, Imp, Kind, Returns};
+use super::{FunctionDef, Imp, Kind, Range, Returns};
 use crate::stats::censored::Censored;
 use crate::stats::fit::Family;
 use crate::stats::gof::{anderson_darling_ksamp, cramer_von_mises_2samp, wasserstein_1};
@@ -58,6 +58,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "ks_test",
         kind: Kind::Aggregate,
         returns: Returns::Text,
+        range: Range::JsonObject(&super::range::TEST),
         arities: &[2, 3, 4],
         signature: "ks_test(x, in_second [, alternative [, method]])",
         summary: "two-sample Kolmogorov-Smirnov test of x split by a boolean: JSON {d, p, n1, n2, method, alternative}",
@@ -88,6 +89,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "dist_ks",
         kind: Kind::Scalar,
         returns: Returns::Text,
+        range: Range::JsonObject(&super::range::TEST),
         arities: &[2, 3, 4],
         signature: "dist_ks(d1, d2 [, alternative [, method]])",
         summary: "Kolmogorov-Smirnov test of two empirical distributions, or of one against a model: JSON {d, p, n1, n2, method, alternative}",
@@ -134,6 +136,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "dist_distance",
         kind: Kind::Scalar,
         returns: Returns::Text,
+        range: Range::JsonObject(&super::range::DISTANCE),
         arities: &[3],
         signature: "dist_distance(d1, d2, metric)",
         summary: "how far apart two distributions are: metric 'ks', 'wasserstein', 'cvm' or 'ad' (against a model 'ks'); JSON {metric, statistic, p, method, n1, n2}",
@@ -406,7 +409,10 @@ impl KsMethod {
             .map(KsMethod::Ks)
             .map_err(|_| ArgError::BadOption {
                 what: "method",
-                detail: format!("must be 'auto', 'exact', 'asymp' or 'lilliefors', got '{s}'"),
+                detail: format!(
+                    "must be 'auto', 'exact', 'asymp' or 'lilliefors', got '{}'",
+                    crate::stats::echo(s)
+                ),
             })
     }
 }
@@ -873,7 +879,10 @@ impl Metric {
             "ad" => Ok(Metric::Ad),
             _ => Err(ArgError::BadOption {
                 what: "metric",
-                detail: format!("must be 'ks', 'wasserstein', 'cvm' or 'ad', got '{s}'"),
+                detail: format!(
+                    "must be 'ks', 'wasserstein', 'cvm' or 'ad', got '{}'",
+                    crate::stats::echo(s)
+                ),
             }),
         }
     }

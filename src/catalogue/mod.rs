@@ -21,11 +21,14 @@ pub mod column;
 pub mod compare;
 pub mod dist;
 pub mod models;
+pub mod range;
 pub mod reader;
 pub mod sketch;
 pub mod state;
 pub mod time;
 pub mod value;
+
+pub use range::Range;
 
 use args::FunctionError;
 use reader::Call;
@@ -131,6 +134,9 @@ pub struct FunctionDef {
     pub kind: Kind,
     /// The type of its result.
     pub returns: Returns,
+    /// The documented range of its answers ([`Range::check`]), which the argument
+    /// fuzzer checks every answer against.
+    pub range: Range,
     /// The argument counts it accepts.
     pub arities: &'static [i32],
     /// The call shape, with optional arguments in brackets.

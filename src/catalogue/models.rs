@@ -12,7 +12,7 @@ use super::dist::empirical;
 use super::reader::{Call, model_of};
 use super::state::{AggregateImp, Args, Field, Reader, State, Writer, push, try_extend};
 use super::value::Out;
-use super::{FunctionDef, Imp, Kind, Returns, TableImp};
+use super::{FunctionDef, Imp, Kind, Range, Returns, TableImp};
 use crate::stats::fit::{Family, FitError, fit, fit_weighted};
 use crate::stats::mixture::{
     MAX_COMPONENTS, MixtureError, fit_mixture_rounded, fit_mixture_weighted,
@@ -29,6 +29,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "dist_fit",
         kind: Kind::Aggregate,
         returns: Returns::Text,
+        range: Range::Model,
         arities: &[2, 3],
         signature: "dist_fit(x, family [, resolution])",
         summary: "model JSON: maximum-likelihood fit of normal, lognormal, exponential, gamma, \
@@ -61,6 +62,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "dist_fit_censored",
         kind: Kind::Aggregate,
         returns: Returns::Text,
+        range: Range::Model,
         arities: &[3],
         signature: "dist_fit_censored(x, c, family)",
         summary: "model JSON: maximum-likelihood fit to censored readings (c: 0 exact, -1 at or \
@@ -87,6 +89,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "dist_mixture",
         kind: Kind::Aggregate,
         returns: Returns::Text,
+        range: Range::Model,
         arities: &[1, 2, 3],
         signature: "dist_mixture(x [, k [, resolution]])",
         summary: "model JSON: Gaussian mixture by EM with k components, or k from 1..6 by BIC; \
@@ -122,6 +125,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "dist_fit_to",
         kind: Kind::Scalar,
         returns: Returns::Text,
+        range: Range::Model,
         arities: &[2, 3],
         signature: "dist_fit_to(d, family [, resolution])",
         summary: "model JSON: dist_fit of a stored distribution value (frequency weights \
@@ -144,6 +148,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "dist_mixture_to",
         kind: Kind::Scalar,
         returns: Returns::Text,
+        range: Range::Model,
         arities: &[1, 2, 3],
         signature: "dist_mixture_to(d [, k [, resolution]])",
         summary: "model JSON: dist_mixture of a stored distribution value (frequency weights \
@@ -165,6 +170,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "dist_model",
         kind: Kind::Scalar,
         returns: Returns::Text,
+        range: Range::Model,
         arities: &[2],
         signature: "dist_model(family, params)",
         summary: "model JSON from a family and a JSON object of its parameters",
@@ -183,6 +189,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "dist_component",
         kind: Kind::Scalar,
         returns: Returns::Integer,
+        range: Range::Ordinal,
         arities: &[2],
         signature: "dist_component(model, t)",
         summary: "number (from 1) of the mixture component most probable for t: clustering",
@@ -202,6 +209,12 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "dist_components",
         kind: Kind::Table,
         returns: Returns::Rows,
+        range: Range::Rows(&[
+            Range::Ordinal,
+            Range::Probability,
+            Range::Real,
+            Range::NonNegative,
+        ]),
         arities: &[1],
         signature: "dist_components(model)",
         summary: "table (component, weight, mean, sd) of a model's mixture components",

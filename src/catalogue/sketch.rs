@@ -9,7 +9,7 @@ use super::args::{ArgError, Constant, FunctionError, fail, number};
 use super::reader::{Call, NoMemo};
 use super::state::{AggregateImp, Args, Reader, State, Writer};
 use super::value::Out;
-use super::{FunctionDef, Imp, Kind, Returns};
+use super::{FunctionDef, Imp, Kind, Range, Returns};
 use crate::stats::check_probability;
 use crate::stats::sketch::{DEFAULT_EPSILON, QuantileSketch, k_for_epsilon};
 use crate::value::sketch::{decode, encode};
@@ -22,6 +22,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "quantile_sketch",
         kind: Kind::Aggregate,
         returns: Returns::Blob,
+        range: Range::Sketch,
         arities: &[1, 2],
         signature: "quantile_sketch(x [, epsilon])",
         summary: "BLOB: a mergeable quantile sketch of x, rank error at most epsilon n (default 0.005); bounded memory",
@@ -41,6 +42,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "sketch_merge",
         kind: Kind::Aggregate,
         returns: Returns::Blob,
+        range: Range::Sketch,
         arities: &[1],
         signature: "sketch_merge(s)",
         summary: "BLOB: the merge of quantile sketches (shards, days, machines), with the same error bound",
@@ -57,6 +59,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "sketch_quantile",
         kind: Kind::Scalar,
         returns: Returns::Real,
+        range: Range::Real,
         arities: &[2],
         signature: "sketch_quantile(s, p)",
         summary: "approximate p-quantile from a sketch: true rank within epsilon n of p n",
@@ -73,6 +76,7 @@ pub static FUNCTIONS: &[FunctionDef] = &[
         name: "sketch_cdf",
         kind: Kind::Scalar,
         returns: Returns::Real,
+        range: Range::Probability,
         arities: &[2],
         signature: "sketch_cdf(s, t)",
         summary: "approximate share of values at or below t from a sketch, within epsilon",

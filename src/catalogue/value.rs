@@ -68,9 +68,6 @@ impl Out {
     }
 }
 
-/// The longest echo of a TEXT argument in an error message, in characters.
-const ECHO_CHARS: usize = 40;
-
 /// An argument as an owned result (text that is not UTF-8 is read lossily).
 ///
 /// # Example
@@ -100,23 +97,7 @@ impl std::fmt::Display for Arg<'_> {
             Arg::Real(r) => write!(f, "{r}"),
             Arg::Text(t) => {
                 let s = String::from_utf8_lossy(t);
-                let short: String = s
-                    .chars()
-                    .take(ECHO_CHARS)
-                    .flat_map(|c| {
-                        if c.is_control() {
-                            c.escape_default().collect::<Vec<_>>()
-                        } else {
-                            vec![c]
-                        }
-                    })
-                    .collect();
-                let ellipsis = if s.chars().count() > ECHO_CHARS {
-                    "..."
-                } else {
-                    ""
-                };
-                write!(f, "TEXT '{short}{ellipsis}'")
+                write!(f, "TEXT '{}'", crate::stats::echo(&s))
             }
             Arg::Blob(b) => write!(f, "a BLOB of {} bytes", b.len()),
         }

@@ -311,6 +311,7 @@ mod tests {
         name: "panics",
         kind: Kind::Table,
         returns: crate::catalogue::Returns::Rows,
+        range: crate::catalogue::Range::Rows(&[crate::catalogue::Range::Real]),
         arities: &[1],
         signature: "panics(a)",
         summary: "test",

@@ -163,11 +163,13 @@ impl fmt::Display for StatsError {
             ),
             StatsError::UnknownBandwidthRule(s) => write!(
                 f,
-                "bandwidth must be 'scott', 'silverman' or a positive number, got '{s}'"
+                "bandwidth must be 'scott', 'silverman' or a positive number, got '{}'",
+                echo(s)
             ),
             StatsError::UnknownBinRule(s) => write!(
                 f,
-                "rule must be 'sturges', 'scott', 'fd', 'sqrt' or a whole number of bins, got '{s}'"
+                "rule must be 'sturges', 'scott', 'fd', 'sqrt' or a whole number of bins, got '{}'",
+                echo(s)
             ),
             StatsError::BadBinCount(n) => write!(
                 f,
@@ -211,6 +213,39 @@ impl fmt::Display for StatsError {
 }
 
 impl std::error::Error for StatsError {}
+
+/// The most characters of an argument an error message repeats ([`echo`]).
+pub const ECHO_CHARS: usize = 40;
+
+/// An argument as an error message repeats it: at most [`ECHO_CHARS`] characters (then
+/// `...`), control characters such as NUL or a line break escaped (`\u{0}`, `\n`), so that
+/// a message stays one short printable line whatever TEXT it echoes (a NUL would also
+/// cut the message short in SQLite's C API).
+///
+/// # Example
+/// ```
+/// use ogive::stats::echo;
+/// assert_eq!(echo("a\0b"), "a\\u{0}b");
+/// assert_eq!(echo(&"x".repeat(100)), format!("{}...", "x".repeat(40)));
+/// ```
+pub fn echo(s: &str) -> String {
+    let mut out: String = s
+        .chars()
+        .take(ECHO_CHARS)
+        .flat_map(|c| {
+            let escaped: Vec<char> = if c.is_control() {
+                c.escape_default().collect()
+            } else {
+                vec![c]
+            };
+            escaped
+        })
+        .collect();
+    if s.chars().nth(ECHO_CHARS).is_some() {
+        out.push_str("...");
+    }
+    out
+}
 
 /// Checks that `p` is a probability.
 ///

@@ -143,10 +143,15 @@ impl fmt::Display for TestError {
         match self {
             TestError::UnknownAlternative(s) => write!(
                 f,
-                "alternative must be 'two-sided', 'less' or 'greater', got '{s}'"
+                "alternative must be 'two-sided', 'less' or 'greater', got '{}'",
+                crate::stats::echo(s)
             ),
             TestError::UnknownMethod(s) => {
-                write!(f, "method must be 'auto', 'exact' or 'asymp', got '{s}'")
+                write!(
+                    f,
+                    "method must be 'auto', 'exact' or 'asymp', got '{}'",
+                    crate::stats::echo(s)
+                )
             }
             TestError::NotANumber => write!(f, "values must not be NaN"),
             TestError::NotSorted => write!(f, "values must be sorted ascending"),

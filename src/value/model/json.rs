@@ -116,11 +116,7 @@ fn object<'a>(
 }
 
 fn shorten(s: &str) -> String {
-    if s.chars().count() > 40 {
-        format!("{}...", s.chars().take(40).collect::<String>())
-    } else {
-        s.to_string()
-    }
+    crate::stats::echo(s)
 }
 
 /// What a family is: the mixture or one of the parametric families.

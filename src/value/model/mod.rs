@@ -130,7 +130,8 @@ impl fmt::Display for ModelError {
             } => write!(f, "{what} field \"{field}\" {detail}"),
             ModelError::UnknownFamily(name) => write!(
                 f,
-                "unknown family '{name}'; supported: {}, {MIXTURE_FAMILY}",
+                "unknown family '{}'; supported: {}, {MIXTURE_FAMILY}",
+                crate::stats::echo(name),
                 Family::names()
             ),
             ModelError::Probability(p) => write!(f, "p must be between 0 and 1, got {p}"),
