@@ -37,13 +37,14 @@ WITH parked AS (
 ),
 d AS (
     SELECT trailer, period,
+           count(temp_c) AS readings,
            dist_empirical(temp_c) AS plain,
            dist_series(temp_c, ts) AS series
     FROM parked
     GROUP BY trailer, period
 )
 SELECT n.trailer,
-       dist_n(n.series) AS readings,
+       n.readings,
        round(dist_n_eff(n.series), 0) AS n_eff,
        round(dist_quantile(n.series, 0.5) - dist_quantile(b.series, 0.5), 2) AS shift_c,
        round(dist_ks(n.plain, b.plain) ->> '$.p', 4) AS p_independent,

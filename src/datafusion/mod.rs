@@ -52,6 +52,7 @@ pub mod aggregate;
 pub mod convert;
 pub mod json;
 pub mod scalar;
+pub mod sql;
 pub mod table;
 
 use std::sync::Arc;
@@ -64,6 +65,7 @@ use crate::catalogue::args::{ArgError, FunctionError, fail};
 use crate::catalogue::{self, Imp};
 
 pub use convert::{out_array, rows};
+pub use sql::sql;
 
 /// The one helper that turns a catalogue error into the error DataFusion reports: the
 /// same text as in SQLite (`quantile: p must be ...`); running out of memory is

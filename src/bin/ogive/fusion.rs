@@ -104,7 +104,7 @@ impl Fusion {
             }
         };
         let work = async {
-            let mut df = self.ctx.sql(sql).await.map_err(fail)?;
+            let mut df = ogive::datafusion::sql(&self.ctx, sql).await.map_err(fail)?;
             // Named parameters are DataFusion's `$name`; bound, never pasted into the text.
             let mut names: Vec<String> = df
                 .logical_plan()
