@@ -2,8 +2,9 @@
 //! Ctrl-C sends), with SQLite's interrupt error naming the function, instead of running
 //! to the end (issue 15.3 and 17.2). The interrupt comes from another thread while the
 //! fit runs; each query would take far longer than the test's wait uninterrupted (a
-//! 16-component mixture over 300,000 distinct values; a Turnbull estimate and a censored
-//! fit are quicker, so they are only checked to complete or stop cleanly).
+//! 16-component mixture over 300,000 distinct values; exact Kolmogorov-Smirnov p-values
+//! near their size limits; a Turnbull estimate and a censored fit are quicker, so they
+//! are only checked to complete or stop cleanly).
 
 use std::time::Duration;
 
@@ -23,7 +24,8 @@ fn connection() -> Connection {
 }
 
 /// Runs `sql` with an interrupt sent after `after`; the error text, or None when the
-/// query finished first.
+/// query finished first. The error must carry SQLite's interrupt code (what hosts such
+/// as the shell, apsw and the sqlite3 CLI read as "cancelled").
 fn interrupted(conn: &Connection, sql: &str, after: Duration) -> Option<String> {
     let handle = conn.get_interrupt_handle();
     let sender = std::thread::spawn(move || {
@@ -32,7 +34,16 @@ fn interrupted(conn: &Connection, sql: &str, after: Duration) -> Option<String> 
     });
     let r: rusqlite::Result<Option<String>> = conn.query_row(sql, [], |row| row.get(0));
     sender.join().unwrap();
-    r.err().map(|e| e.to_string())
+    let e = r.err()?;
+    match &e {
+        rusqlite::Error::SqliteFailure(f, _) => assert_eq!(
+            f.code,
+            rusqlite::ErrorCode::OperationInterrupted,
+            "{sql}: {e}"
+        ),
+        other => panic!("{sql}: not an SQLite failure: {other:?}"),
+    }
+    Some(e.to_string())
 }
 
 #[test]
@@ -68,6 +79,54 @@ fn a_scalar_fit_of_a_stored_value_stops_on_interrupt() {
     )
     .expect("the 16-component fit finished before the interrupt");
     assert!(e.contains("dist_mixture_to: interrupted"), "{e}");
+}
+
+/// Exact p-values near their limits: the two-sample lattice walk over 63,000 + 63,000
+/// values with D about 0.3 (2 s in a release build, far longer in a debug one), and the
+/// one-sample Durbin matrix of order 995 (29,800 values against their normal fit). The
+/// values are stored first, so the interrupt reaches the p-value, not the reading.
+#[test]
+fn exact_ks_p_values_stop_on_interrupt() {
+    let conn = Connection::open_in_memory().unwrap();
+    ogive::sqlite::register(&conn).unwrap();
+    conn.execute_batch(
+        "CREATE TABLE v AS
+             WITH RECURSIVE c(i) AS (SELECT 1 UNION ALL SELECT i + 1 FROM c WHERE i < 126000)
+             SELECT i, i * 0.6180339887 - CAST(i * 0.6180339887 AS INTEGER) AS u,
+                 i * 0.41421356 - CAST(i * 0.41421356 AS INTEGER) AS w
+             FROM c;
+         CREATE TABLE two AS SELECT
+             (SELECT dist_empirical(u) FROM v WHERE i % 2 = 0) AS a,
+             (SELECT dist_empirical(u + 0.3) FROM v WHERE i % 2 = 1) AS b;
+         CREATE TABLE one AS SELECT dist_empirical(u + w) AS d, dist_fit(u + w, 'normal') AS m
+             FROM v WHERE i <= 29800;",
+    )
+    .unwrap();
+    let e = interrupted(
+        &conn,
+        "SELECT dist_ks(a, b, 'two-sided', 'exact') FROM two",
+        Duration::from_millis(500),
+    )
+    .expect("the exact two-sample p-value finished before the interrupt");
+    assert!(e.contains("dist_ks: interrupted"), "{e}");
+    let e = interrupted(
+        &conn,
+        "SELECT dist_ks(d, m, 'two-sided', 'exact') FROM one",
+        Duration::from_millis(500),
+    )
+    .expect("the exact one-sample p-value finished before the interrupt");
+    assert!(e.contains("dist_ks: interrupted"), "{e}");
+    // Forced exact on a small pair still answers: 2 of the 6 splits of {1,2} vs {3,4}
+    // reach D = 1 (enumeration).
+    let p: f64 = conn
+        .query_row(
+            "SELECT dist_ks(dist_empirical(column1), dist_empirical(column2), 'two-sided',
+                 'exact') ->> '$.p' FROM (VALUES (1, 3), (2, 4))",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    assert!((p - 1.0 / 3.0).abs() < 1e-15, "{p}");
 }
 
 #[test]

@@ -301,6 +301,7 @@ impl FunctionError {
             ArgError::Fit(FitError::Interrupted)
                 | ArgError::Mixture(MixtureError::Interrupted)
                 | ArgError::Censored(CensoredError::Interrupted)
+                | ArgError::Test(TestError::Interrupted)
         )
     }
 }

@@ -78,7 +78,8 @@ pub(super) fn kolmogorov(n: u64, x: f64, want_cdf: bool) -> (f64, bool) {
         if nxx <= 4.0 {
             // Simard and L'Ecuyer use Durbin's matrix below 0.754693 and Pomeranz's
             // recursion up to 4; both are exact, and Durbin's matrix is used for both here.
-            let c = durbin_cdf(n, x);
+            // Order at most 2 sqrt(4 n) <= 48 here: not polled, so never an error.
+            let c = durbin_cdf(n, x, false).unwrap_or(f64::NAN);
             return pick(c, 1.0 - c, want_cdf, true);
         }
         let s = 2.0 * smirnov_sf(n, x);
@@ -95,7 +96,8 @@ pub(super) fn kolmogorov(n: u64, x: f64, want_cdf: bool) -> (f64, bool) {
     let (c, exact) = if nxx >= 18.0 {
         (1.0, true)
     } else if n <= 100_000 && nf * x.powf(1.5) <= 1.4 {
-        (durbin_cdf(n, x), true)
+        // Order at most about 2.5 n^(1/3) <= 117 here: not polled, so never an error.
+        (durbin_cdf(n, x, false).unwrap_or(f64::NAN), true)
     } else {
         (pelz_good_cdf(n, x), false)
     };
@@ -115,7 +117,7 @@ pub(super) fn kolmogorov_sf_exact(n: u64, x: f64) -> Result<f64, TestError> {
             detail: format!("the Durbin matrix would have order {order}, above {MAX_DURBIN_ORDER}"),
         });
     }
-    let s = 1.0 - durbin_cdf(n, x);
+    let s = 1.0 - durbin_cdf(n, x, true)?;
     if s < 1e-6 {
         // Miller (1956): here P(D+ >= d and D- >= d) is negligible next to the tail.
         return Ok(2.0 * smirnov_sf(n, x));
@@ -245,14 +247,15 @@ pub(super) fn kolmogorov_limit_cdf_small(z: f64) -> f64 {
 /// Durbin's (1968) matrix formula for `P(D_n < d)` as Marsaglia, Tsang and Wang (2003) evaluate
 /// it: with `k = ceil(n d)`, `h = k - n d` and `m = 2k - 1`, the answer is `n!/n^n` times the
 /// central entry of `H^n`, raised by repeated squaring with explicit binary exponents so that
-/// nothing overflows.
-pub(super) fn durbin_cdf(n: u64, d: f64) -> f64 {
+/// nothing overflows. With `poll`, the products poll for cancellation
+/// ([`crate::stats::cancel`]); without it the result is never an error.
+pub(super) fn durbin_cdf(n: u64, d: f64, poll: bool) -> Result<f64, TestError> {
     let nd = n as f64 * d;
     if d >= 1.0 {
-        return 1.0;
+        return Ok(1.0);
     }
     if nd <= 0.5 {
-        return 0.0;
+        return Ok(0.0);
     }
     let k = nd.ceil() as usize;
     let h = k as f64 - nd;
@@ -285,13 +288,13 @@ pub(super) fn durbin_cdf(n: u64, d: f64) -> f64 {
     let mut e = n;
     while e > 0 {
         if e & 1 == 1 {
-            result = matmul(&result, &base, m);
+            result = matmul(&result, &base, m, poll)?;
             result_exp += base_exp;
             rescale(&mut result, &mut result_exp);
         }
         e >>= 1;
         if e > 0 {
-            base = matmul(&base, &base, m);
+            base = matmul(&base, &base, m, poll)?;
             base_exp *= 2;
             rescale(&mut base, &mut base_exp);
         }
@@ -308,7 +311,7 @@ pub(super) fn durbin_cdf(n: u64, d: f64) -> f64 {
             exp += e2;
         }
     }
-    ldexp(p, exp).clamp(0.0, 1.0)
+    Ok(ldexp(p, exp).clamp(0.0, 1.0))
 }
 
 pub(super) fn identity(m: usize) -> Vec<f64> {
@@ -319,9 +322,14 @@ pub(super) fn identity(m: usize) -> Vec<f64> {
     a
 }
 
-pub(super) fn matmul(a: &[f64], b: &[f64], m: usize) -> Vec<f64> {
+/// `a b` for square matrices of order `m`; with `poll`, asks for cancellation every 16
+/// rows (a product of order 1000 takes about a quarter of a second in a release build).
+pub(super) fn matmul(a: &[f64], b: &[f64], m: usize, poll: bool) -> Result<Vec<f64>, TestError> {
     let mut c = vec![0.0; m * m];
     for i in 0..m {
+        if poll && i % 16 == 15 && crate::stats::cancel::requested() {
+            return Err(TestError::Interrupted);
+        }
         for l in 0..m {
             let x = a[i * m + l];
             if x == 0.0 {
@@ -334,7 +342,7 @@ pub(super) fn matmul(a: &[f64], b: &[f64], m: usize) -> Vec<f64> {
             }
         }
     }
-    c
+    Ok(c)
 }
 
 /// Scales a matrix by a power of two so that its largest entry is near 1.

@@ -197,7 +197,7 @@ pub fn ks_2samp_from_statistic(
     let d = s.d(alternative);
     let (p, method) = if exact {
         (
-            exact_2samp_p(s.n1, s.n2, h, &s.blocks, alternative),
+            exact_2samp_p(s.n1, s.n2, h, &s.blocks, alternative)?,
             MethodUsed::Exact,
         )
     } else if let Some(p) = s
@@ -227,14 +227,20 @@ pub fn ks_2samp_from_statistic(
 /// lattice-path walk of the module docs.
 ///
 /// `blocks` must sum to `n1 + n2`; a block list that does not is treated as untied.
-/// A p-value below the smallest normal double (about 2.2e-308) is returned as 0.
+/// A p-value below the smallest normal double (about 2.2e-308) is returned as 0. The walk
+/// takes `n1 + n2` steps over up to `n1 + 1` cells (seconds at [`super::MAX_EXACT_CELLS`])
+/// and polls for cancellation ([`crate::stats::cancel`]) every 256 steps.
+///
+/// # Errors
+/// [`TestError::Interrupted`] when the engine asked the call to stop.
 ///
 /// # Example
 /// ```
 /// use ogive::stats::ks::{exact_2samp_p, Alternative};
 /// // n1 = n2 = 2, no ties: D = 1 happens for 2 of the 6 splits.
-/// let p = exact_2samp_p(2, 2, 4, &[1, 1, 1, 1], Alternative::TwoSided);
+/// let p = exact_2samp_p(2, 2, 4, &[1, 1, 1, 1], Alternative::TwoSided)?;
 /// assert!((p - 2.0 / 6.0).abs() < 1e-15);
+/// # Ok::<(), ogive::stats::ks::TestError>(())
 /// ```
 pub fn exact_2samp_p(
     n1: usize,
@@ -242,10 +248,10 @@ pub fn exact_2samp_p(
     h: u64,
     blocks: &[usize],
     alternative: Alternative,
-) -> f64 {
+) -> Result<f64, TestError> {
     let n = n1 + n2;
     if h == 0 || n1 == 0 || n2 == 0 {
-        return 1.0;
+        return Ok(1.0);
     }
     // checked[s]: whether the ECDFs are compared after s pooled values.
     let mut checked = vec![false; n + 1];
@@ -281,6 +287,9 @@ pub fn exact_2samp_p(
     let (mut lo, mut hi) = (0usize, 0usize);
     let mut exited = NeumaierSum::default();
     for s in 0..n {
+        if s % 256 == 255 && crate::stats::cancel::requested() {
+            return Err(TestError::Interrupted);
+        }
         let inv = 1.0 / (n - s) as f64;
         let new_lo = lo.max((s + 1).saturating_sub(n2));
         let new_hi = (hi + 1).min(n1);
@@ -329,11 +338,11 @@ pub fn exact_2samp_p(
                 lo += 1;
             }
             if empty {
-                return normal_or_zero(exited.value());
+                return Ok(normal_or_zero(exited.value()));
             }
         }
     }
-    normal_or_zero(exited.value())
+    Ok(normal_or_zero(exited.value()))
 }
 
 /// A probability from the lattice walk, clamped to [0, 1]. Below the smallest normal
