@@ -2,9 +2,9 @@
 //!
 //! It only converts: SQLite's values to the catalogue's [`Arg`] and back from [`Out`],
 //! catalogue errors to SQLite errors ([`to_sqlite`], the one place), and registry rows to
-//! `create_function` (scalars, with SQLite's auxiliary data as the reader's
-//! per-statement [`Memo`]), `sqlite3_create_window_function` (every aggregate, through
-//! the lean callbacks of [`raw`]) and eponymous virtual tables ([`table`]). The name,
+//! the lean callbacks of [`raw`] (scalars through `sqlite3_create_function_v2`, with
+//! SQLite's auxiliary data as the reader's per-statement memory; every aggregate through
+//! `sqlite3_create_window_function`) and eponymous virtual tables ([`table`]). The name,
 //! arities and columns of each function come from its row.
 
 pub(crate) mod raw;
@@ -14,13 +14,12 @@ pub(crate) mod table;
 pub mod extension;
 
 use rusqlite::Connection;
-use rusqlite::functions::{Context, FunctionFlags};
+use rusqlite::functions::FunctionFlags;
 use rusqlite::types::{Value, ValueRef};
 
 use crate::catalogue::args::FunctionError;
-use crate::catalogue::reader::{Call, Memo, Shared};
 use crate::catalogue::value::{Arg, Out};
-use crate::catalogue::{FunctionDef, Imp, Returns, ScalarFn};
+use crate::catalogue::{FunctionDef, Imp};
 
 /// Installs every ogive SQL function on `conn`.
 ///
@@ -52,14 +51,7 @@ pub fn register(conn: &Connection) -> rusqlite::Result<()> {
 /// Whatever SQLite reports when creating the function.
 pub fn install(conn: &Connection, def: &'static FunctionDef) -> rusqlite::Result<()> {
     match def.imp {
-        Imp::Scalar(f) => {
-            for &n in def.arities {
-                conn.create_scalar_function(def.name, n, flags(), move |ctx| {
-                    scalar(def.name, f, ctx)
-                })?;
-            }
-            Ok(())
-        }
+        Imp::Scalar(_) => raw::scalar(conn, def),
         Imp::Aggregate(_) => raw::aggregate(conn, def),
         Imp::Table(_) => table::install(conn, def),
     }
@@ -163,57 +155,4 @@ pub fn to_sqlite(e: FunctionError) -> rusqlite::Error {
     rusqlite::Error::UserFunctionError(Box::new(e))
 }
 
-/// SQLite's auxiliary data as the reader's per-statement memory: SQLite keeps it for an
-/// argument that is constant in the statement, and drops it otherwise.
-struct AuxMemo<'c, 'a> {
-    ctx: &'c Context<'a>,
-}
-
-/// What is stored as auxiliary data.
-struct Held(Shared);
-
-impl Memo for AuxMemo<'_, '_> {
-    fn recall(&self, i: usize) -> Option<Shared> {
-        let i = std::ffi::c_int::try_from(i).ok()?;
-        self.ctx
-            .get_aux::<Held>(i)
-            .ok()
-            .flatten()
-            .map(|h| h.0.clone())
-    }
-
-    fn remember(&mut self, i: usize, value: Shared) {
-        if let Ok(i) = std::ffi::c_int::try_from(i) {
-            // Only an optimisation: a failure to keep it costs a decode on the next row.
-            let _ = self.ctx.set_aux(i, Held(value));
-        }
-    }
-}
-
 pub use crate::catalogue::MAX_ARGS;
-
-/// Runs a scalar body on a SQLite call.
-fn scalar(name: &'static str, f: ScalarFn, ctx: &Context<'_>) -> rusqlite::Result<Value> {
-    // Every ogive function takes at most MAX_ARGS arguments (the registry test checks it).
-    let mut args = [Arg::Null; MAX_ARGS];
-    let n = ctx.len().min(MAX_ARGS);
-    for (i, slot) in args.iter_mut().enumerate().take(n) {
-        *slot = arg(ctx.get_raw(i));
-    }
-    let mut memo = AuxMemo { ctx };
-    let mut call = Call::new(name, &args[..n], &mut memo);
-    // SAFETY: the connection running this callback; its handle is only read here.
-    #[allow(unsafe_code)]
-    let db = unsafe {
-        ctx.get_connection()
-            .map_or(std::ptr::null_mut(), |c| c.handle())
-    };
-    cancellable(db, || f(&mut call))
-        .map(|o| {
-            if let Some(e) = Returns::drift(name, &o) {
-                panic!("{e}");
-            }
-            value(o)
-        })
-        .map_err(to_sqlite)
-}

@@ -1,5 +1,6 @@
-//! Every aggregate and window function of the registry, registered straight through
-//! `sqlite3_create_window_function`.
+//! Every function of the registry but the table functions, registered straight through
+//! `sqlite3_create_window_function` (aggregates and windows) and
+//! `sqlite3_create_function_v2` (scalars).
 //!
 //! rusqlite's general wrapper builds a `Context` and converts every argument through an
 //! out-of-line conversion on every row; over 10M rows a perf profile showed that wrapper
@@ -24,6 +25,14 @@
 //! constant among them wherever it sits in the group, takes the general step with its
 //! full checks, so errors never depend on row order.
 //!
+//! # Scalars
+//!
+//! A scalar's callback reads its arguments the same way, keeps decoded constant arguments
+//! in SQLite's auxiliary data (the reader's per-statement [`Memo`]) and sets its error with
+//! the message and then the code, so that a call stopped by an interrupt reports
+//! SQLITE_INTERRUPT and one out of memory SQLITE_NOMEM, each with the function's name in
+//! the message (rusqlite's wrapper sets the code first, which the message then resets).
+//!
 //! Every body runs under `catch_unwind`: a panic becomes an SQLite error, never an
 //! unwind into C. Errors go through [`super::to_sqlite`]'s message and code. In the
 //! loadable build `rusqlite::ffi` routes each call through the host's API table, so the
@@ -37,6 +46,7 @@ use rusqlite::ffi::{self, sqlite3_context, sqlite3_value};
 
 use super::MAX_ARGS;
 use crate::catalogue::args::{ArgError, FunctionError, fail};
+use crate::catalogue::reader::{Call, Memo, Shared};
 use crate::catalogue::state::{Aggregator, Args, Lane, Sink, try_push};
 use crate::catalogue::value::{Arg, Out};
 use crate::catalogue::{FunctionDef, Imp, Kind};
@@ -143,6 +153,103 @@ pub(crate) fn aggregate(conn: &Connection, def: &'static FunctionDef) -> rusqlit
     Ok(())
 }
 
+/// Registers a scalar registry row for each of its arities.
+pub(crate) fn scalar(conn: &Connection, def: &'static FunctionDef) -> rusqlite::Result<()> {
+    let name = std::ffi::CString::new(def.name)?;
+    for &n in def.arities {
+        let data = Box::into_raw(Box::new(UserData { def })).cast::<c_void>();
+        // SAFETY: as in `aggregate`; `destroy` frees `data`, also when the call fails.
+        let rc = unsafe {
+            ffi::sqlite3_create_function_v2(
+                conn.handle(),
+                name.as_ptr(),
+                n,
+                super::flags().bits(),
+                data,
+                Some(x_func),
+                None,
+                None,
+                Some(destroy),
+            )
+        };
+        if rc != ffi::SQLITE_OK {
+            return Err(rusqlite::Error::SqliteFailure(ffi::Error::new(rc), None));
+        }
+    }
+    Ok(())
+}
+
+/// SQLite's auxiliary data as the reader's per-statement memory: SQLite keeps it for an
+/// argument that is constant in the statement, and drops it otherwise.
+struct AuxMemo {
+    ctx: *mut sqlite3_context,
+}
+
+/// Frees a value kept by [`AuxMemo::remember`].
+unsafe extern "C" fn drop_shared(p: *mut c_void) {
+    if !p.is_null() {
+        // SAFETY: `p` came from `Box::into_raw` in `remember`; SQLite calls this once.
+        drop(unsafe { Box::from_raw(p.cast::<Shared>()) });
+    }
+}
+
+impl Memo for AuxMemo {
+    fn recall(&self, i: usize) -> Option<Shared> {
+        let i = c_int::try_from(i).ok()?;
+        // SAFETY: `ctx` is the running scalar call's context; the pointer, when set, is a
+        // `Shared` boxed by `remember` and owned by SQLite until its destructor runs.
+        unsafe {
+            let p = ffi::sqlite3_get_auxdata(self.ctx, i).cast::<Shared>();
+            (!p.is_null()).then(|| (*p).clone())
+        }
+    }
+
+    fn remember(&mut self, i: usize, value: Shared) {
+        let Ok(i) = c_int::try_from(i) else {
+            return;
+        };
+        let p = Box::into_raw(Box::new(value)).cast::<c_void>();
+        // SAFETY: as in `recall`; SQLite owns `p` from here on and frees it with
+        // `drop_shared` (at once, when it cannot keep it: then it only costs a decode on
+        // the next row).
+        unsafe { ffi::sqlite3_set_auxdata(self.ctx, i, p, Some(drop_shared)) };
+    }
+}
+
+unsafe extern "C" fn x_func(ctx: *mut sqlite3_context, argc: c_int, argv: *mut *mut sqlite3_value) {
+    // SAFETY: called by SQLite as xFunc of a function registered by `scalar`: `argv` holds
+    // `argc` values, the user data is its `UserData`.
+    unsafe {
+        let Some(def) = def_of(ctx) else {
+            return;
+        };
+        let Imp::Scalar(f) = def.imp else {
+            return;
+        };
+        let argv: &[*mut sqlite3_value] = if argv.is_null() || argc <= 0 {
+            &[]
+        } else {
+            std::slice::from_raw_parts(argv, argc as usize)
+        };
+        let db = ffi::sqlite3_context_db_handle(ctx);
+        let r = catch_unwind(AssertUnwindSafe(|| {
+            // Every ogive function takes at most MAX_ARGS arguments (the registry test
+            // checks it).
+            let mut values = [Arg::Null; MAX_ARGS];
+            let n = argv.len().min(MAX_ARGS);
+            for (v, &p) in values.iter_mut().zip(argv) {
+                *v = read(p);
+            }
+            let mut memo = AuxMemo { ctx };
+            let mut call = Call::new(def.name, &values[..n], &mut memo);
+            super::cancellable(db, || f(&mut call))
+        }));
+        if let Some(out) = report(ctx, def.name, r) {
+            answer(ctx, out);
+        }
+    }
+}
+
 unsafe extern "C" fn destroy(p: *mut c_void) {
     if !p.is_null() {
         // SAFETY: `p` came from `Box::into_raw` in `aggregate`; SQLite calls this once.
@@ -185,7 +292,7 @@ unsafe fn fail_raw(ctx: *mut sqlite3_context, error: FunctionError) {
 /// The registry row of the running function.
 ///
 /// # Safety
-/// `ctx` must be the context of a callback registered by [`aggregate`].
+/// `ctx` must be the context of a callback registered by [`aggregate`] or [`scalar`].
 #[inline(always)]
 unsafe fn def_of(ctx: *mut sqlite3_context) -> Option<&'static FunctionDef> {
     // SAFETY: per the contract, the user data is a `UserData` that lives as long as the
