@@ -136,6 +136,17 @@ pub enum TestError {
         /// What the cdf returned.
         value: f64,
     },
+    /// Memory ran out ([`crate::stats::grow`]).
+    OutOfMemory {
+        /// How many elements the growing buffer held.
+        held: usize,
+    },
+}
+
+impl From<crate::stats::grow::OutOfMemory> for TestError {
+    fn from(e: crate::stats::grow::OutOfMemory) -> TestError {
+        TestError::OutOfMemory { held: e.held }
+    }
 }
 
 impl fmt::Display for TestError {
@@ -178,6 +189,11 @@ impl fmt::Display for TestError {
             TestError::BadCdf { x, value } => write!(
                 f,
                 "the cdf must return a probability in [0, 1], got {value} at {x}"
+            ),
+            TestError::OutOfMemory { held } => write!(
+                f,
+                "ran out of memory at {held} entries while comparing the samples; test a \
+                 smaller subset (WHERE) or raise the memory limit"
             ),
         }
     }
@@ -399,7 +415,8 @@ mod tests {
             let want: f64 = (0..h)
                 .map(|j| (n - j) as f64 / (n + j + 1) as f64)
                 .product();
-            let got = exact_2samp_p(n, n, (h * n) as u64, &vec![1; 2 * n], Alternative::Greater);
+            let got =
+                exact_2samp_p(n, n, (h * n) as u64, &vec![1; 2 * n], Alternative::Greater).unwrap();
             assert!((got - want).abs() <= 1e-13 * want, "{h}: {got} vs {want}");
         }
     }
@@ -621,7 +638,7 @@ mod tests {
             let h = case["h"].as_u64().unwrap();
             let alt = Alternative::parse(case["alternative"].as_str().unwrap()).unwrap();
             let want = case["p"].as_f64().unwrap();
-            let got = exact_2samp_p(3000, 2500, h, &[], alt);
+            let got = exact_2samp_p(3000, 2500, h, &[], alt).unwrap();
             assert!(
                 rel_close(got, want, 1e-12),
                 "h={h} {alt:?}: {got} vs {want}"
@@ -662,8 +679,8 @@ mod tests {
                 y.sort_by(f64::total_cmp);
                 let s = two_sample_statistic(&x, &y).unwrap();
                 let h = s.numerator(alt);
-                let p_ge = exact_2samp_p(37, 53, h, &s.blocks, alt);
-                let p_gt = exact_2samp_p(37, 53, h + 1, &s.blocks, alt);
+                let p_ge = exact_2samp_p(37, 53, h, &s.blocks, alt).unwrap();
+                let p_gt = exact_2samp_p(37, 53, h + 1, &s.blocks, alt).unwrap();
                 rand_p.push(p_gt + rng.uniform() * (p_ge - p_gt));
                 plain.push(p_ge);
             }
@@ -710,12 +727,12 @@ mod tests {
         // D = 1, so p = 2 / C(n1 + n2, n1) by counting. For 700 + 700 that is about 1e-420,
         // far below f64::MIN_POSITIVE: expected exactly 0 rather than subnormal noise.
         let blocks = vec![1usize; 1400];
-        let p = exact_2samp_p(700, 700, 700 * 700, &blocks, Alternative::TwoSided);
+        let p = exact_2samp_p(700, 700, 700 * 700, &blocks, Alternative::TwoSided).unwrap();
         assert_eq!(p, 0.0);
         // And at 500 + 500 the value is still representable and positive: 2 / C(1000, 500)
         // = 3.7e-299 (log10 C(1000, 500) = 298.43..., from lgamma; tolerance 1e-6 relative).
         let blocks = vec![1usize; 1000];
-        let p = exact_2samp_p(500, 500, 500 * 500, &blocks, Alternative::TwoSided);
+        let p = exact_2samp_p(500, 500, 500 * 500, &blocks, Alternative::TwoSided).unwrap();
         let log10_c = (ln_choose(1000, 500)) / std::f64::consts::LN_10;
         let expected = 2.0 * 10f64.powf(-log10_c);
         assert!((p - expected).abs() <= 1e-6 * expected, "{p} vs {expected}");

@@ -2,6 +2,7 @@
 //! ties) and the asymptotic one.
 
 use super::*;
+use crate::stats::grow;
 use crate::stats::sum::NeumaierSum;
 
 /// The result of a two-sample test.
@@ -116,7 +117,7 @@ pub fn two_sample_statistic(x: &[f64], y: &[f64]) -> Result<TwoSampleStatistic, 
         while j < n2 && y[j] == v {
             j += 1;
         }
-        blocks.push(i + j - start);
+        crate::stats::grow::push(&mut blocks, i + j - start)?;
         let diff = i as i128 * n2 as i128 - j as i128 * n1 as i128;
         plus = plus.max(diff);
         minus = minus.max(-diff);
@@ -197,7 +198,7 @@ pub fn ks_2samp_from_statistic(
     let d = s.d(alternative);
     let (p, method) = if exact {
         (
-            exact_2samp_p(s.n1, s.n2, h, &s.blocks, alternative),
+            exact_2samp_p(s.n1, s.n2, h, &s.blocks, alternative)?,
             MethodUsed::Exact,
         )
     } else if let Some(p) = s
@@ -227,14 +228,17 @@ pub fn ks_2samp_from_statistic(
 /// lattice-path walk of the module docs.
 ///
 /// `blocks` must sum to `n1 + n2`; a block list that does not is treated as untied.
+/// [`TestError::OutOfMemory`] when the walk's two buffers (`n1 + n2 + 1` flags and
+/// `n1 + 1` doubles) do not fit.
 /// A p-value below the smallest normal double (about 2.2e-308) is returned as 0.
 ///
 /// # Example
 /// ```
 /// use ogive::stats::ks::{exact_2samp_p, Alternative};
 /// // n1 = n2 = 2, no ties: D = 1 happens for 2 of the 6 splits.
-/// let p = exact_2samp_p(2, 2, 4, &[1, 1, 1, 1], Alternative::TwoSided);
+/// let p = exact_2samp_p(2, 2, 4, &[1, 1, 1, 1], Alternative::TwoSided)?;
 /// assert!((p - 2.0 / 6.0).abs() < 1e-15);
+/// # Ok::<(), ogive::stats::ks::TestError>(())
 /// ```
 pub fn exact_2samp_p(
     n1: usize,
@@ -242,13 +246,13 @@ pub fn exact_2samp_p(
     h: u64,
     blocks: &[usize],
     alternative: Alternative,
-) -> f64 {
+) -> Result<f64, TestError> {
     let n = n1 + n2;
     if h == 0 || n1 == 0 || n2 == 0 {
-        return 1.0;
+        return Ok(1.0);
     }
     // checked[s]: whether the ECDFs are compared after s pooled values.
-    let mut checked = vec![false; n + 1];
+    let mut checked = grow::filled(n + 1, false)?;
     if blocks.iter().sum::<usize>() == n {
         let mut s = 0;
         for &b in blocks {
@@ -276,7 +280,7 @@ pub fn exact_2samp_p(
             Alternative::Less | Alternative::TwoSided => -diff >= h,
         }
     };
-    let mut cur = vec![0.0f64; n1 + 1];
+    let mut cur = grow::filled(n1 + 1, 0.0f64)?;
     cur[0] = 1.0;
     let (mut lo, mut hi) = (0usize, 0usize);
     let mut exited = NeumaierSum::default();
@@ -329,11 +333,11 @@ pub fn exact_2samp_p(
                 lo += 1;
             }
             if empty {
-                return normal_or_zero(exited.value());
+                return Ok(normal_or_zero(exited.value()));
             }
         }
     }
-    normal_or_zero(exited.value())
+    Ok(normal_or_zero(exited.value()))
 }
 
 /// A probability from the lattice walk, clamped to [0, 1]. Below the smallest normal
