@@ -18,6 +18,7 @@ use crate::stats::mixture::MixtureError;
 use crate::stats::resolution::{GridError, Resolution};
 use crate::stats::sketch::SketchError;
 use crate::value::ValueError;
+use crate::value::empirical::BlobError;
 use crate::value::model::ModelError;
 
 /// What an adapter can reject. The SQL function name is added by [`fail`].
@@ -179,9 +180,9 @@ impl fmt::Display for ArgError {
             ),
             ArgError::OutOfMemory { held } => write!(
                 f,
-                "ran out of memory holding {held} values of one group; an exact quantile keeps \
-                 every value, so group more finely or use sketch_quantile(quantile_sketch(x), p), which \
-                 needs 64 KB per group"
+                "ran out of memory holding {held} values of one group; this function keeps \
+                 every value, so group more finely (GROUP BY, WHERE) or raise the memory limit \
+                 (for a quantile, sketch_quantile(quantile_sketch(x), p) needs 64 KB per group)"
             ),
         }
     }
@@ -211,15 +212,34 @@ impl From<TestError> for ArgError {
     }
 }
 
+impl From<crate::stats::grow::OutOfMemory> for ArgError {
+    fn from(e: crate::stats::grow::OutOfMemory) -> ArgError {
+        ArgError::OutOfMemory { held: e.held }
+    }
+}
+
 impl From<StatsError> for ArgError {
+    /// Out of memory in a kernel becomes [`ArgError::OutOfMemory`], whose text says what
+    /// to do.
     fn from(e: StatsError) -> Self {
-        ArgError::Stats(e)
+        match e {
+            StatsError::OutOfMemory { held } => ArgError::OutOfMemory { held },
+            e => ArgError::Stats(e),
+        }
     }
 }
 
 impl From<ValueError> for ArgError {
+    /// A BLOB that could not be read for want of memory is no bad BLOB: it becomes
+    /// [`ArgError::OutOfMemory`].
     fn from(e: ValueError) -> Self {
-        ArgError::Value(e)
+        match e {
+            ValueError::BadBlob {
+                problem: BlobError::Parts(StatsError::OutOfMemory { held }),
+                ..
+            } => ArgError::OutOfMemory { held },
+            e => ArgError::Value(e),
+        }
     }
 }
 
@@ -290,7 +310,25 @@ impl std::error::Error for FunctionError {
 impl FunctionError {
     /// Whether memory ran out (engines report this with their out-of-memory code).
     pub fn is_out_of_memory(&self) -> bool {
-        matches!(self.error, ArgError::OutOfMemory { .. })
+        use crate::stats::series::SeriesError;
+        let value = |p: &BlobError| {
+            matches!(
+                p,
+                BlobError::Parts(StatsError::OutOfMemory { .. })
+                    | BlobError::Readings(CensoredError::OutOfMemory)
+            )
+        };
+        match &self.error {
+            ArgError::OutOfMemory { .. }
+            | ArgError::Stats(StatsError::OutOfMemory { .. })
+            | ArgError::Fit(FitError::OutOfMemory { .. })
+            | ArgError::Test(TestError::OutOfMemory { .. })
+            | ArgError::Censored(CensoredError::OutOfMemory)
+            | ArgError::Series(SeriesError::OutOfMemory { .. }) => true,
+            ArgError::Value(ValueError::BadBlob { problem, .. })
+            | ArgError::Value(ValueError::BadCensored { problem, .. }) => value(problem),
+            _ => false,
+        }
     }
 
     /// Whether the engine's cancellation stopped the call ([`crate::stats::cancel`]);

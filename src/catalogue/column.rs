@@ -460,7 +460,12 @@ impl State for QuantileState {
             .merge(other.p.clone(), "p")
             .map_err(|e| fail(name, e))?;
         self.ty.merge(other.ty.clone()).map_err(|e| fail(name, e))?;
-        let theirs = other.values();
+        // Theirs by value: a tree's multiset is read in order without a copy of it.
+        let mut theirs = other.xs;
+        if let Some(t) = &other.tree {
+            t.try_for_each(|x| push(&mut theirs, x))
+                .map_err(|e| fail(name, e))?;
+        }
         match self.tree.as_mut() {
             Some(tree) => {
                 for x in theirs {

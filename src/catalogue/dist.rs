@@ -657,7 +657,7 @@ impl<K: BuildRow> State for BuilderState<K> {
             return Ok(());
         };
         let part = theirs.finish().map_err(|e| fail(K::NAME, e))?;
-        b.extend(&part);
+        b.extend(&part).map_err(|e| fail(K::NAME, e))?;
         Ok(())
     }
 
@@ -670,9 +670,9 @@ impl<K: BuildRow> State for BuilderState<K> {
             Out::Null
         } else if self.series {
             let n_eff = merged_n_eff(self.n_eff.value(), s.total_weight());
-            Out::Blob(empirical::encode_series(&s, n_eff))
+            Out::Blob(empirical::try_encode_series(&s, n_eff).map_err(|e| fail(K::NAME, e))?)
         } else {
-            Out::Blob(empirical::encode(&s))
+            Out::Blob(empirical::try_encode(&s).map_err(|e| fail(K::NAME, e))?)
         })
     }
 
@@ -704,7 +704,7 @@ impl<K: BuildRow> State for BuilderState<K> {
             if let Some(bytes) = r.opt_bytes()? {
                 let s = empirical::decode(bytes)
                     .map_err(|e| ArgError::BadState(format!("its distribution BLOB: {e}")))?;
-                b.extend(&s);
+                b.extend(&s)?;
             }
             state.b = Some(b);
         }
@@ -766,7 +766,7 @@ impl BuildRow for FromDists {
         *n_eff.series |= matches!(&*d, Dist::Series(..));
         let part = d.n_eff().unwrap_or(s.total_weight());
         n_eff.sum.add(part).map_err(|e| fail(Self::NAME, e))?;
-        b.extend(s);
+        b.extend(s).map_err(|e| fail(Self::NAME, e))?;
         Ok(())
     }
 }
@@ -829,7 +829,9 @@ impl State for DistSeriesState {
         let sample = Sample::from_values(in_order.clone()).map_err(|e| fail(Self::NAME, e))?;
         let e =
             series::effective_size(&in_order, sample.values()).map_err(|e| fail(Self::NAME, e))?;
-        Ok(Out::Blob(empirical::encode_series(&sample, e.n_eff)))
+        Ok(Out::Blob(
+            empirical::try_encode_series(&sample, e.n_eff).map_err(|e| fail(Self::NAME, e))?,
+        ))
     }
 
     /// The saved form: the times, then the readings, each as f64s, in arrival order.

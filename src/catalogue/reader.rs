@@ -138,7 +138,14 @@ impl<'a> Call<'a> {
             Some(v) => v,
             None => {
                 let v: Shared = Arc::new(decode(bytes).map_err(|e| self.fail(e))?);
-                LAST.set(Some((tag, bytes.into(), Arc::clone(&v))));
+                // Only an optimisation: when the copy of the bytes does not fit, the thread
+                // keeps no last value (and the next row decodes again).
+                let mut copy = Vec::new();
+                let kept = copy.try_reserve_exact(bytes.len()).is_ok().then(|| {
+                    copy.extend_from_slice(bytes);
+                    (tag, copy.into_boxed_slice(), Arc::clone(&v))
+                });
+                LAST.set(kept);
                 v
             }
         };

@@ -565,43 +565,26 @@ impl<'a> Reader<'a> {
 }
 
 /// Appends `x`, asking the allocator instead of aborting: `false` when memory ran out
-/// (the vector is unchanged).
+/// (the vector is unchanged). The fast lane's form of [`crate::stats::grow::push`].
 #[inline(always)]
 pub fn try_push(xs: &mut Vec<f64>, x: f64) -> bool {
-    if xs.len() == xs.capacity() && !grow(xs) {
-        return false;
-    }
-    xs.push(x);
-    true
+    crate::stats::grow::push(xs, x).is_ok()
 }
 
-/// Grows a full vector (amortised doubling); `false` when memory ran out.
-#[cold]
-#[inline(never)]
-fn grow(xs: &mut Vec<f64>) -> bool {
-    xs.try_reserve(1).is_ok()
-}
-
-/// [`try_push`] as a result: [`ArgError::OutOfMemory`] when memory ran out.
+/// [`crate::stats::grow::push`] with the catalogue's error.
 ///
 /// # Errors
 /// [`ArgError::OutOfMemory`].
 #[inline]
 pub fn push(xs: &mut Vec<f64>, x: f64) -> Result<(), ArgError> {
-    if try_push(xs, x) {
-        Ok(())
-    } else {
-        Err(ArgError::OutOfMemory { held: xs.len() })
-    }
+    Ok(crate::stats::grow::push(xs, x)?)
 }
 
-/// Appends all of `more` to `xs` without aborting on out-of-memory.
+/// Appends all of `more` to `xs` without aborting on out-of-memory
+/// ([`crate::stats::grow::extend`]).
 ///
 /// # Errors
 /// [`ArgError::OutOfMemory`] when memory ran out.
 pub fn try_extend<T: Copy>(xs: &mut Vec<T>, more: &[T]) -> Result<(), ArgError> {
-    xs.try_reserve(more.len())
-        .map_err(|_| ArgError::OutOfMemory { held: xs.len() })?;
-    xs.extend_from_slice(more);
-    Ok(())
+    Ok(crate::stats::grow::extend(xs, more)?)
 }

@@ -46,6 +46,7 @@ use statrs::function::gamma::{digamma, ln_gamma};
 use statrs::statistics::Distribution;
 
 use super::StatsError;
+use super::grow;
 use super::incomplete_gamma::{self, LARGE_SHAPE};
 use super::roots::{invert_cdf, solve_increasing};
 use super::sum::NeumaierSum;
@@ -206,6 +207,14 @@ pub enum FitError {
     NoConvergence { family: Family },
     /// The engine asked the fit to stop ([`crate::stats::cancel`]).
     Interrupted,
+    /// Memory ran out while holding `held` values ([`crate::stats::grow`]).
+    OutOfMemory { held: usize },
+}
+
+impl From<crate::stats::grow::OutOfMemory> for FitError {
+    fn from(e: crate::stats::grow::OutOfMemory) -> FitError {
+        FitError::OutOfMemory { held: e.held }
+    }
 }
 
 impl fmt::Display for FitError {
@@ -280,6 +289,11 @@ impl fmt::Display for FitError {
                 a = article(*family)
             ),
             FitError::Interrupted => f.write_str("interrupted"),
+            FitError::OutOfMemory { held } => write!(
+                f,
+                "ran out of memory holding {held} values for the fit; fit a smaller group \
+                 (GROUP BY, WHERE) or raise the memory limit"
+            ),
             FitError::NoConvergence { family } => write!(
                 f,
                 "the {family} likelihood did not reach its maximum within the evaluation budget; \
@@ -1179,7 +1193,7 @@ fn fit_with(xs: &[f64], ws: Option<&[f64]>, family: Family) -> Result<Parametric
             ([rate, 0.0], n * (rate.ln() - 1.0))
         }
         Family::Gamma => fit_gamma(xs, &w),
-        Family::Weibull => fit_weibull(xs, &w),
+        Family::Weibull => fit_weibull(xs, &w)?,
         Family::Uniform => ([lo, hi], -n * (hi - lo).ln()),
     };
     if !loglik.is_finite() || parameters.iter().any(|p| !p.is_finite()) {
@@ -1231,21 +1245,29 @@ fn mean(xs: &[f64], w: &Weights<'_>) -> f64 {
 /// The weighted mean and standard deviation (divisor the total weight) of `f(x)`: two
 /// passes, the squares scaled by the largest deviation so they cannot overflow.
 fn mean_and_sd(xs: &[f64], w: &Weights<'_>, f: impl Fn(f64) -> f64) -> (f64, f64) {
-    let values: Vec<f64> = xs.iter().map(|&x| f(x)).collect();
-    let m = mean(&values, w);
-    let scale = values.iter().fold(0.0f64, |a, x| a.max((x - m).abs()));
+    // f is applied on every pass rather than kept in a copy: the same values, no buffer
+    // the size of the data.
+    let values = || xs.iter().map(|&x| f(x));
+    let n = w.total;
+    let m = {
+        let m = w.sum(values()) / n;
+        if m.is_finite() {
+            m
+        } else {
+            w.sum(values().map(|x| x / n))
+        }
+    };
+    let scale = values().fold(0.0f64, |a, x| a.max((x - m).abs()));
     if scale == 0.0 {
         return (m, 0.0);
     }
     if !scale.is_finite() {
         // x - m overflowed (values of both signs near 1.8e308): the same on halves.
-        let half = values
-            .iter()
-            .fold(0.0f64, |a, x| a.max((0.5 * x - 0.5 * m).abs()));
-        let ss = w.sum(values.iter().map(|x| ((0.5 * x - 0.5 * m) / half).powi(2)));
+        let half = values().fold(0.0f64, |a, x| a.max((0.5 * x - 0.5 * m).abs()));
+        let ss = w.sum(values().map(|x| ((0.5 * x - 0.5 * m) / half).powi(2)));
         return (m, 2.0 * half * (ss / w.total).sqrt());
     }
-    let ss = w.sum(values.iter().map(|x| ((x - m) / scale).powi(2)));
+    let ss = w.sum(values().map(|x| ((x - m) / scale).powi(2)));
     (m, scale * (ss / w.total).sqrt())
 }
 
@@ -1349,13 +1371,14 @@ fn fit_gamma(xs: &[f64], w: &Weights<'_>) -> ([f64; 2], f64) {
     ([shape, scale], loglik)
 }
 
-/// Weibull MLE: `([shape, scale], loglik)`.
-fn fit_weibull(xs: &[f64], wts: &Weights<'_>) -> ([f64; 2], f64) {
+/// Weibull MLE: `([shape, scale], loglik)`; [`FitError::OutOfMemory`] when its two
+/// buffers of logarithms do not fit.
+fn fit_weibull(xs: &[f64], wts: &Weights<'_>) -> Result<([f64; 2], f64), FitError> {
     let n = wts.total;
-    let logs: Vec<f64> = xs.iter().map(|x| x.ln()).collect();
+    let logs: Vec<f64> = grow::map(xs, |x| x.ln())?;
     let top = logs.iter().fold(f64::NEG_INFINITY, |a, &l| a.max(l));
     // l = ln(x / max x) <= 0, so exp(k l) <= 1 never overflows.
-    let l: Vec<f64> = logs.iter().map(|&v| v - top).collect();
+    let l: Vec<f64> = grow::map(&logs, |&v| v - top)?;
     let (mean_l, sd_l) = mean_and_sd(&l, wts, |v| v);
     // A unit weight multiplies exactly, so unweighted fits are unchanged by it.
     let weight = |i: usize| wts.ws.map_or(1.0, |ws| ws[i]);
@@ -1387,7 +1410,7 @@ fn fit_weibull(xs: &[f64], wts: &Weights<'_>) -> ([f64; 2], f64) {
     let sum_ln = wts.sum(logs.iter().copied());
     let sum_pow = wts.sum(logs.iter().map(|&v| (shape * (v - ln_scale)).exp()));
     let loglik = n * shape.ln() - n * shape * ln_scale + (shape - 1.0) * sum_ln - sum_pow;
-    ([shape, ln_scale.exp()], loglik)
+    Ok(([shape, ln_scale.exp()], loglik))
 }
 
 /// A bracket `[lo, hi]` around `start` with `f(lo) <= 0 <= f(hi)` for an increasing `f`

@@ -62,6 +62,7 @@ pub mod fit;
 mod fixtures;
 pub mod gof;
 pub mod grid;
+pub mod grow;
 pub mod histogram;
 pub mod incomplete_gamma;
 pub mod kde;
@@ -126,6 +127,14 @@ pub enum StatsError {
     LeftFrameUnseen,
     /// A model's p-quantile (0 < p < 1) lies beyond the largest double.
     QuantileOverflow(f64),
+    /// Memory ran out while holding `held` values ([`grow`]).
+    OutOfMemory { held: usize },
+}
+
+impl From<grow::OutOfMemory> for StatsError {
+    fn from(e: grow::OutOfMemory) -> StatsError {
+        StatsError::OutOfMemory { held: e.held }
+    }
 }
 
 impl fmt::Display for StatsError {
@@ -202,6 +211,11 @@ impl fmt::Display for StatsError {
                 f,
                 "the {p} quantile of this model lies beyond the largest REAL (1.8e308); \
                  rescale the model's parameters"
+            ),
+            StatsError::OutOfMemory { held } => write!(
+                f,
+                "ran out of memory holding {held} values; this function keeps every value of \
+                 a group, so group more finely (GROUP BY, WHERE) or raise the memory limit"
             ),
             StatsError::LeftFrameUnseen => write!(
                 f,

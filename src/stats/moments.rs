@@ -69,7 +69,8 @@ impl Profile {
     /// value). The total weight `W` plays the part of n in every formula, so with
     /// whole-number weights the result equals [`Profile::from_sorted`] of the values
     /// repeated as often as their weights say. `n` is the number of values given and
-    /// [`Profile::total_weight`] is `W`. `None` for an empty slice or mismatched lengths.
+    /// [`Profile::total_weight`] is `W`. `None` for an empty slice or mismatched lengths (or
+    /// when memory for the running sums of the weights ran out).
     ///
     /// # Example
     /// ```
@@ -82,9 +83,31 @@ impl Profile {
         if sorted.len() != weights.len() {
             return None;
         }
-        let cumulative = sum::cumulative(weights);
+        // Out of memory for the running sums: None as documented.
+        let cumulative = sum::cumulative(weights).ok()?;
+        Profile::from_weighted_cumulative(sorted, weights, &cumulative)
+    }
+
+    /// [`Profile::from_weighted_sorted`] given also the running compensated sums of the
+    /// weights ([`sum::cumulative`]), which a sample keeps: no allocation. `None` for an
+    /// empty slice or mismatched lengths.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::moments::Profile;
+    /// let p = Profile::from_weighted_cumulative(&[1.0, 5.0], &[3.0, 1.0], &[3.0, 4.0]).unwrap();
+    /// assert_eq!((p.mean, p.median), (Some(2.0), 1.0));
+    /// ```
+    pub fn from_weighted_cumulative(
+        sorted: &[f64],
+        weights: &[f64],
+        cumulative: &[f64],
+    ) -> Option<Profile> {
+        if sorted.len() != weights.len() || cumulative.len() != weights.len() {
+            return None;
+        }
         let q = |p| {
-            quantile_cumulative(sorted, &cumulative, p, QuantileType::DEFAULT)
+            quantile_cumulative(sorted, cumulative, p, QuantileType::DEFAULT)
                 .ok()
                 .flatten()
         };

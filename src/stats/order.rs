@@ -26,8 +26,8 @@
 
 use std::cmp::Ordering;
 
-use super::StatsError;
 use super::rng::splitmix64;
+use super::{StatsError, grow};
 
 const NIL: u32 = u32::MAX;
 
@@ -181,13 +181,31 @@ impl OrderStatistics {
     /// Adds one copy of `x`.
     ///
     /// # Errors
-    /// [`StatsError::NotANumber`] if `x` is NaN.
+    /// [`StatsError::NotANumber`] if `x` is NaN; [`StatsError::OutOfMemory`] when the
+    /// tree cannot grow (it is unchanged).
     pub fn insert(&mut self, x: f64) -> Result<(), StatsError> {
         if x.is_nan() {
             return Err(StatsError::NotANumber);
         }
+        if self.free.is_empty() && self.nodes.len() == self.nodes.capacity() {
+            self.make_room()?;
+        }
         self.root = self.insert_at(self.root, x);
         Ok(())
+    }
+
+    /// Grows the arena (amortised doubling) and the free list with it, so that the free
+    /// list never outgrows its capacity (it holds at most every node): neither `alloc`
+    /// nor `remove` can then allocate.
+    #[cold]
+    #[inline(never)]
+    fn make_room(&mut self) -> Result<(), StatsError> {
+        let held = self.nodes.len();
+        grow::room(&mut self.nodes, 1)?;
+        let more = self.nodes.capacity() - self.free.len();
+        self.free
+            .try_reserve_exact(more)
+            .map_err(|_| StatsError::OutOfMemory { held })
     }
 
     fn insert_at(&mut self, t: u32, x: f64) -> u32 {
@@ -326,6 +344,40 @@ impl OrderStatistics {
             }
         }
         acc
+    }
+
+    /// Calls `f` on every value in ascending order, repeats included, stopping at the
+    /// first error (O(n)). The walk's stack grows with the tree's depth (O(log n) expected
+    /// for a treap), not with n.
+    ///
+    /// # Errors
+    /// The first error of `f`.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::stats::order::OrderStatistics;
+    /// let s = OrderStatistics::from_values(&[2.0, 2.0, -1.0]).unwrap();
+    /// let mut seen = Vec::new();
+    /// s.try_for_each(|x| { seen.push(x); Ok::<(), ()>(()) }).unwrap();
+    /// assert_eq!(seen, [-1.0, 2.0, 2.0]);
+    /// ```
+    pub fn try_for_each<E>(&self, mut f: impl FnMut(f64) -> Result<(), E>) -> Result<(), E> {
+        let mut stack: Vec<u32> = Vec::new();
+        let mut t = self.root;
+        while t != NIL || !stack.is_empty() {
+            while t != NIL {
+                stack.push(t);
+                t = self.nodes[t as usize].left;
+            }
+            if let Some(top) = stack.pop() {
+                let n = &self.nodes[top as usize];
+                for _ in 0..n.count {
+                    f(n.key)?;
+                }
+                t = n.right;
+            }
+        }
+        Ok(())
     }
 
     /// The values in ascending order, repeats included (O(n); for tests and debugging).

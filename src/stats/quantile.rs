@@ -36,7 +36,7 @@
 //! as often as its weight says; with fractional weights it is the natural extension, and
 //! type 1 equals `numpy.quantile(x, p, weights=w, method="inverted_cdf")`.
 
-use super::{StatsError, check_probability, check_weight, sum};
+use super::{StatsError, check_probability, check_weight, grow, sum};
 
 /// One of the nine Hyndman-Fan quantile definitions.
 ///
@@ -460,8 +460,12 @@ impl WeightedSorted {
         // By value, then weight: a total order, so the cumulative weights (and so the
         // answer, to the bit) do not depend on the order the pairs came in.
         pairs.sort_unstable_by(|a, b| a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1)));
-        let (values, weights): (Vec<f64>, Vec<f64>) = pairs.into_iter().unzip();
-        let cumulative = sum::cumulative(&weights);
+        let n = pairs.len();
+        let oom = |_| StatsError::OutOfMemory { held: n };
+        let values = grow::map(&pairs, |&(x, _)| x).map_err(oom)?;
+        let weights = grow::map(&pairs, |&(_, w)| w).map_err(oom)?;
+        drop(pairs);
+        let cumulative = sum::cumulative(&weights).map_err(oom)?;
         if cumulative.last().is_some_and(|w| !w.is_finite()) {
             return Err(StatsError::WeightOverflow);
         }

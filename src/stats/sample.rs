@@ -26,7 +26,7 @@ use std::cmp::Ordering;
 use super::ecdf::{ecdf_cumulative, ecdf_sorted};
 use super::moments::Profile;
 use super::quantile::{QuantileType, quantile_cumulative, quantile_sorted};
-use super::{StatsError, check_weight, sum};
+use super::{StatsError, check_weight, grow, sum};
 
 /// A sorted sample with optional frequency weights: an empirical distribution.
 ///
@@ -53,6 +53,21 @@ struct Weights {
 }
 
 /// The canonical order of weighted observations: by value, then by weight.
+/// Sorts by a total order in which equal elements are identical, so a stable and an
+/// unstable sort give the same result. The stable sort (which merges presorted runs, so
+/// merging k sorted samples costs about n log k) needs a scratch buffer of half the
+/// length, which the standard library allocates infallibly; when a buffer that size
+/// cannot be had, the in-place unstable sort is used instead of aborting.
+fn sort_runs<T>(xs: &mut [T], order: impl FnMut(&T, &T) -> Ordering) {
+    let mut probe: Vec<T> = Vec::new();
+    if probe.try_reserve_exact(xs.len() / 2 + 1).is_ok() {
+        drop(probe);
+        xs.sort_by(order);
+    } else {
+        xs.sort_unstable_by(order);
+    }
+}
+
 fn pair_order(a: &(f64, f64), b: &(f64, f64)) -> Ordering {
     a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1))
 }
@@ -141,7 +156,7 @@ impl Sample {
         if let Some(index) = out_of_order {
             return Err(StatsError::NotSorted { index });
         }
-        Sample::assemble(values, weights).check_total()
+        Sample::assemble(values, weights)?.check_total()
     }
 
     /// Refuses a total weight that overflowed: every share would be undefined.
@@ -154,12 +169,15 @@ impl Sample {
     }
 
     /// Builds the running sums of sorted parts.
-    fn assemble(values: Vec<f64>, weights: Option<Vec<f64>>) -> Sample {
-        let weights = weights.map(|each| Weights {
-            cumulative: sum::cumulative(&each),
-            each,
-        });
-        Sample { values, weights }
+    fn assemble(values: Vec<f64>, weights: Option<Vec<f64>>) -> Result<Sample, StatsError> {
+        let weights = match weights {
+            None => None,
+            Some(each) => Some(Weights {
+                cumulative: sum::cumulative(&each)?,
+                each,
+            }),
+        };
+        Ok(Sample { values, weights })
     }
 
     /// The values, ascending.
@@ -241,7 +259,7 @@ impl Sample {
     pub fn profile(&self) -> Option<Profile> {
         match &self.weights {
             None => Profile::from_sorted(&self.values),
-            Some(w) => Profile::from_weighted_sorted(&self.values, &w.each),
+            Some(w) => Profile::from_weighted_cumulative(&self.values, &w.each, &w.cumulative),
         }
     }
 
@@ -280,9 +298,10 @@ impl Sample {
 /// let a = Sample::from_values(vec![3.0, 1.0]).unwrap();
 /// let b = Sample::from_values(vec![2.0]).unwrap();
 /// let mut merged = SampleBuilder::new(false);
-/// merged.extend(&b);
-/// merged.extend(&a);
+/// merged.extend(&b)?;
+/// merged.extend(&a)?;
 /// assert_eq!(merged.finish().unwrap(), Sample::from_values(vec![1.0, 2.0, 3.0]).unwrap());
+/// # Ok::<(), ogive::stats::StatsError>(())
 /// ```
 #[derive(Debug, Clone, Default)]
 pub struct SampleBuilder {
@@ -305,22 +324,29 @@ impl SampleBuilder {
     }
 
     /// Turns the builder weighted, giving the values so far weight 1.
-    fn make_weighted(&mut self) -> &mut Vec<f64> {
-        let n = self.values.len();
-        self.weights.get_or_insert_with(|| vec![1.0; n])
+    fn make_weighted(&mut self) -> Result<&mut Vec<f64>, StatsError> {
+        if self.weights.is_none() {
+            self.weights = Some(grow::filled(self.values.len(), 1.0)?);
+        }
+        Ok(self.weights.get_or_insert_with(Vec::new))
     }
 
     /// Adds one observation with weight 1.
     ///
     /// # Errors
-    /// [`StatsError::NotANumber`] when `x` is NaN.
+    /// [`StatsError::NotANumber`] when `x` is NaN; [`StatsError::OutOfMemory`].
     pub fn push(&mut self, x: f64) -> Result<(), StatsError> {
         if x.is_nan() {
             return Err(StatsError::NotANumber);
         }
-        self.values.push(x);
         if let Some(w) = &mut self.weights {
-            w.push(1.0);
+            grow::push(w, 1.0)?;
+        }
+        if let Err(e) = grow::push(&mut self.values, x) {
+            if let Some(w) = &mut self.weights {
+                w.pop();
+            }
+            return Err(e.into());
         }
         Ok(())
     }
@@ -330,7 +356,7 @@ impl SampleBuilder {
     ///
     /// # Errors
     /// [`StatsError::NotANumber`] when `x` is NaN; [`StatsError::BadWeight`] when `w`
-    /// is negative or not finite.
+    /// is negative or not finite; [`StatsError::OutOfMemory`].
     ///
     /// # Example
     /// ```
@@ -348,26 +374,42 @@ impl SampleBuilder {
             return Err(StatsError::NotANumber);
         }
         check_weight(w)?;
-        let weights = self.make_weighted();
+        self.make_weighted()?;
         if w > 0.0 {
-            weights.push(w);
-            self.values.push(x);
+            grow::push(&mut self.values, x)?;
+            if let Some(weights) = &mut self.weights
+                && let Err(e) = grow::push(weights, w)
+            {
+                self.values.pop();
+                return Err(e.into());
+            }
         }
         Ok(())
     }
 
     /// Adds every observation of a sample (the merge of empirical distributions).
-    pub fn extend(&mut self, s: &Sample) {
+    ///
+    /// # Errors
+    /// [`StatsError::OutOfMemory`] when the union does not fit (the builder is unchanged).
+    pub fn extend(&mut self, s: &Sample) -> Result<(), StatsError> {
         if s.is_weighted() {
-            self.make_weighted();
+            self.make_weighted()?;
         }
-        self.values.extend_from_slice(&s.values);
+        let n = self.values.len();
         if let Some(w) = &mut self.weights {
-            match s.weights() {
-                Some(each) => w.extend_from_slice(each),
-                None => w.resize(self.values.len(), 1.0),
-            }
+            let grown = match s.weights() {
+                Some(each) => grow::extend(w, each),
+                None => grow::filled(s.values.len(), 1.0).and_then(|ones| grow::extend(w, &ones)),
+            };
+            grown?;
         }
+        if let Err(e) = grow::extend(&mut self.values, &s.values) {
+            if let Some(w) = &mut self.weights {
+                w.truncate(n);
+            }
+            return Err(e.into());
+        }
+        Ok(())
     }
 
     /// The number of observations collected so far.
@@ -392,14 +434,22 @@ impl SampleBuilder {
         } = self;
         let sample = match weights {
             None => {
-                values.sort_by(f64::total_cmp);
-                Sample::assemble(values, None)
+                sort_runs(&mut values, f64::total_cmp);
+                Sample::assemble(values, None)?
             }
-            Some(weights) => {
-                let mut pairs: Vec<(f64, f64)> = values.into_iter().zip(weights).collect();
-                pairs.sort_by(pair_order);
-                let (values, weights) = pairs.into_iter().unzip();
-                Sample::assemble(values, Some(weights))
+            Some(mut weights) => {
+                let mut pairs: Vec<(f64, f64)> = Vec::new();
+                pairs
+                    .try_reserve_exact(values.len())
+                    .map_err(|_| StatsError::OutOfMemory { held: values.len() })?;
+                pairs.extend(values.iter().copied().zip(weights.iter().copied()));
+                sort_runs(&mut pairs, pair_order);
+                // Written back into the buffers they came from: no third copy.
+                for ((v, w), &(x, m)) in values.iter_mut().zip(weights.iter_mut()).zip(&pairs) {
+                    (*v, *w) = (x, m);
+                }
+                drop(pairs);
+                Sample::assemble(values, Some(weights))?
             }
         };
         sample.check_total()
@@ -417,7 +467,8 @@ mod tests {
         let whole = Sample::from_values(all.to_vec()).unwrap();
         let mut b = SampleBuilder::new(false);
         for chunk in all.chunks(3).rev() {
-            b.extend(&Sample::from_values(chunk.to_vec()).unwrap());
+            b.extend(&Sample::from_values(chunk.to_vec()).unwrap())
+                .unwrap();
         }
         assert_eq!(b.finish().unwrap(), whole);
         // -0.0 sorts before 0.0 under total_cmp, and the two are one cdf step.
@@ -439,7 +490,8 @@ mod tests {
     fn mixing_weighted_and_plain_gives_unit_weights() {
         let mut b = SampleBuilder::new(false);
         b.push(4.0).unwrap();
-        b.extend(&Sample::from_pairs(vec![(1.0, 2.5)]).unwrap());
+        b.extend(&Sample::from_pairs(vec![(1.0, 2.5)]).unwrap())
+            .unwrap();
         b.push(2.0).unwrap();
         let s = b.finish().unwrap();
         assert_eq!(s.values(), &[1.0, 2.0, 4.0]);

@@ -69,16 +69,15 @@ pub fn sum(xs: &[f64]) -> f64 {
 ///
 /// # Example
 /// ```
-/// assert_eq!(ogive::stats::sum::cumulative(&[1.0, 2.0, 0.5]), vec![1.0, 3.0, 3.5]);
+/// assert_eq!(ogive::stats::sum::cumulative(&[1.0, 2.0, 0.5])?, vec![1.0, 3.0, 3.5]);
+/// # Ok::<(), ogive::stats::grow::OutOfMemory>(())
 /// ```
-pub fn cumulative(xs: &[f64]) -> Vec<f64> {
+pub fn cumulative(xs: &[f64]) -> Result<Vec<f64>, super::grow::OutOfMemory> {
     let mut s = NeumaierSum::default();
-    xs.iter()
-        .map(|&x| {
-            s.add(x);
-            s.value()
-        })
-        .collect()
+    super::grow::map(xs, |&x| {
+        s.add(x);
+        s.value()
+    })
 }
 
 /// 32-bit digits held in `i64` limbs, so each limb absorbs 2^30 unnormalised updates.

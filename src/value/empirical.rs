@@ -29,6 +29,7 @@
 use std::fmt;
 
 use crate::stats::StatsError;
+use crate::stats::grow::OutOfMemory;
 use crate::stats::sample::Sample;
 
 /// The first four bytes of every ogive distribution BLOB. The high first byte, as in PNG,
@@ -188,7 +189,64 @@ pub fn checksum(bytes: &[u8]) -> u64 {
 /// assert_eq!(decode(&blob).unwrap(), s);
 /// ```
 pub fn encode(s: &Sample) -> Vec<u8> {
-    write(s, None)
+    let mut out = Vec::with_capacity(encoded_len(s, None));
+    write(s, None, &mut out);
+    out
+}
+
+/// [`encode`] without aborting when the BLOB's buffer cannot be had (the SQL functions'
+/// path: a finalizer must not take the host down).
+///
+/// # Errors
+/// [`OutOfMemory`] when the BLOB does not fit in memory.
+///
+/// # Example
+/// ```
+/// use ogive::value::empirical::{encode, try_encode};
+/// use ogive::stats::sample::Sample;
+/// let s = Sample::from_values(vec![2.0, 1.0]).unwrap();
+/// assert_eq!(try_encode(&s)?, encode(&s));
+/// # Ok::<(), ogive::stats::grow::OutOfMemory>(())
+/// ```
+pub fn try_encode(s: &Sample) -> Result<Vec<u8>, OutOfMemory> {
+    try_write(s, None)
+}
+
+/// [`encode_series`] without aborting when the BLOB's buffer cannot be had.
+///
+/// # Errors
+/// [`OutOfMemory`] when the BLOB does not fit in memory.
+///
+/// # Example
+/// ```
+/// use ogive::value::empirical::{encode_series, try_encode_series};
+/// use ogive::stats::sample::Sample;
+/// let s = Sample::from_values(vec![2.0, 1.0]).unwrap();
+/// assert_eq!(try_encode_series(&s, 1.5)?, encode_series(&s, 1.5));
+/// # Ok::<(), ogive::stats::grow::OutOfMemory>(())
+/// ```
+pub fn try_encode_series(s: &Sample, n_eff: f64) -> Result<Vec<u8>, OutOfMemory> {
+    try_write(s, Some(n_eff))
+}
+
+/// Reserves the BLOB's bytes fallibly, then writes it.
+fn try_write(s: &Sample, n_eff: Option<f64>) -> Result<Vec<u8>, OutOfMemory> {
+    let mut out = Vec::new();
+    out.try_reserve_exact(encoded_len(s, n_eff))
+        .map_err(|_| OutOfMemory { held: s.len() })?;
+    write(s, n_eff, &mut out);
+    Ok(out)
+}
+
+/// The length of the BLOB of `s`.
+fn encoded_len(s: &Sample, n_eff: Option<f64>) -> usize {
+    let header = if n_eff.is_some() {
+        SERIES_HEADER_LEN
+    } else {
+        HEADER_LEN
+    };
+    let per = 8 * (1 + usize::from(s.is_weighted()));
+    header.saturating_add(per.saturating_mul(s.len()))
 }
 
 /// Writes a sample of a series with its effective size as a version-3 BLOB (kind 3). The
@@ -205,19 +263,16 @@ pub fn encode(s: &Sample) -> Vec<u8> {
 /// assert_eq!(decode_series(&blob).unwrap(), (s, 1.5));
 /// ```
 pub fn encode_series(s: &Sample, n_eff: f64) -> Vec<u8> {
-    write(s, Some(n_eff))
+    let mut out = Vec::with_capacity(encoded_len(s, Some(n_eff)));
+    write(s, Some(n_eff), &mut out);
+    out
 }
 
-/// Writes version 1, or version 3 when an effective size is given.
-fn write(s: &Sample, n_eff: Option<f64>) -> Vec<u8> {
+/// Writes version 1, or version 3 when an effective size is given, into `out`, which has
+/// room for [`encoded_len`] bytes (so nothing here allocates).
+fn write(s: &Sample, n_eff: Option<f64>, out: &mut Vec<u8>) {
     let weights = s.weights();
     let n = s.len();
-    let header = if n_eff.is_some() {
-        SERIES_HEADER_LEN
-    } else {
-        HEADER_LEN
-    };
-    let mut out = Vec::with_capacity(header + 8 * n * (1 + usize::from(weights.is_some())));
     out.extend_from_slice(&MAGIC);
     if n_eff.is_some() {
         out.push(VERSION_SERIES);
@@ -240,9 +295,8 @@ fn write(s: &Sample, n_eff: Option<f64>) -> Vec<u8> {
     for &w in weights.unwrap_or(&[]) {
         out.extend_from_slice(&w.to_le_bytes());
     }
-    let sum = checksum(&out);
+    let sum = checksum(out);
     out[CHECKSUM_AT..HEADER_LEN].copy_from_slice(&sum.to_le_bytes());
-    out
 }
 
 /// Reads 8 bytes at `at` as a little-endian array; the caller has checked the length.
@@ -252,12 +306,18 @@ fn word(bytes: &[u8], at: usize) -> [u8; 8] {
     w
 }
 
-/// Reads `count` f64 values starting at byte `at`.
-fn floats(bytes: &[u8], at: usize, count: usize) -> Vec<f64> {
-    bytes[at..at + 8 * count]
-        .chunks_exact(8)
-        .map(|c| f64::from_le_bytes([c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7]]))
-        .collect()
+/// Reads `count` f64 values starting at byte `at`; out of memory as
+/// [`BlobError::Parts`] of [`StatsError::OutOfMemory`].
+fn floats(bytes: &[u8], at: usize, count: usize) -> Result<Vec<f64>, BlobError> {
+    let mut out = Vec::new();
+    out.try_reserve_exact(count)
+        .map_err(|_| BlobError::Parts(StatsError::OutOfMemory { held: count }))?;
+    out.extend(
+        bytes[at..at + 8 * count]
+            .chunks_exact(8)
+            .map(|c| f64::from_le_bytes([c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7]])),
+    );
+    Ok(out)
 }
 
 /// Reads and checks a BLOB.
@@ -332,8 +392,12 @@ fn read(bytes: &[u8], series: bool) -> Result<(Sample, Option<f64>), BlobError> 
     }
     // The length matched a real slice, so n fits in usize.
     let n = n as usize;
-    let values = floats(bytes, header, n);
-    let weights = weighted.then(|| floats(bytes, header + 8 * n, n));
+    let values = floats(bytes, header, n)?;
+    let weights = if weighted {
+        Some(floats(bytes, header + 8 * n, n)?)
+    } else {
+        None
+    };
     let sample = Sample::from_sorted(values, weights).map_err(BlobError::Parts)?;
     let computed = sample.total_weight();
     if computed.to_bits() != stored_total.to_bits() {

@@ -359,14 +359,26 @@ pub fn execute(
             ));
         }
         let columns: Vec<String> = stmt.column_names().map(String::from).collect();
-        let mut out = Vec::new();
+        let mut out: Vec<Vec<Value>> = Vec::new();
         let mut rows = stmt.raw_query();
+        // The rows are held fallibly: a result too large for memory is a statement error,
+        // not an abort.
+        let too_large = |n: usize| StatementError::Sql {
+            message: format!(
+                "out of memory holding the result ({n} rows so far); add a LIMIT, filter \
+                 with WHERE or aggregate the rows"
+            ),
+            offset: None,
+        };
         while let Some(row) = rows.next().map_err(sql_error)? {
-            let mut values = Vec::with_capacity(ncol);
+            let mut values = Vec::new();
+            values
+                .try_reserve_exact(ncol)
+                .map_err(|_| too_large(out.len()))?;
             for c in 0..ncol {
                 values.push(row.get::<_, Value>(c).map_err(sql_error)?);
             }
-            out.push(values);
+            ogive::stats::grow::push(&mut out, values).map_err(|_| too_large(out.len()))?;
         }
         Ok(Outcome::Rows(ResultSet { columns, rows: out }))
     })

@@ -139,6 +139,17 @@ pub enum TestError {
         /// What the cdf returned.
         value: f64,
     },
+    /// Memory ran out ([`crate::stats::grow`]).
+    OutOfMemory {
+        /// How many elements the growing buffer held.
+        held: usize,
+    },
+}
+
+impl From<crate::stats::grow::OutOfMemory> for TestError {
+    fn from(e: crate::stats::grow::OutOfMemory) -> TestError {
+        TestError::OutOfMemory { held: e.held }
+    }
 }
 
 impl fmt::Display for TestError {
@@ -182,6 +193,11 @@ impl fmt::Display for TestError {
             TestError::BadCdf { x, value } => write!(
                 f,
                 "the cdf must return a probability in [0, 1], got {value} at {x}"
+            ),
+            TestError::OutOfMemory { held } => write!(
+                f,
+                "ran out of memory at {held} entries while comparing the samples; test a \
+                 smaller subset (WHERE) or raise the memory limit"
             ),
         }
     }

@@ -2,6 +2,7 @@
 //! ties) and the asymptotic one.
 
 use super::*;
+use crate::stats::grow;
 use crate::stats::sum::NeumaierSum;
 
 /// The result of a two-sample test.
@@ -116,7 +117,7 @@ pub fn two_sample_statistic(x: &[f64], y: &[f64]) -> Result<TwoSampleStatistic, 
         while j < n2 && y[j] == v {
             j += 1;
         }
-        blocks.push(i + j - start);
+        crate::stats::grow::push(&mut blocks, i + j - start)?;
         let diff = i as i128 * n2 as i128 - j as i128 * n1 as i128;
         plus = plus.max(diff);
         minus = minus.max(-diff);
@@ -232,7 +233,9 @@ pub fn ks_2samp_from_statistic(
 /// and polls for cancellation ([`crate::stats::cancel`]) every 256 steps.
 ///
 /// # Errors
-/// [`TestError::Interrupted`] when the engine asked the call to stop.
+/// [`TestError::Interrupted`] when the engine asked the call to stop;
+/// [`TestError::OutOfMemory`] when the walk's two buffers (`n1 + n2 + 1` flags and
+/// `n1 + 1` doubles) do not fit.
 ///
 /// # Example
 /// ```
@@ -254,7 +257,7 @@ pub fn exact_2samp_p(
         return Ok(1.0);
     }
     // checked[s]: whether the ECDFs are compared after s pooled values.
-    let mut checked = vec![false; n + 1];
+    let mut checked = grow::filled(n + 1, false)?;
     if blocks.iter().sum::<usize>() == n {
         let mut s = 0;
         for &b in blocks {
@@ -282,7 +285,7 @@ pub fn exact_2samp_p(
             Alternative::Less | Alternative::TwoSided => -diff >= h,
         }
     };
-    let mut cur = vec![0.0f64; n1 + 1];
+    let mut cur = grow::filled(n1 + 1, 0.0f64)?;
     cur[0] = 1.0;
     let (mut lo, mut hi) = (0usize, 0usize);
     let mut exited = NeumaierSum::default();
