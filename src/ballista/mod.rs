@@ -8,13 +8,13 @@
 //! ([`connect`]). Nothing here is per function: a new registry row is on Ballista as
 //! soon as it is on DataFusion.
 //!
-//! What travels: scalars, aggregates (their partial state is the catalogue's saved form
-//! in one BINARY column, which Ballista's shuffle carries like any other column), the
-//! aggregates used as window functions, and `->>` / `->` (the client plans them into
-//! ordinary function calls). What does not: table functions (`dist_steps`, ...). A table
-//! function's rows are an in-memory table on the client, and Ballista's plan codec has
-//! no encoding for an in-memory table, so the scheduler refuses the query with its own
-//! error (`tests/ballista.rs`, `a_table_function_does_not_travel`).
+//! What travels: every kind ogive has. Scalars; aggregates (their partial state is the
+//! catalogue's saved form in one BINARY column, which Ballista's shuffle carries like any
+//! other column); the aggregates used over window frames (ogive defines no separate window
+//! UDFs); `->>` and `->` (the client plans them into ordinary function calls); and table
+//! functions with constant arguments, as on DataFusion (the client evaluates them while
+//! planning and the plan carries their rows). `tests/ballista.rs` runs each kind on a
+//! scheduler with two executors against SQLite.
 
 use std::net::SocketAddr;
 use std::sync::Arc;
@@ -153,7 +153,8 @@ pub fn connect(scheduler: &str) -> Result<SessionContext, DataFusionError> {
                 "scheduler address {scheduler:?} is not HOST:PORT (for example 127.0.0.1:50050)"
             ))
         })?;
-    let state =
-        session(SessionConfig::new())?.upgrade_for_ballista(format!("http://{host}:{port}"))?;
-    Ok(SessionContext::new_with_state(state))
+    // Upgrading replaces the state's functions with Ballista's defaults: register after.
+    let state = default_session_builder(SessionConfig::new())?
+        .upgrade_for_ballista(format!("http://{host}:{port}"))?;
+    Ok(SessionContext::new_with_state(with_ogive(state)?))
 }
