@@ -119,6 +119,31 @@ fn on_cluster(
         .unwrap_or_else(|_| panic!("Ballista took over {QUERY_LIMIT:?}: {sql}"))
 }
 
+/// Runs a shell command, killed if it takes over `QUERY_LIMIT`: its exit code, stdout,
+/// stderr.
+fn run_limited(cmd: &mut Command) -> (Option<i32>, String, String) {
+    let mut child = cmd
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let start = Instant::now();
+    while child.try_wait().unwrap().is_none() {
+        if start.elapsed() > QUERY_LIMIT {
+            let _ = child.kill();
+            let _ = child.wait();
+            panic!("the shell took over {QUERY_LIMIT:?}");
+        }
+        std::thread::sleep(Duration::from_millis(50));
+    }
+    let out = child.wait_with_output().unwrap();
+    (
+        out.status.code(),
+        String::from_utf8_lossy(&out.stdout).into(),
+        String::from_utf8_lossy(&out.stderr).into(),
+    )
+}
+
 /// The split readings as Parquet in a new folder, and the cluster's logs beside it.
 fn setup(name: &str) -> (std::path::PathBuf, std::path::PathBuf) {
     let root = tempdir(&format!("ballista-{name}"));
@@ -190,6 +215,41 @@ fn exact_functions_agree_bit_for_bit_with_sqlite_on_two_executors() {
     assert!(missing.is_err());
     let again = on_cluster(&rt, &ctx, "SELECT median(x) FROM t").unwrap();
     assert_eq!(again.len(), 1);
+    // The shell: a check file with --engine ballista --scheduler, one check passing and
+    // one failing, with the same verdicts as on SQLite's copy of the rows.
+    let checks = root.join("checks.sql");
+    std::fs::write(
+        &checks,
+        "-- every group's median lies between its quartiles\n\
+         SELECT g, quantile(x, 0.25) <= median(x) AND median(x) <= quantile(x, 0.75) AS ok \
+         FROM t GROUP BY g;\n\
+         -- no group's 90th percentile is above 4 (false on these rows)\n\
+         SELECT g, quantile(x, 0.9) <= 4 AS ok FROM t GROUP BY g;\n",
+    )
+    .unwrap();
+    let out = run_limited(
+        Command::new(env!("CARGO_BIN_EXE_ogive"))
+            .args([
+                "check",
+                "--format",
+                "csv",
+                "--engine",
+                "ballista",
+                "--scheduler",
+            ])
+            .arg(cluster.scheduler.to_string())
+            .arg(format!("--table=t={}", data.display()))
+            .arg(&checks),
+    );
+    assert_eq!(out.0, Some(1), "{}", out.2);
+    assert!(
+        out.1
+            .contains("every group's median lies between its quartiles")
+            && out.1.contains("pass"),
+        "{}",
+        out.1
+    );
+    assert!(out.1.contains("fail"), "{}", out.1);
     drop(cluster);
     std::fs::remove_dir_all(&root).ok();
 }
