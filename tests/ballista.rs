@@ -253,3 +253,44 @@ fn exact_functions_agree_bit_for_bit_with_sqlite_on_two_executors() {
     drop(cluster);
     std::fs::remove_dir_all(&root).ok();
 }
+
+#[test]
+fn engine_flags_and_an_unreachable_scheduler_give_clear_errors() {
+    let root = tempdir("ballista-flags");
+    let q = root.join("q.sql");
+    std::fs::write(
+        &q,
+        "SELECT median(column1) AS m FROM (VALUES (1.0), (3.0));\n",
+    )
+    .unwrap();
+    let shell =
+        |args: &[&str]| run_limited(Command::new(env!("CARGO_BIN_EXE_ogive")).args(args).arg(&q));
+    let (code, _, err) = shell(&["run", "--engine", "ballista"]);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(
+        err.contains("--engine ballista needs --scheduler HOST:PORT"),
+        "{err}"
+    );
+    let (code, _, err) = shell(&[
+        "run",
+        "--engine",
+        "datafusion",
+        "--scheduler",
+        "127.0.0.1:1",
+    ]);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("is for --engine ballista"), "{err}");
+    let (code, _, err) = shell(&["check", "--engine", "ballista", "--scheduler", "nohost"]);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("\"nohost\" is not HOST:PORT"), "{err}");
+    // Nobody listens on the port: the statement fails with the connection error, in time.
+    let port = free_ports(1)[0].to_string();
+    let addr = format!("127.0.0.1:{port}");
+    let (code, _, err) = shell(&["run", "--engine", "ballista", "--scheduler", &addr]);
+    assert_eq!(code, Some(1), "{err}");
+    assert!(
+        err.contains(&addr) || err.to_lowercase().contains("connect"),
+        "{err}"
+    );
+    std::fs::remove_dir_all(&root).ok();
+}
