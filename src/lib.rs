@@ -30,6 +30,8 @@
 
 #![warn(clippy::undocumented_unsafe_blocks)]
 
+#[cfg(feature = "ballista")]
+pub mod ballista;
 pub mod catalogue;
 #[cfg(feature = "datafusion")]
 pub mod datafusion;

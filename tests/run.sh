@@ -1,6 +1,7 @@
 #!/usr/bin/env bash
 # The whole test suite: Rust unit, doc and integration tests (also with the DataFusion
-# adapter), the loadable extension's own tests, and the Python cross-checks through the real extension (apsw and the sqlite3 CLI).
+# and Ballista adapters), the loadable extension's own tests, and the Python cross-checks
+# through the real extension (apsw and the sqlite3 CLI).
 # Creates .venv from tests/requirements.txt on first use.
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -11,11 +12,14 @@ export OGIVE_EXTENSION="$PWD/ext/target/release/libogive.so"
 
 echo "== cargo test (library, shell, integration)"
 cargo test
-echo "== cargo test --features datafusion (the DataFusion adapter, and the shell on it)"
+echo "== cargo test --features datafusion,ballista (the DataFusion adapter, the shell on it, and"
+echo "   a Ballista scheduler with two executors on 127.0.0.1)"
 # DataFusion takes minutes to build the first time; the default build does not include it.
-cargo test --features datafusion --test datafusion --test shell_datafusion
-cargo test --features datafusion --lib -- datafusion::
-cargo test --features datafusion --doc -- datafusion
+# One test build serves both adapters (ballista includes datafusion); the datafusion-only
+# build is checked by clippy in .ci/run.
+cargo test --features datafusion,ballista --test datafusion --test shell_datafusion --test ballista
+cargo test --features datafusion,ballista --lib -- datafusion:: ballista::
+cargo test --features datafusion,ballista --doc -- datafusion ballista
 echo "== cargo test (extension entry point)"
 cargo test --release --manifest-path ext/Cargo.toml
 

@@ -319,7 +319,7 @@ pub fn check(
     format: Format,
     report_path: Option<&Path>,
     allow_writes: bool,
-    engine: (EngineKind, &[String]),
+    engine: (EngineKind, &[String], Option<&str>),
 ) -> Result<i32, Failure> {
     let mut params = Params::parse(params)?;
     let sources = Source::load_all(files)?;
@@ -336,7 +336,7 @@ pub fn check(
     } else {
         Access::ReadOnly
     };
-    let opened = Opened::open(engine.0, engine.1, db_path, access)?;
+    let opened = Opened::open(engine.0, engine.1, engine.2, db_path, access)?;
     let results = run_checks(opened.engine(), &sources, &mut params)?;
     let names: Vec<String> = sources.iter().map(|s| s.name.clone()).collect();
     if results.is_empty() {

@@ -128,6 +128,9 @@ pub enum EngineKind {
     /// Apache DataFusion over the Parquet and CSV files of --table (needs a build with
     /// `--features datafusion`).
     Datafusion,
+    /// DataFusion on an Apache Ballista cluster: the scheduler of --scheduler plans, its
+    /// executors read the --table files (needs a build with `--features ballista`).
+    Ballista,
 }
 
 /// Where statements run: a SQLite connection, or a DataFusion session.
@@ -162,9 +165,15 @@ impl Opened {
     pub fn open(
         kind: EngineKind,
         tables: &[String],
+        scheduler: Option<&str>,
         db: Option<&Path>,
         access: Access,
     ) -> Result<Opened, Failure> {
+        if let (Some(s), false) = (scheduler, kind == EngineKind::Ballista) {
+            return Err(Failure::usage(format!(
+                "--scheduler {s} is for --engine ballista; give --engine ballista too"
+            )));
+        }
         match kind {
             EngineKind::Sqlite => {
                 if let Some(t) = tables.first() {
@@ -184,12 +193,39 @@ impl Opened {
                 }
                 Opened::fusion(tables)
             }
+            EngineKind::Ballista => {
+                if db.is_some() {
+                    return Err(Failure::usage(
+                        "--db is SQLite's; Ballista reads files given as --table NAME=PATH \
+                         (ogive export writes a SQLite table as Parquet)",
+                    ));
+                }
+                let Some(scheduler) = scheduler else {
+                    return Err(Failure::usage(
+                        "--engine ballista needs --scheduler HOST:PORT (ogive scheduler starts one)",
+                    ));
+                };
+                Opened::ballista(tables, scheduler)
+            }
         }
     }
 
     #[cfg(feature = "datafusion")]
     fn fusion(tables: &[String]) -> Result<Opened, Failure> {
-        crate::fusion::Fusion::open(tables).map(Opened::Fusion)
+        crate::fusion::Fusion::open(tables, None).map(Opened::Fusion)
+    }
+
+    #[cfg(feature = "ballista")]
+    fn ballista(tables: &[String], scheduler: &str) -> Result<Opened, Failure> {
+        crate::fusion::Fusion::open(tables, Some(scheduler)).map(Opened::Fusion)
+    }
+
+    #[cfg(not(feature = "ballista"))]
+    fn ballista(_: &[String], _: &str) -> Result<Opened, Failure> {
+        Err(Failure::usage(
+            "this ogive was built without Ballista: build it with \
+             `cargo build --release --features ballista`",
+        ))
     }
 
     #[cfg(not(feature = "datafusion"))]

@@ -61,17 +61,25 @@ fn format_of(path: &str) -> Result<&'static str, Failure> {
 
 impl Fusion {
     /// A session with `tables` (`NAME=PATH` each) registered.
-    pub fn open(tables: &[String]) -> Result<Fusion, Failure> {
+    /// With `scheduler` (`HOST:PORT`), the queries run on that Ballista scheduler.
+    pub fn open(tables: &[String], scheduler: Option<&str>) -> Result<Fusion, Failure> {
         let rt = tokio::runtime::Builder::new_multi_thread()
             .enable_all()
             .build()
             .map_err(|e| Failure::failed(format!("cannot start DataFusion's runtime: {e}")))?;
         let partitions = std::thread::available_parallelism().map_or(1, |n| n.get());
-        let mut ctx = SessionContext::new_with_config(
-            SessionConfig::new().with_target_partitions(partitions),
-        );
-        ogive::datafusion::register(&mut ctx)
-            .map_err(|e| Failure::failed(format!("cannot register ogive's functions: {e}")))?;
+        let ctx = match scheduler {
+            None => {
+                let mut ctx = SessionContext::new_with_config(
+                    SessionConfig::new().with_target_partitions(partitions),
+                );
+                ogive::datafusion::register(&mut ctx).map_err(|e| {
+                    Failure::failed(format!("cannot register ogive's functions: {e}"))
+                })?;
+                ctx
+            }
+            Some(s) => remote(s)?,
+        };
         for spec in tables {
             let Some((name, path)) = spec.split_once('=') else {
                 return Err(Failure::usage(format!(
@@ -285,4 +293,17 @@ pub fn export(db: &Path, table: &str, to: &Path, files: usize) -> Result<i32, Fa
         }
     );
     Ok(0)
+}
+
+/// A client context on the Ballista scheduler at `scheduler`.
+#[cfg(feature = "ballista")]
+fn remote(scheduler: &str) -> Result<SessionContext, Failure> {
+    ogive::ballista::connect(scheduler).map_err(|e| Failure::usage(format!("--scheduler: {e}")))
+}
+
+#[cfg(not(feature = "ballista"))]
+fn remote(_: &str) -> Result<SessionContext, Failure> {
+    Err(Failure::usage(
+        "this ogive was built without Ballista: build it with `cargo build --release --features ballista`",
+    ))
 }

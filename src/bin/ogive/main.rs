@@ -9,6 +9,7 @@
 
 mod catalogue;
 mod check;
+mod cluster;
 mod db;
 mod demo;
 #[cfg(feature = "datafusion")]
@@ -125,14 +126,18 @@ struct On {
 /// Which engine runs the statements.
 #[derive(Args)]
 struct EngineArgs {
-    /// sqlite (the --db file) or datafusion (the --table files; needs a build with
-    /// --features datafusion)
+    /// sqlite (the --db file), datafusion (the --table files; needs a build with
+    /// --features datafusion) or ballista (the --table files on the --scheduler's
+    /// cluster; needs --features ballista)
     #[arg(long, value_enum, default_value_t = db::EngineKind::Sqlite)]
     engine: db::EngineKind,
     /// With --engine datafusion: a table of Parquet or CSV files (a file, a glob or a
     /// folder); repeat for more
     #[arg(long = "table", value_name = "NAME=PATH")]
     tables: Vec<String>,
+    /// With --engine ballista: the scheduler to run on (ogive scheduler starts one)
+    #[arg(long, value_name = "HOST:PORT")]
+    scheduler: Option<String>,
 }
 
 #[derive(Subcommand)]
@@ -241,6 +246,29 @@ enum Verb {
         #[arg(long, value_enum, default_value_t = Format::Table)]
         format: Format,
     },
+    /// Start an Apache Ballista scheduler with ogive's functions, for --engine ballista
+    /// (needs a build with --features ballista); runs until stopped
+    Scheduler {
+        /// Address to listen on
+        #[arg(long, value_name = "HOST:PORT", default_value = "127.0.0.1:50050")]
+        bind: std::net::SocketAddr,
+    },
+    /// Start a Ballista executor with ogive's functions, working for a scheduler (needs a
+    /// build with --features ballista); runs until stopped
+    Executor {
+        /// The scheduler to take work from
+        #[arg(long, value_name = "HOST:PORT", default_value = "127.0.0.1:50050")]
+        scheduler: std::net::SocketAddr,
+        /// Address to serve query data on
+        #[arg(long, value_name = "HOST:PORT", default_value = "127.0.0.1:50051")]
+        bind: std::net::SocketAddr,
+        /// The executor's control port (default: the --bind port plus one)
+        #[arg(long, value_name = "PORT")]
+        control_port: Option<u16>,
+        /// Tasks it runs at once (default: the machine's cores)
+        #[arg(long, value_name = "N")]
+        slots: Option<usize>,
+    },
     /// Build the invented refrigerated-trailer demo, run its queries and checks, draw its plots
     Demo {
         /// Directory for the demo plots
@@ -294,6 +322,7 @@ fn main() {
                 no_transaction,
                 engine: engine.engine,
                 tables: &engine.tables,
+                scheduler: engine.scheduler.as_deref(),
             },
         ),
         Some(Verb::Check {
@@ -310,7 +339,7 @@ fn main() {
             format,
             report.as_deref(),
             allow_writes,
-            (engine.engine, &engine.tables),
+            (engine.engine, &engine.tables, engine.scheduler.as_deref()),
         ),
         Some(Verb::Export {
             db,
@@ -355,6 +384,13 @@ fn main() {
             db,
             format,
         }) => demo::demo(&out_dir, db.as_deref(), format),
+        Some(Verb::Scheduler { bind }) => cluster::scheduler(bind),
+        Some(Verb::Executor {
+            scheduler,
+            bind,
+            control_port,
+            slots,
+        }) => cluster::executor(scheduler, bind, control_port, slots),
     };
     let code = match result {
         Ok(code) => code,

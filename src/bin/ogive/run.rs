@@ -197,6 +197,8 @@ pub struct RunOptions<'a> {
     /// The engine, and its tables when it is DataFusion.
     pub engine: EngineKind,
     pub tables: &'a [String],
+    /// The Ballista scheduler, with `--engine ballista`.
+    pub scheduler: Option<&'a str>,
 }
 
 /// Checks `--out-dir` before anything runs, creating the directory when missing.
@@ -236,7 +238,13 @@ pub fn run(
         }
     }
     let dir = csv_dir(options.out_dir, options.format)?;
-    let opened = Opened::open(options.engine, options.tables, db_path, Access::Existing)?;
+    let opened = Opened::open(
+        options.engine,
+        options.tables,
+        options.scheduler,
+        db_path,
+        Access::Existing,
+    )?;
     let stdout = std::io::stdout();
     let mut printer = Printer::new(options.format, stdout.lock());
     if let Some(dir) = dir {
