@@ -186,7 +186,8 @@ impl Moments {
         if !mean.is_finite() {
             return None;
         }
-        let (mut m2, mut m3, mut m4) = (
+        let (mut m1, mut m2, mut m3, mut m4) = (
+            NeumaierSum::default(),
             NeumaierSum::default(),
             NeumaierSum::default(),
             NeumaierSum::default(),
@@ -195,16 +196,26 @@ impl Moments {
             let wi = w(i);
             let d = x * scale - mean;
             let d2 = d * d;
+            m1.add(wi * d);
             m2.add(wi * d2);
             m3.add(wi * (d2 * d));
             m4.add(wi * (d2 * d2));
         }
+        // The moments about the rounded mean, moved to the true one (the corrected two-pass
+        // algorithm; Chan, Golub and LeVeque 1983): `c` is the mean's rounding error, which
+        // near 2^63 is up to 1024 and would otherwise add `c^2` to m2.
+        let c = m1.value() / weight;
+        let (e2, e3, e4) = (
+            m2.value() / weight,
+            m3.value() / weight,
+            m4.value() / weight,
+        );
         Some(Moments {
             weight,
             mean: mean / scale,
-            m2: m2.value() / weight,
-            m3: m3.value() / weight,
-            m4: m4.value() / weight,
+            m2: (e2 - c * c).max(0.0),
+            m3: e3 - 3.0 * c * e2 + 2.0 * c * c * c,
+            m4: e4 - 4.0 * c * e3 + 6.0 * c * c * e2 - 3.0 * c * c * c * c,
             scale,
         })
     }
