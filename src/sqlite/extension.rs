@@ -68,6 +68,12 @@ extern "C" fn bindings_version() -> c_int {
     ffi::SQLITE_VERSION_NUMBER
 }
 
+/// The host's own version (its table's `libversion_number`, which the adapted table
+/// replaces with the bindings' version): what [`crate::sqlite::host_version`] reports in
+/// the loadable build, so that entries the host lacks (`is_interrupted` before 3.41.0)
+/// are never called. 0 until the first load.
+pub(crate) static HOST_VERSION: std::sync::atomic::AtomicI32 = std::sync::atomic::AtomicI32::new(0);
+
 /// Adapted tables, one per distinct host table, kept for the life of the process
 /// (rusqlite keeps pointers into them).
 static ADAPTED: Mutex<Vec<(usize, usize)>> = Mutex::new(Vec::new());
@@ -152,6 +158,7 @@ pub unsafe fn init(
             unsafe { report(pz_err_msg, p_api, &msg) };
             return ffi::SQLITE_ERROR;
         }
+        HOST_VERSION.store(version, std::sync::atomic::Ordering::SeqCst);
         unsafe {
             let table = adapt(p_api, version);
             Connection::extension_init2(db, pz_err_msg, table, init_connection)

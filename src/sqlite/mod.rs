@@ -125,15 +125,38 @@ pub fn out(v: &Value) -> Out {
     }
 }
 
+/// The version of the SQLite library running ogive's callbacks (3041000 for 3.41.0).
+///
+/// In the loadable build this is the host's own number, recorded when the extension was
+/// loaded: the adapted API table reports the bindings' version instead, so asking it
+/// would promise entries (such as `sqlite3_is_interrupted`) that an older host lacks.
+///
+/// # Example
+/// ```
+/// assert!(ogive::sqlite::host_version() >= 3_031_000);
+/// ```
+pub fn host_version() -> std::ffi::c_int {
+    #[cfg(feature = "loadable")]
+    {
+        extension::HOST_VERSION.load(std::sync::atomic::Ordering::SeqCst)
+    }
+    #[cfg(not(feature = "loadable"))]
+    {
+        // SAFETY: sqlite3_libversion_number exists in every SQLite and takes no state.
+        #[allow(unsafe_code)]
+        unsafe {
+            rusqlite::ffi::sqlite3_libversion_number()
+        }
+    }
+}
+
 /// Runs `f` with the connection's interrupt flag as the kernels' cancellation check
 /// ([`crate::stats::cancel`]), where the host has `sqlite3_is_interrupted` (3.41.0 and
 /// later); on older hosts nothing is cancelled before the statement's next row.
 pub(crate) fn cancellable<R>(db: *mut rusqlite::ffi::sqlite3, f: impl FnOnce() -> R) -> R {
-    // SAFETY: sqlite3_libversion_number exists in every SQLite; `db` is the handle of the
-    // connection running the callback, alive for the callback's duration, and the check
-    // is removed before `f` returns.
-    #[allow(unsafe_code)]
-    let has_flag = unsafe { rusqlite::ffi::sqlite3_libversion_number() } >= 3_041_000;
+    // `db` is the handle of the connection running the callback, alive for the callback's
+    // duration, and the check is removed before `f` returns.
+    let has_flag = host_version() >= 3_041_000;
     if db.is_null() || !has_flag {
         return f();
     }

@@ -84,3 +84,41 @@ def test_errors_reach_the_cli_and_it_carries_on(extension_path):
     res = run_cli(script)
     assert "quantile: p must be between 0 and 1, got 1.5" in res.stderr
     assert "still here" in res.stdout
+
+
+def test_kernels_that_poll_for_cancellation_run_on_any_host(extension_path):
+    """Mixture EM, the simplex of a binned fit and the exact KS walk ask the host whether
+    the statement was interrupted; on a host older than 3.41.0 (Debian 12's 3.40.1) there
+    is no way to ask, and they must run to the end rather than fail (they used to stop with
+    "internal error: a panic was caught": the adapted API table reported a newer version).
+
+    References: math.fsum for the one-component mean of [1e16, 1, -1e16, 2] (exact 0.75);
+    scipy.stats.ks_2samp(x, y, method='exact').pvalue (scipy 1.17.1) for the p-value.
+    """
+    if cli_version() < MIN_VERSION:
+        pytest.skip("the extension refuses this host; covered by the test above")
+    import math
+
+    from scipy import stats
+
+    x = [0.1, 0.4, 0.7, 1.3, 2.2, 2.9]
+    y = [1.1, 1.9, 2.5, 3.3, 3.8, 4.6, 5.0]
+    xs = ",".join(f"({v!r}, 0)" for v in x) + "," + ",".join(f"({v!r}, 1)" for v in y)
+    script = (
+        f".load {extension_path}\n"
+        "SELECT dist_mixture(column1, 1) ->> '$.components[0].mean'\n"
+        "  FROM (VALUES (1e16), (1), (-1e16), (2));\n"
+        "SELECT dist_mixture(column1, 2) ->> '$.k' FROM (VALUES (1), (2), (3), (10), (11), (12));\n"
+        "SELECT dist_fit(column1 + 1, 'gamma', 1) ->> '$.resolution'\n"
+        "  FROM (VALUES (1), (2), (2), (3), (5), (8));\n"
+        f"SELECT ks_test(column1, column2, 'two-sided', 'exact') ->> '$.p' FROM (VALUES {xs});\n"
+    )
+    res = run_cli(script)
+    assert res.returncode == 0, res.stderr
+    assert "panic" not in res.stderr and "internal error" not in res.stderr, res.stderr
+    mean, k, resolution, p = res.stdout.strip().splitlines()
+    assert float(mean) == math.fsum([1e16, 1, -1e16, 2]) / 4
+    assert int(k) == 2
+    assert float(resolution) == 1.0
+    want = stats.ks_2samp(x, y, method="exact").pvalue
+    assert float(p) == pytest.approx(want, rel=1e-14)
