@@ -383,19 +383,10 @@ impl OrderStatistics {
     /// The values in ascending order, repeats included (O(n); for tests and debugging).
     pub fn to_sorted_vec(&self) -> Vec<f64> {
         let mut out = Vec::with_capacity(self.len() as usize);
-        let mut stack = Vec::new();
-        let mut t = self.root;
-        while t != NIL || !stack.is_empty() {
-            while t != NIL {
-                stack.push(t);
-                t = self.nodes[t as usize].left;
-            }
-            if let Some(top) = stack.pop() {
-                let n = &self.nodes[top as usize];
-                out.extend(std::iter::repeat_n(n.key, n.count as usize));
-                t = n.right;
-            }
-        }
+        let _ = self.try_for_each(|x| {
+            out.push(x);
+            Ok::<(), ()>(())
+        });
         out
     }
 
