@@ -5,6 +5,15 @@ use std::ffi::{c_char, c_int};
 
 use ogive_core::rusqlite::ffi;
 
+#[cfg(any(test, feature = "sqlite-alloc"))]
+mod alloc;
+
+/// With the `sqlite-alloc` feature, the extension's memory comes from the host SQLite once
+/// it has loaded the extension (see `alloc.rs`).
+#[cfg(feature = "sqlite-alloc")]
+#[global_allocator]
+static GLOBAL: alloc::SqliteAlloc = alloc::SqliteAlloc;
+
 /// The entry point SQLite calls when the extension is loaded.
 ///
 /// # Safety
@@ -15,7 +24,14 @@ pub unsafe extern "C" fn sqlite3_ogive_init(
     pz_err_msg: *mut *mut c_char,
     p_api: *mut ffi::sqlite3_api_routines,
 ) -> c_int {
-    unsafe { ogive_core::extension::init(db, pz_err_msg, p_api) }
+    let rc = unsafe { ogive_core::extension::init(db, pz_err_msg, p_api) };
+    // A successful load proves a host of at least 3.31.0, whose table has malloc64,
+    // realloc64 and free.
+    #[cfg(feature = "sqlite-alloc")]
+    if rc == ffi::SQLITE_OK {
+        unsafe { alloc::install(p_api) };
+    }
+    rc
 }
 
 #[cfg(test)]
