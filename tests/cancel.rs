@@ -81,6 +81,32 @@ fn a_scalar_fit_of_a_stored_value_stops_on_interrupt() {
     assert!(e.contains("dist_mixture_to: interrupted"), "{e}");
 }
 
+/// A table function's rows: dist_curve's density over 300,000 values at 20,000 points is
+/// a kernel sum per point (far longer than the wait in a debug build); the scan stops with
+/// SQLite's interrupt code and the function's name.
+#[test]
+fn a_density_curve_stops_on_interrupt() {
+    let conn = connection();
+    conn.execute_batch("CREATE TABLE d AS SELECT dist_empirical(x) AS d FROM t")
+        .unwrap();
+    let e = interrupted(
+        &conn,
+        "SELECT count(*) FROM dist_curve((SELECT d FROM d), 0, 7, 20000)",
+        Duration::from_millis(500),
+    )
+    .expect("the curve finished before the interrupt");
+    assert!(e.contains("dist_curve: interrupted"), "{e}");
+    // Without an interrupt the same scan answers (a short grid: 5 points).
+    let n: i64 = conn
+        .query_row(
+            "SELECT count(*) FROM dist_curve((SELECT d FROM d), 0, 7, 5)",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    assert_eq!(n, 5);
+}
+
 /// Exact p-values near their limits: the two-sample lattice walk over 63,000 + 63,000
 /// values with D about 0.3 (2 s in a release build, far longer in a debug one), and the
 /// one-sample Durbin matrix of order 995 (29,800 values against their normal fit). The

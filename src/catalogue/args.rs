@@ -54,6 +54,9 @@ pub enum ArgError {
     Missing { signature: &'static str },
     /// A panic caught at the boundary: a bug, reported instead of crashing the host.
     Internal(String),
+    /// The engine asked the running call to stop ([`crate::stats::cancel`]) in work of
+    /// the catalogue's own (a table function's rows).
+    Interrupted,
     /// An error from a test kernel (Kolmogorov-Smirnov and the other comparisons).
     Test(TestError),
     /// A distribution argument of a kind the function does not take (it needs an
@@ -127,6 +130,7 @@ impl fmt::Display for ArgError {
                 f,
                 "internal error: {what}; this is a bug in ogive, please report it"
             ),
+            ArgError::Interrupted => f.write_str("interrupted"),
             ArgError::Test(e) => e.fmt(f),
             ArgError::NeedsEmpirical { arg, got, instead } => write!(
                 f,
@@ -340,6 +344,7 @@ impl FunctionError {
                 | ArgError::Mixture(MixtureError::Interrupted)
                 | ArgError::Censored(CensoredError::Interrupted)
                 | ArgError::Test(TestError::Interrupted)
+                | ArgError::Interrupted
         )
     }
 }

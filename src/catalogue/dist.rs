@@ -902,16 +902,22 @@ fn curve(call: &mut Call<'_>) -> Result<Vec<Out>> {
     };
     let n = check_grid(lo, hi, n).map_err(|e| call.fail(e))?;
     let density = d.density(bw);
-    Ok(linspace(lo, hi, n)
-        .into_iter()
-        .flat_map(|x| {
-            [
-                Out::Real(x),
-                Out::real(d.cdf(x)),
-                Out::real(density.map(|k| k.at(x))),
-            ]
-        })
-        .collect())
+    let grid = linspace(lo, hi, n);
+    let mut rows = Vec::new();
+    crate::stats::grow::room(&mut rows, 3 * grid.len()).map_err(|e| call.fail(e))?;
+    for x in grid {
+        // Each density point is a kernel sum over every value (seconds for thousands of
+        // points over a million values): ask the engine between points.
+        if density.is_some() && crate::stats::cancel::requested() {
+            return Err(call.fail(ArgError::Interrupted));
+        }
+        rows.extend([
+            Out::Real(x),
+            Out::real(d.cdf(x)),
+            Out::real(density.as_ref().map(|k| k.at(x))),
+        ]);
+    }
+    Ok(rows)
 }
 
 /// `dist_histogram(d [, rule])`.

@@ -173,9 +173,18 @@ pub(crate) fn cancellable<R>(db: *mut rusqlite::ffi::sqlite3, f: impl FnOnce() -
     )
 }
 
-/// The one helper that turns a catalogue error into the error SQLite reports.
+/// The one helper that turns a catalogue error into the error SQLite reports (through
+/// rusqlite: the table functions' errors). An interrupted call carries SQLITE_INTERRUPT
+/// and running out of memory SQLITE_NOMEM, each with the message naming the function.
 pub fn to_sqlite(e: FunctionError) -> rusqlite::Error {
-    rusqlite::Error::UserFunctionError(Box::new(e))
+    let code = if e.is_interrupted() {
+        rusqlite::ffi::SQLITE_INTERRUPT
+    } else if e.is_out_of_memory() {
+        rusqlite::ffi::SQLITE_NOMEM
+    } else {
+        return rusqlite::Error::UserFunctionError(Box::new(e));
+    };
+    rusqlite::Error::SqliteFailure(rusqlite::ffi::Error::new(code), Some(e.to_string()))
 }
 
 pub use crate::catalogue::MAX_ARGS;

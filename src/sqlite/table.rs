@@ -81,6 +81,8 @@ pub(crate) struct Table {
     base: ffi::sqlite3_vtab,
     def: &'static FunctionDef,
     t: TableImp,
+    /// The connection, for the cancellation check while rows are computed.
+    db: *mut ffi::sqlite3,
 }
 
 /// The most arguments a table-valued function may take (bits of the plan number).
@@ -107,6 +109,9 @@ unsafe impl<'vtab> VTab<'vtab> for Table {
         };
         guard(def.name, || {
             db.config(VTabConfig::Innocuous)?;
+            // SAFETY: the handle is only read, by `cancellable`, while a scan of this table
+            // runs on its connection.
+            let handle = unsafe { db.handle() };
             let t = imp(def)?;
             let sql = CString::new(schema(&t))?;
             Ok((
@@ -115,6 +120,7 @@ unsafe impl<'vtab> VTab<'vtab> for Table {
                     base: ffi::sqlite3_vtab::default(),
                     def,
                     t,
+                    db: handle,
                 },
             ))
         })
@@ -171,12 +177,13 @@ unsafe impl<'vtab> VTab<'vtab> for Table {
     }
 
     fn open(&'vtab mut self) -> Result<Cursor<'vtab>> {
-        let (def, t) = (self.def, self.t);
+        let (def, t, db) = (self.def, self.t, self.db);
         guard(def.name, || {
             Ok(Cursor {
                 base: ffi::sqlite3_vtab_cursor::default(),
                 def,
                 t,
+                db,
                 rows: Vec::new(),
                 args: Vec::new(),
                 at: 0,
@@ -193,6 +200,7 @@ pub(crate) struct Cursor<'vtab> {
     base: ffi::sqlite3_vtab_cursor,
     def: &'static FunctionDef,
     t: TableImp,
+    db: *mut ffi::sqlite3,
     /// The rows, `t.columns.len()` values each.
     rows: Vec<Value>,
     /// The argument values, for reads of the hidden columns.
@@ -252,7 +260,7 @@ unsafe impl VTabCursor for Cursor<'_> {
             let call_args: Vec<_> = given.iter().map_while(|v| v.map(arg)).collect();
             let mut memo = NoMemo;
             let mut call = Call::new(def.name, &call_args, &mut memo);
-            self.rows = (t.rows)(&mut call)
+            self.rows = super::cancellable(self.db, || (t.rows)(&mut call))
                 .map_err(to_sqlite)?
                 .into_iter()
                 .map(value)
