@@ -22,19 +22,22 @@
 //! `-Inf` or `Inf`, as the quantiles of an empirical value holding an infinite reading do;
 //! NaN never does.
 
+use std::sync::Arc;
+
 use serde_json::json;
 
 use super::args::{ArgError, FunctionError, fail, number, whole};
 use super::column::profile_json;
 use super::column::{load_exact, save_exact};
 use super::reader::{Call, NoMemo};
+use super::scan::{Ready, Scan};
 use super::state::{AggregateImp, Args, Reader, State, Writer, push, try_extend};
 use super::value::{Arg, Out, describe};
 
 use super::{FunctionDef, Imp, Kind, Range, Returns, TableImp};
 use crate::stats::band::dkw_band;
 use crate::stats::check_probability;
-use crate::stats::grid::{check_grid, linspace};
+use crate::stats::grid::{check_grid, grid_point};
 use crate::stats::histogram::{BinRule, histogram};
 use crate::stats::kde::Bandwidth;
 use crate::stats::quantile::QuantileType;
@@ -862,18 +865,19 @@ impl State for DistSeriesState {
 // Table-valued functions
 
 /// `dist_steps(d)`.
-fn steps(call: &mut Call<'_>) -> Result<Vec<Out>> {
+fn steps(call: &mut Call<'_>) -> Result<Box<dyn Scan>> {
     let Some(d) = call.dist(0)? else {
-        return Ok(Vec::new());
+        return Ok(Ready::empty());
     };
     if let Dist::Censored(c) = &*d {
         // Where the estimate's cdf is defined: at the right end of each piece.
-        return Ok(c
+        let rows = c
             .pieces()
             .iter()
             .filter(|p| p.hi.is_finite())
             .flat_map(|p| [Out::Real(p.hi), Out::Real(p.cdf)])
-            .collect());
+            .collect();
+        return Ok(Ready::rows(rows, 2));
     }
     let s = empirical(
         &d,
@@ -881,14 +885,17 @@ fn steps(call: &mut Call<'_>) -> Result<Vec<Out>> {
         "a model's cdf has no steps: draw it with dist_curve(model, lo, hi, n)",
     )
     .map_err(|e| call.fail(e))?;
-    Ok(s.steps()
+    let rows = s
+        .steps()
         .into_iter()
         .flat_map(|(x, f)| [Out::Real(x), Out::Real(f)])
-        .collect())
+        .collect();
+    Ok(Ready::rows(rows, 2))
 }
 
-/// `dist_curve(d, lo, hi, n [, bandwidth])`.
-fn curve(call: &mut Call<'_>) -> Result<Vec<Out>> {
+/// `dist_curve(d, lo, hi, n [, bandwidth])`: the rows are computed one at a time as the
+/// engine reads them ([`CurveScan`]).
+fn curve(call: &mut Call<'_>) -> Result<Box<dyn Scan>> {
     let d = call.dist(0)?;
     let lo = call.number(1, "lo")?;
     let hi = call.number(2, "hi")?;
@@ -898,37 +905,66 @@ fn curve(call: &mut Call<'_>) -> Result<Vec<Out>> {
         Some(v) => bandwidth(v).map_err(|e| call.fail(e))?,
     };
     let (Some(d), Some(lo), Some(hi), Some(n), Some(bw)) = (d, lo, hi, n, bw) else {
-        return Ok(Vec::new());
+        return Ok(Ready::empty());
     };
     let n = check_grid(lo, hi, n).map_err(|e| call.fail(e))?;
-    let density = d.density(bw);
-    let grid = linspace(lo, hi, n);
-    let mut rows = Vec::new();
-    crate::stats::grow::room(&mut rows, 3 * grid.len()).map_err(|e| call.fail(e))?;
-    for x in grid {
-        // Each density point is a kernel sum over every value (seconds for thousands of
-        // points over a million values): ask the engine between points.
-        if density.is_some() && crate::stats::cancel::requested() {
-            return Err(call.fail(ArgError::Interrupted));
+    // The rule's bandwidth, chosen once for the whole grid; `None` where d has no
+    // density (the pdf column is NULL).
+    let bandwidth = d
+        .density(bw)
+        .map(|k| k.bandwidth().map_or(bw, Bandwidth::Fixed));
+    Ok(Box::new(CurveScan {
+        name: call.name(),
+        d,
+        lo,
+        hi,
+        n,
+        at: 0,
+        bandwidth,
+    }))
+}
+
+/// The rows of `dist_curve`: point `at` of the grid, its cdf and its density.
+struct CurveScan {
+    name: &'static str,
+    d: Arc<Dist>,
+    lo: f64,
+    hi: f64,
+    n: usize,
+    at: usize,
+    bandwidth: Option<Bandwidth>,
+}
+
+impl Scan for CurveScan {
+    fn next_row(&mut self, row: &mut Vec<Out>) -> Result<bool> {
+        if self.at >= self.n {
+            return Ok(false);
         }
-        rows.extend([
-            Out::Real(x),
-            Out::real(d.cdf(x)),
-            Out::real(density.as_ref().map(|k| k.at(x))),
-        ]);
+        // A density point is a kernel sum over the values near it (seconds for thousands
+        // of points over a million values): ask the engine before each one.
+        if self.bandwidth.is_some() && crate::stats::cancel::requested() {
+            return Err(fail(self.name, ArgError::Interrupted));
+        }
+        let x = grid_point(self.lo, self.hi, self.n, self.at);
+        self.at += 1;
+        let pdf = self
+            .bandwidth
+            .and_then(|bw| self.d.density(bw))
+            .map(|k| k.at(x));
+        row.extend([Out::Real(x), Out::real(self.d.cdf(x)), Out::real(pdf)]);
+        Ok(true)
     }
-    Ok(rows)
 }
 
 /// `dist_histogram(d [, rule])`.
-fn histogram_rows(call: &mut Call<'_>) -> Result<Vec<Out>> {
+fn histogram_rows(call: &mut Call<'_>) -> Result<Box<dyn Scan>> {
     let rule = match call.optional(1) {
         None => Some(BinRule::Sturges),
         Some(v) => bin_rule(v).map_err(|e| call.fail(e))?,
     };
     let d = call.dist(0)?;
     let (Some(d), Some(rule)) = (d, rule) else {
-        return Ok(Vec::new());
+        return Ok(Ready::empty());
     };
     let s = empirical(
         &d,
@@ -938,7 +974,7 @@ fn histogram_rows(call: &mut Call<'_>) -> Result<Vec<Out>> {
     .map_err(|e| call.fail(e))?;
     let bins = histogram(s, rule).map_err(|e| call.fail(e))?;
     let weighted = s.is_weighted();
-    Ok(bins
+    let rows = bins
         .into_iter()
         .flat_map(|b| {
             let count = if weighted {
@@ -953,5 +989,70 @@ fn histogram_rows(call: &mut Call<'_>) -> Result<Vec<Out>> {
                 Out::Real(b.density),
             ]
         })
-        .collect())
+        .collect();
+    Ok(Ready::rows(rows, 4))
+}
+
+#[cfg(test)]
+mod tests {
+    use std::cell::Cell;
+    use std::rc::Rc;
+
+    use super::*;
+    use crate::stats::cancel::with_check;
+    use crate::stats::grid::linspace;
+
+    /// `dist_curve` computes a row only when asked: reading the arguments evaluates no
+    /// density, each row asks for cancellation once, and an interrupt between rows stops
+    /// the scan with the function's error. The rows are those of the whole grid at once
+    /// (numpy's linspace arithmetic, the kernel density at each point) bit for bit.
+    #[test]
+    fn curve_rows_are_computed_one_at_a_time() {
+        let s = Sample::from_values((0..2000).map(|i| f64::from(i % 37) * 0.25).collect()).unwrap();
+        let blob = crate::value::empirical::encode(&s);
+        let args = [
+            Arg::Blob(&blob),
+            Arg::Real(0.0),
+            Arg::Real(9.0),
+            Arg::Integer(50),
+        ];
+        let asked = Rc::new(Cell::new(0));
+        let count = Rc::clone(&asked);
+        let mut memo = NoMemo;
+        let mut call = Call::new("dist_curve", &args, &mut memo);
+        let (rows, err) = with_check(
+            Box::new(move || {
+                count.set(count.get() + 1);
+                count.get() > 3
+            }),
+            || {
+                let mut scan = curve(&mut call).unwrap();
+                assert_eq!(
+                    asked.get(),
+                    0,
+                    "no density before the first row is asked for"
+                );
+                let mut rows = Vec::new();
+                let mut row = Vec::new();
+                let err = loop {
+                    match scan.next_row(&mut row) {
+                        Ok(true) => rows.push(std::mem::take(&mut row)),
+                        Ok(false) => break None,
+                        Err(e) => break Some(e),
+                    }
+                };
+                (rows, err)
+            },
+        );
+        assert_eq!(rows.len(), 3);
+        assert_eq!(err.unwrap().to_string(), "dist_curve: interrupted");
+        let d = Dist::Empirical(s);
+        let kde = d.density(Bandwidth::Scott).unwrap();
+        for (row, x) in rows.iter().zip(linspace(0.0, 9.0, 50)) {
+            assert_eq!(
+                row,
+                &vec![Out::Real(x), Out::real(d.cdf(x)), Out::Real(kde.at(x))]
+            );
+        }
+    }
 }

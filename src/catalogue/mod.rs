@@ -23,6 +23,7 @@ pub mod dist;
 pub mod models;
 pub mod range;
 pub mod reader;
+pub mod scan;
 pub mod sketch;
 pub mod state;
 pub mod time;
@@ -32,6 +33,7 @@ pub use range::Range;
 
 use args::FunctionError;
 use reader::Call;
+use scan::Scan;
 use state::AggregateImp;
 use value::Out;
 
@@ -164,9 +166,10 @@ pub struct TableImp {
     /// The argument names, in call order; the row's least arity says how many are
     /// required.
     pub args: &'static [&'static str],
-    /// The rows, `columns.len()` values each, flattened. The call holds the arguments
-    /// given, in order (none is NULL: a NULL argument gives no rows before this runs).
-    pub rows: fn(&mut Call<'_>) -> Result<Vec<Out>, FunctionError>,
+    /// Reads the arguments and returns the scan of the rows, `columns.len()` values
+    /// each ([`scan`]). The call holds the arguments given, in order (none is NULL: a
+    /// NULL argument gives no rows before this runs).
+    pub rows: fn(&mut Call<'_>) -> Result<Box<dyn Scan>, FunctionError>,
 }
 
 /// How a function is implemented.

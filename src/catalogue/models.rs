@@ -10,6 +10,7 @@ use super::args::{
 };
 use super::dist::empirical;
 use super::reader::{Call, model_of};
+use super::scan::{Ready, Scan};
 use super::state::{AggregateImp, Args, Field, Reader, State, Writer, push, try_extend};
 use super::value::Out;
 use super::{FunctionDef, Imp, Kind, Range, Returns, TableImp};
@@ -655,12 +656,12 @@ fn dist_component(call: &mut Call<'_>) -> Result<Out> {
 // dist_components(model)
 
 /// `dist_components(model)`: one row per component (a parametric model is one component).
-fn components(call: &mut Call<'_>) -> Result<Vec<Out>> {
+fn components(call: &mut Call<'_>) -> Result<Box<dyn Scan>> {
     let Some(d) = call.model(0)? else {
-        return Ok(Vec::new());
+        return Ok(Ready::empty());
     };
     let Some(model) = model_of(&d) else {
-        return Ok(Vec::new());
+        return Ok(Ready::empty());
     };
     if !matches!(model.law(), Law::Mixture(_)) {
         return Err(call.fail(ArgError::NotAMixture {
@@ -675,7 +676,7 @@ fn components(call: &mut Call<'_>) -> Result<Vec<Out>> {
             Out::Null
         }
     };
-    Ok(model
+    let rows = model
         .components()
         .into_iter()
         .enumerate()
@@ -687,5 +688,6 @@ fn components(call: &mut Call<'_>) -> Result<Vec<Out>> {
                 finite(c.sd),
             ]
         })
-        .collect())
+        .collect();
+    Ok(Ready::rows(rows, 4))
 }

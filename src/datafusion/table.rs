@@ -23,6 +23,7 @@ use super::convert::{Column, data_type, out_array, read_row};
 use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, fail};
 use crate::catalogue::reader::{Call, NoMemo};
+use crate::catalogue::scan::drain;
 use crate::catalogue::value::{Arg, Out};
 use crate::catalogue::{FunctionDef, Imp, MAX_ARGS, Returns};
 
@@ -122,7 +123,10 @@ impl TableFn {
         } else {
             let mut memo = NoMemo;
             let mut call = Call::new(def.name, &values[..n], &mut memo);
-            (imp.rows)(&mut call).map_err(to_datafusion)?
+            // DataFusion plans the rows as one batch: all of them are computed here.
+            (imp.rows)(&mut call)
+                .and_then(|scan| drain(def.name, scan))
+                .map_err(to_datafusion)?
         };
         let width = imp.columns.len();
         let fields: Vec<Field> = imp

@@ -9,8 +9,11 @@
 //! - `best_index` takes equality constraints on the argument columns, in argument order,
 //!   and reports a plan unusable (`SQLITE_CONSTRAINT`) while an argument's value is not yet
 //!   available, so in a join SQLite scans the table the argument comes from first;
-//! - `filter` computes all rows at once; a NULL argument gives no rows, as SQLite's own
-//!   table-valued functions do; a missing required argument is an error naming the function;
+//! - `filter` reads the arguments and computes the first row, `next` each further one
+//!   ([`crate::catalogue::scan`]), each under the connection's interrupt check, so a
+//!   `LIMIT` or an interrupt stops the work; a NULL argument gives no rows, as SQLite's
+//!   own table-valued functions do; a missing required argument is an error naming the
+//!   function;
 //! - every method body runs under [`guard`]: rusqlite does not catch panics in
 //!   virtual-table methods, and a panic unwinding into SQLite would abort the host.
 
@@ -29,6 +32,8 @@ use rusqlite::{Connection, Result, ffi};
 use super::{arg, to_sqlite, value};
 use crate::catalogue::args::{ArgError, fail};
 use crate::catalogue::reader::{Call, NoMemo};
+use crate::catalogue::scan::{Ready, Scan};
+use crate::catalogue::value::Out;
 use crate::catalogue::{FunctionDef, Imp, TableImp};
 
 /// Registers a table-function registry row as an eponymous virtual table.
@@ -184,7 +189,9 @@ unsafe impl<'vtab> VTab<'vtab> for Table {
                 def,
                 t,
                 db,
-                rows: Vec::new(),
+                scan: Ready::empty(),
+                row: Vec::new(),
+                done: true,
                 args: Vec::new(),
                 at: 0,
                 table: PhantomData,
@@ -193,7 +200,8 @@ unsafe impl<'vtab> VTab<'vtab> for Table {
     }
 }
 
-/// A scan of a table-valued function: its rows, computed by `filter`.
+/// A scan of a table-valued function: its current row, computed by `filter` (the first)
+/// or `next`.
 #[repr(C)]
 pub(crate) struct Cursor<'vtab> {
     /// SQLite's part; must come first.
@@ -201,22 +209,30 @@ pub(crate) struct Cursor<'vtab> {
     def: &'static FunctionDef,
     t: TableImp,
     db: *mut ffi::sqlite3,
-    /// The rows, `t.columns.len()` values each.
-    rows: Vec<Value>,
+    /// The rows still to come.
+    scan: Box<dyn Scan>,
+    /// The current row, `t.columns.len()` values.
+    row: Vec<Value>,
+    /// Whether the scan has ended (no current row).
+    done: bool,
     /// The argument values, for reads of the hidden columns.
     args: Vec<Value>,
-    /// The current row.
+    /// The current row's number, from 0.
     at: usize,
     table: PhantomData<&'vtab Table>,
 }
 
 impl Cursor<'_> {
-    fn columns(&self) -> usize {
-        self.t.columns.len()
-    }
-
-    fn row_count(&self) -> usize {
-        self.rows.len() / self.columns().max(1)
+    /// Computes the next row under the connection's interrupt check (after an error the
+    /// scan has ended).
+    fn advance(&mut self) -> Result<()> {
+        self.done = true;
+        let mut row: Vec<Out> = Vec::new();
+        let scan = &mut self.scan;
+        let more = super::cancellable(self.db, || scan.next_row(&mut row)).map_err(to_sqlite)?;
+        self.done = !more;
+        self.row = row.into_iter().map(value).collect();
+        Ok(())
     }
 }
 
@@ -244,7 +260,9 @@ unsafe impl VTabCursor for Cursor<'_> {
                         .unwrap_or(Value::Null)
                 })
                 .collect();
-            self.rows = Vec::new();
+            self.scan = Ready::empty();
+            self.row = Vec::new();
+            self.done = true;
             if given.iter().take(def.required()).any(Option::is_none) {
                 return Err(to_sqlite(fail(
                     def.name,
@@ -260,32 +278,28 @@ unsafe impl VTabCursor for Cursor<'_> {
             let call_args: Vec<_> = given.iter().map_while(|v| v.map(arg)).collect();
             let mut memo = NoMemo;
             let mut call = Call::new(def.name, &call_args, &mut memo);
-            self.rows = super::cancellable(self.db, || (t.rows)(&mut call))
-                .map_err(to_sqlite)?
-                .into_iter()
-                .map(value)
-                .collect();
-            Ok(())
+            self.scan = super::cancellable(self.db, || (t.rows)(&mut call)).map_err(to_sqlite)?;
+            self.advance()
         })
     }
 
     fn next(&mut self) -> Result<()> {
         guard(self.def.name, || {
             self.at += 1;
-            Ok(())
+            self.advance()
         })
     }
 
     fn eof(&self) -> bool {
-        guard(self.def.name, || Ok(self.at >= self.row_count())).unwrap_or(true)
+        self.done
     }
 
     fn column(&self, ctx: &mut Context, i: c_int) -> Result<()> {
         guard(self.def.name, || {
             let i = usize::try_from(i).unwrap_or(usize::MAX);
-            let columns = self.columns();
+            let columns = self.t.columns.len();
             let value = if i < columns {
-                self.rows.get(self.at * columns + i)
+                self.row.get(i)
             } else {
                 self.args.get(i - columns)
             };
@@ -303,16 +317,15 @@ mod tests {
     use super::*;
     use crate::catalogue::Kind;
     use crate::catalogue::args::FunctionError;
-    use crate::catalogue::value::Out;
 
     /// A table function that panics while computing its rows, to show the panic stays
     /// inside ogive.
-    fn panicking_rows(call: &mut Call<'_>) -> std::result::Result<Vec<Out>, FunctionError> {
+    fn panicking_rows(call: &mut Call<'_>) -> std::result::Result<Box<dyn Scan>, FunctionError> {
         let n = call.whole(0, "a")?.unwrap_or(0);
         if n > 2 {
             panic!("row {n} is too many");
         }
-        Ok((0..n).map(Out::Integer).collect())
+        Ok(Ready::rows((0..n).map(Out::Integer).collect(), 1))
     }
 
     static PANICS: FunctionDef = FunctionDef {

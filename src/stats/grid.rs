@@ -40,26 +40,37 @@ pub fn check_grid(lo: f64, hi: f64, n: i64) -> Result<usize, StatsError> {
 /// assert_eq!(ogive::stats::grid::linspace(0.0, 1.0, 5), vec![0.0, 0.25, 0.5, 0.75, 1.0]);
 /// ```
 pub fn linspace(lo: f64, hi: f64, n: usize) -> Vec<f64> {
+    (0..n).map(|i| grid_point(lo, hi, n, i)).collect()
+}
+
+/// Point `i` of [`linspace`]`(lo, hi, n)`, computed alone (for a curve drawn one row at a
+/// time); `hi` for `i >= n - 1` when `n > 1`, `lo` when `n <= 1`.
+///
+/// # Example
+/// ```
+/// use ogive::stats::grid::{grid_point, linspace};
+/// assert_eq!(grid_point(0.0, 1.0, 5, 3), 0.75);
+/// let all = linspace(-1.0, 12.0, 3000);
+/// assert!((0..3000).all(|i| grid_point(-1.0, 12.0, 3000, i).to_bits() == all[i].to_bits()));
+/// ```
+pub fn grid_point(lo: f64, hi: f64, n: usize, i: usize) -> f64 {
     if n <= 1 {
-        return vec![lo; n];
+        return lo;
+    }
+    if i >= n - 1 {
+        return hi;
     }
     let div = (n - 1) as f64;
     let delta = hi - lo;
     let step = delta / div;
-    let mut out: Vec<f64> = (0..n)
-        .map(|i| {
-            let i = i as f64;
-            // numpy falls back to (i / div) * delta when the step underflows to zero.
-            let offset = if step == 0.0 {
-                i / div * delta
-            } else {
-                i * step
-            };
-            offset + lo
-        })
-        .collect();
-    out[n - 1] = hi;
-    out
+    let i = i as f64;
+    // numpy falls back to (i / div) * delta when the step underflows to zero.
+    let offset = if step == 0.0 {
+        i / div * delta
+    } else {
+        i * step
+    };
+    offset + lo
 }
 
 #[cfg(test)]

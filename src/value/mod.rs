@@ -391,6 +391,21 @@ pub enum Density<'a> {
 }
 
 impl Density<'_> {
+    /// The kernel's bandwidth `h` for an estimate; `None` for a model's own density.
+    ///
+    /// # Example
+    /// ```
+    /// use ogive::{stats::kde::Bandwidth, stats::sample::Sample, value::Dist};
+    /// let d = Dist::Empirical(Sample::from_values(vec![0.0, 2.0]).unwrap());
+    /// assert_eq!(d.density(Bandwidth::Fixed(0.5)).unwrap().bandwidth(), Some(0.5));
+    /// ```
+    pub fn bandwidth(&self) -> Option<f64> {
+        match self {
+            Density::Kernel(k) => Some(k.bandwidth()),
+            Density::Model(_) => None,
+        }
+    }
+
     /// The density at `t`: finite, or `+inf` at the pole of a gamma or Weibull model with
     /// shape below 1. NaN only for NaN `t`.
     pub fn at(&self, t: f64) -> f64 {
