@@ -14,7 +14,12 @@
 //! | `sqrt` | `r / sqrt(n)` | the square-root choice |
 //!
 //! The IQR uses type 7 quartiles. These are the formulas, and the order of arithmetic, of
-//! `numpy.histogram_bin_edges`, whose edges the tests reproduce. A bin holds the values
+//! `numpy.histogram_bin_edges`, whose edges the tests reproduce, with one change for
+//! reading: linspace's arithmetic often lands a unit in the last place beside a short
+//! decimal (`88.17999999999999` for 88.18), so an interior edge moves to the shortest
+//! decimal of at most [`SNAP_DIGITS`] significant digits within [`SNAP_ULPS`] units in the
+//! last place of linspace's terms, when no value lies between the two. Counts are then
+//! numpy's exactly and edges within a few units in the last place. A bin holds the values
 //! in `[lo, hi)`, the last bin also its right edge; `density` is `count / (width * n)`, so
 //! the bars integrate to 1.
 
@@ -189,11 +194,69 @@ pub fn bin_edges(sample: &Sample, rule: BinRule) -> Result<Vec<f64>, StatsError>
             }
         }
     };
-    let edges = linspace(first, last, bins + 1);
+    let mut edges = linspace(first, last, bins + 1);
     if edges.windows(2).any(|e| e[0] >= e[1]) {
         return Err(StatsError::BinsTooNarrow { bins });
     }
+    for i in 1..bins {
+        let (e, below, above) = (edges[i], edges[i - 1], edges[i + 1]);
+        // linspace's error at this point: about an ulp of each of `first` and the offset.
+        let tol = SNAP_ULPS / 2.0 * f64::EPSILON * (first.abs() + (e - first).abs());
+        edges[i] = shortest_near(e, tol, |d| {
+            // Still between its neighbours, and no value changes bin.
+            let (a, b) = if d < e { (d, e) } else { (e, d) };
+            below < d
+                && d < above
+                && values.partition_point(|&x| x < b) == values.partition_point(|&x| x < a)
+        });
+    }
     Ok(edges)
+}
+
+/// How far an interior bin edge may move to a shorter decimal, in units in the last place
+/// of the terms of linspace's sum (`first` and `i * step`), whose own error is about one
+/// of each.
+pub const SNAP_ULPS: f64 = 4.0;
+
+/// The most significant digits of a decimal an edge moves to: a longer one would read no
+/// better than the edge itself.
+pub const SNAP_DIGITS: i32 = 12;
+
+/// Exact powers of ten, 1e0 to 1e22 (every one representable as a double).
+const POW10: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+    1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+];
+
+/// The double nearest the shortest decimal (1 to [`SNAP_DIGITS`] significant digits)
+/// within `tol` of `e` that `ok` accepts; `e` itself when there is none.
+///
+/// A candidate with `k` decimals is `m / 10^k` (or `m * 10^-k`) for a whole `m` below
+/// 10^12: both operands exact, so the one rounding of the division gives the double
+/// nearest the decimal, the value Rust's own parser would give.
+fn shortest_near(e: f64, tol: f64, ok: impl Fn(f64) -> bool) -> f64 {
+    if e == 0.0 || !e.is_finite() {
+        return e;
+    }
+    let magnitude = e.abs().log10().floor() as i32;
+    for digits in 1..=SNAP_DIGITS {
+        let k = digits - 1 - magnitude;
+        let Some(&scale) = POW10.get(k.unsigned_abs() as usize) else {
+            continue;
+        };
+        let d = if k >= 0 {
+            (e * scale).round() / scale
+        } else {
+            (e / scale).round() * scale
+        };
+        if d != e && (d - e).abs() <= tol && ok(d) {
+            return d;
+        }
+        if d == e {
+            return e;
+        }
+    }
+    e
 }
 
 /// The histogram of a sample under a rule. Empty for an empty sample.
@@ -245,6 +308,42 @@ pub fn histogram(sample: &Sample, rule: BinRule) -> Result<Vec<Bin>, StatsError>
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn edges_move_to_short_decimals_only_where_no_value_changes_bin() {
+        // numpy.linspace(88.0, 88.3, 6)[3] is 88.17999999999999 (numpy 2.4.6); its
+        // shortest neighbour 88.18 is 1 ulp away.
+        let grid = linspace(88.0, 88.3, 6);
+        assert_eq!(format!("{:?}", grid[3]), "88.17999999999999");
+        let s = Sample::from_values(vec![88.0, 88.1, 88.3]).unwrap();
+        let edges = bin_edges(&s, BinRule::Count(5)).unwrap();
+        assert_eq!(format!("{:?}", edges[3]), "88.18");
+        // A value at 88.17999999999999 would change bin: that edge stays numpy's.
+        let s = Sample::from_values(vec![88.0, grid[3], 88.3]).unwrap();
+        let edges = bin_edges(&s, BinRule::Count(5)).unwrap();
+        assert_eq!(edges[3], grid[3]);
+        // Edges with no short decimal nearby stay numpy's to the bit.
+        let s = Sample::from_values(vec![0.0, 1.0 / 3.0, std::f64::consts::PI]).unwrap();
+        assert_eq!(
+            bin_edges(&s, BinRule::Count(7)).unwrap(),
+            linspace(0.0, std::f64::consts::PI, 8)
+        );
+    }
+
+    #[test]
+    fn shortest_near_finds_the_shortest_accepted_decimal() {
+        let t = 4.0 * f64::EPSILON * 100.0;
+        assert_eq!(shortest_near(88.17999999999999, t, |_| true), 88.18);
+        assert_eq!(shortest_near(0.30000000000000004, 1e-16, |_| true), 0.3);
+        assert_eq!(shortest_near(1234567.0000000002, 1e-9, |_| true), 1234567.0);
+        assert_eq!(shortest_near(-2.5e-8 - 1e-24, 1e-22, |_| true), -2.5e-8);
+        // Refused candidates leave the value as it was.
+        assert_eq!(
+            shortest_near(88.17999999999999, t, |_| false),
+            88.17999999999999
+        );
+        assert_eq!(shortest_near(0.0, 1.0, |_| true), 0.0);
+    }
 
     #[test]
     fn rules_by_hand() {

@@ -317,6 +317,25 @@ def test_histogram_matches_numpy(conn, case, rule):
         assert close(dens, float(nd)), (case, rule, dens, nd)
 
 
+def test_histogram_edges_read_as_short_decimals_with_numpys_counts(conn):
+    # Readings on a 0.01 grid from 88.0 to 88.3 in five bins: numpy 2.4.6's
+    # numpy.histogram_bin_edges(xs, bins=5) has 88.17999999999999 for 88.18. ogive moves
+    # such an edge to the short decimal a few ulps away (no value lies between them), so
+    # the counts are numpy.histogram's exactly and the edges within 1e-15 relative.
+    rng = np.random.default_rng(5)
+    xs = np.clip(np.round(rng.normal(88.15, 0.05, 200), 2), 88.0, 88.3)
+    xs[:2] = [88.0, 88.3]
+    load_column(conn, "t", xs)
+    got = rows(conn, "SELECT lo, hi, count FROM dist_histogram((SELECT dist_empirical(x) FROM t), 5)")
+    edges = np.histogram_bin_edges(xs, bins=5)
+    counts, _ = np.histogram(xs, bins=edges)
+    assert repr(float(edges[3])) == "88.17999999999999"
+    assert [r[0] for r in got] + [got[-1][1]] == [88.0, 88.06, 88.12, 88.18, 88.24, 88.3]
+    assert [r[2] for r in got] == counts.tolist()
+    for (lo, _, _), a in zip(got, edges):
+        assert abs(lo - a) <= 1e-15 * abs(a), (lo, a)
+
+
 def test_histogram_default_rule_and_weights(conn):
     _, xs, _, d, replicated = whole_weighted(conn, 27, 200, 0, 1, 2, (0, 4))
     plain = rows(conn, "SELECT lo, hi FROM dist_histogram((SELECT dist_empirical(x) FROM t))")
