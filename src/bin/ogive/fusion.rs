@@ -21,6 +21,26 @@ use datafusion::common::ScalarValue;
 pub struct Fusion {
     ctx: SessionContext,
     rt: tokio::runtime::Runtime,
+    /// The Ballista scheduler's `HOST:PORT`, when the queries run on one.
+    scheduler: Option<String>,
+}
+
+/// A statement's error as the user reads it: a Ballista scheduler that cannot be reached
+/// is said so, with what to do, instead of the transport library's debug print.
+fn statement_message(e: &datafusion::error::DataFusionError, scheduler: Option<&str>) -> String {
+    let message = e.to_string();
+    match scheduler {
+        Some(addr)
+            if message.contains("tcp connect error") || message.contains("ConnectionRefused") =>
+        {
+            format!(
+                "cannot reach the Ballista scheduler at {addr}: nothing answers there. Start \
+                 one with `ogive scheduler --bind {addr}` and executors with `ogive executor \
+                 --scheduler {addr}`, or give --scheduler the address of a running one"
+            )
+        }
+        _ => message,
+    }
 }
 
 /// What a `--table NAME=PATH` names: Parquet or CSV files.
@@ -99,13 +119,17 @@ impl Fusion {
             registered
                 .map_err(|e| Failure::usage(format!("--table {name}: cannot read {path}: {e}")))?;
         }
-        Ok(Fusion { ctx, rt })
+        Ok(Fusion {
+            ctx,
+            rt,
+            scheduler: scheduler.map(str::to_string),
+        })
     }
 
     /// Runs one statement, cancelled by Ctrl-C.
     pub fn execute(&self, sql: &str, params: &mut Params) -> Result<Outcome, StatementError> {
         let fail = |e: datafusion::error::DataFusionError| {
-            let message = e.to_string();
+            let message = statement_message(&e, self.scheduler.as_deref());
             StatementError::Sql {
                 offset: crate::script::failing_call(sql, &message),
                 message,
