@@ -336,7 +336,9 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                undefined; for a model its own cdf and density, as dist_cdf and dist_pdf give \
                them, the bandwidth checked but ignored; for a censored estimate the cdf where \
                defined, NULL elsewhere, and a NULL pdf). Drawn beside dist_steps of the data, \
-               it compares a fitted cdf with the ECDF. NULL arguments give no rows. Errors: \
+               it compares a fitted cdf with the ECDF. In SQLite each row is computed as it \
+               is read, so LIMIT or an interrupt stops the work (a density point is a kernel \
+               sum over the values near it). NULL arguments give no rows. Errors: \
                lo >= hi or not finite, n not a whole number from 2 to 1000000, an unknown \
                bandwidth, d not a distribution.",
         example: "SELECT group_concat(cdf, ' ') FROM dist_curve(\
