@@ -22,6 +22,9 @@ cargo test --features datafusion,ballista --lib -- datafusion:: ballista::
 cargo test --features datafusion,ballista --doc -- datafusion ballista
 echo "== cargo test (extension entry point)"
 cargo test --release --manifest-path ext/Cargo.toml
+# The entry point's own unit tests (host versions, a second SQLite library refused) need
+# the loadable build of the library.
+cargo test --lib --no-default-features --features loadable -- sqlite::extension
 
 if [ ! -x .venv/bin/python ] || ! cmp -s tests/requirements.txt .venv/requirements.txt; then
     echo "== creating .venv for the Python cross-checks"

@@ -20,8 +20,11 @@ The SQL functions themselves are documented in the project's README and by
 ``ogive functions NAME`` in the companion shell.
 """
 
+import atexit
 import os
+import shutil
 import sys
+import tempfile
 
 __all__ = ["ExtensionLoadingUnavailable", "load", "path"]
 __version__ = "0.1.0"
@@ -106,6 +109,30 @@ def _connection_type(conn):
     return None
 
 
+# The copies made for modules whose SQLite library is not the first to load the shipped file.
+_COPIES = {}
+
+# The start of ogive's refusal of a second SQLite library in one process.
+_SECOND_LIBRARY = "ogive is already loaded into another SQLite library in this process"
+
+
+def _copy_for(kind):
+    """A copy of the shipped library for connections of module ``kind``.
+
+    One loaded copy of the extension serves one SQLite library, and apsw and pysqlite3 each
+    bring their own SQLite besides the one ``sqlite3`` uses: when the shipped file already
+    serves another library, ``kind``'s connections load a copy, kept in a temporary
+    directory of this process (removed at exit) and reused for that module.
+    """
+    if kind not in _COPIES:
+        folder = tempfile.mkdtemp(prefix=f"ogive-{kind}-")
+        atexit.register(shutil.rmtree, folder, True)
+        library = os.path.join(folder, _LIBRARY)
+        shutil.copyfile(path(), library)
+        _COPIES[kind] = library
+    return _COPIES[kind]
+
+
 def load(conn):
     """Loads the ogive extension into ``conn`` and returns ``conn``.
 
@@ -113,7 +140,9 @@ def load(conn):
     ``pysqlite3-binary`` package), or of ``apsw``. Extension loading is switched on for the
     load and off again afterwards (also when the load fails), so SQL run later on the
     connection cannot load other libraries. The functions stay registered for the life of
-    the connection; load once per connection.
+    the connection; load once per connection. Connections of different modules in one
+    process each get their own copy of the library (each module has its own SQLite, and
+    one copy serves one), so sqlite3 and apsw connections can be used side by side.
 
     Errors:
 
@@ -154,12 +183,17 @@ def load(conn):
             "pass db.conn, for other clients load the file at ogive.path() with their own "
             "extension option"
         )
-    library = path()
     if not callable(getattr(conn, "enable_load_extension", None)):
-        raise ExtensionLoadingUnavailable(_NO_LOADING.format(module=kind, path=library))
+        raise ExtensionLoadingUnavailable(_NO_LOADING.format(module=kind, path=path()))
+    library = _COPIES.get(kind) or path()
     conn.enable_load_extension(True)
     try:
-        conn.load_extension(library)
+        try:
+            conn.load_extension(library)
+        except Exception as e:  # each module has its own error class
+            if _SECOND_LIBRARY not in str(e) or library != path():
+                raise
+            conn.load_extension(_copy_for(kind))
     finally:
         conn.enable_load_extension(False)
     return conn

@@ -15,6 +15,14 @@
 //!    rusqlite as current;
 //! 4. registers every function, with any panic caught before it reaches the host.
 //!
+//! rusqlite's extension layer calls SQLite through one table per process, so one loaded
+//! copy of the extension serves one SQLite library: a second library in the same process
+//! (Python's `sqlite3` and apsw's own bundled SQLite, say) would have its calls sent to the
+//! first library's code and crash the host. The first library to load the extension is
+//! kept; another is refused with a message saying to load a copy of the file from another
+//! directory (a separate copy has its own table), which the Python package's `ogive.load`
+//! does by itself.
+//!
 //! The entries ogive calls (functions, aggregates, window functions, eponymous virtual
 //! tables, values and results) all exist in [`MIN_SQLITE_VERSION`].
 
@@ -73,6 +81,22 @@ extern "C" fn bindings_version() -> c_int {
 /// the loadable build, so that entries the host lacks (`is_interrupted` before 3.41.0)
 /// are never called. 0 until the first load.
 pub(crate) static HOST_VERSION: std::sync::atomic::AtomicI32 = std::sync::atomic::AtomicI32::new(0);
+
+/// The routines table of the SQLite library that loaded the extension first (0 before
+/// then): the only one this copy serves.
+static FIRST_HOST: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+
+/// The refusal of a second SQLite library in one process.
+fn second_library(first: c_int, this: c_int) -> String {
+    format!(
+        "ogive is already loaded into another SQLite library in this process (SQLite {}; \
+         this connection's is SQLite {}), and one copy of the extension serves one library: \
+         load a copy of the file, from another directory and with the same name, into this \
+         library's connections (in Python, ogive.load does this itself)",
+        version_text(first),
+        version_text(this)
+    )
+}
 
 /// Adapted tables, one per distinct host table, kept for the life of the process
 /// (rusqlite keeps pointers into them).
@@ -158,7 +182,15 @@ pub unsafe fn init(
             unsafe { report(pz_err_msg, p_api, &msg) };
             return ffi::SQLITE_ERROR;
         }
-        HOST_VERSION.store(version, std::sync::atomic::Ordering::SeqCst);
+        use std::sync::atomic::Ordering::SeqCst;
+        if let Err(first) = FIRST_HOST.compare_exchange(0, p_api as usize, SeqCst, SeqCst)
+            && first != p_api as usize
+        {
+            let msg = second_library(HOST_VERSION.load(SeqCst), version);
+            unsafe { report(pz_err_msg, p_api, &msg) };
+            return ffi::SQLITE_ERROR;
+        }
+        HOST_VERSION.store(version, SeqCst);
         unsafe {
             let table = adapt(p_api, version);
             Connection::extension_init2(db, pz_err_msg, table, init_connection)
@@ -193,5 +225,18 @@ mod tests {
             size_of::<sqlite3_api_routines>()
         );
         assert_eq!(version_text(3_040_001), "3.40.1");
+    }
+
+    #[test]
+    fn a_second_library_is_told_what_to_do() {
+        let m = second_library(3_040_001, 3_054_001);
+        assert!(
+            m.contains("(SQLite 3.40.1; this connection's is SQLite 3.54.1)"),
+            "{m}"
+        );
+        assert!(
+            m.contains("load a copy of the file, from another directory"),
+            "{m}"
+        );
     }
 }

@@ -3,6 +3,8 @@
     python smoke.py module sqlite3|apsw|pysqlite3   ogive.load into that module's connection
     python smoke.py pandas                          pandas.read_sql on a loaded sqlite3 connection
     python smoke.py errors                          TypeError, ExtensionLoadingUnavailable, SQL errors
+    python smoke.py side-by-side [pysqlite3]        sqlite3 and apsw (and pysqlite3) connections in
+                                                    one process, used in turns
     python smoke.py no-loading                      the real error of a sqlite3 without loading
     python smoke.py sqlite-version sqlite3|pysqlite3  prints that module's SQLite version
     python smoke.py free-port                       prints a free TCP port on 127.0.0.1
@@ -85,6 +87,51 @@ def module(name):
         print(f"ok: {name}: extension loading is off after ogive.load ({e})")
     else:
         fail(f"{name}: load_extension from SQL still works after ogive.load")
+
+
+def side_by_side(extra):
+    """sqlite3 and apsw (each with its own SQLite) in one process. The shipped file loaded
+    by path into both is refused by the second library with a message saying what to do
+    (one loaded copy serves one SQLite library; before ogive refused it, apsw's calls went
+    to the first library's code and the process died of a segmentation fault); ogive.load
+    gives each module its own copy, and connections of every module then answer in turns."""
+    import sqlite3
+
+    import apsw
+
+    ogive = check_installed()
+    first = sqlite3.connect(":memory:")
+    first.enable_load_extension(True)
+    first.load_extension(ogive.path())
+    second = apsw.Connection(":memory:")
+    second.enable_load_extension(True)
+    try:
+        second.load_extension(ogive.path())
+    except apsw.ExtensionLoadingError as e:
+        if "ogive is already loaded into another SQLite library in this process" not in str(e):
+            fail(f"side-by-side: unclear refusal of a second library: {e}")
+        print(f"ok: side-by-side: the shipped file in a second library is refused ({e})")
+    else:
+        fail("side-by-side: the shipped file loaded into a second SQLite library")
+    conns = {"sqlite3": first, "apsw": ogive.load(apsw.Connection(":memory:"))}
+    if extra == ["pysqlite3"]:
+        from pysqlite3 import dbapi2
+
+        conns["pysqlite3"] = ogive.load(dbapi2.connect(":memory:"))
+    for round_ in range(3):
+        for name, conn in conns.items():
+            got = conn.execute(
+                "SELECT quantile(column1, 0.5), ecdf(column1, 2) FROM (VALUES (1),(2),(3),(4))"
+            ).fetchall()
+            # median of 1..4 is 2.5; 2 of 4 values at or below 2
+            expect(f"side-by-side round {round_}: {name}", [tuple(r) for r in got], [(2.5, 0.5)])
+            try:
+                conn.execute("SELECT quantile(column1, 'x') FROM (VALUES (1))").fetchall()
+            except Exception as e:  # each module has its own error class
+                if not str(e).startswith("quantile: p must be a number"):
+                    fail(f"side-by-side: {name}: unclear error: {e}")
+            else:
+                fail(f"side-by-side: {name}: a TEXT p gave no error")
 
 
 def pandas_check():
@@ -223,6 +270,8 @@ def main(argv):
         module(rest[0])
     elif command == "pandas":
         pandas_check()
+    elif command == "side-by-side" and len(rest) <= 1:
+        side_by_side(rest)
     elif command == "errors":
         errors()
     elif command == "no-loading":

@@ -75,6 +75,7 @@ echo "== sqlite3, apsw, pandas, errors"
 "${SMOKE[@]}" module apsw
 "${SMOKE[@]}" pandas
 "${SMOKE[@]}" errors
+"${SMOKE[@]}" side-by-side
 
 # Makes db.sqlite with the readings every check expects (see smoke.py).
 "$V/sqlite-utils" insert db.sqlite readings - --csv <<'EOF'
@@ -130,6 +131,7 @@ echo "== pysqlite3-binary (requirements-pysqlite3.txt)"
 if "${PIP[@]}" install --quiet --only-binary=:all: -r "$HERE/requirements-pysqlite3.txt" \
     2>"$WORK/pysqlite3.err"; then
     "${SMOKE[@]}" module pysqlite3
+    "${SMOKE[@]}" side-by-side pysqlite3
     PYSQLITE3_VERSION=$("${SMOKE[@]}" sqlite-version pysqlite3)
     echo "== sqlite-utils and datasette again, now on pysqlite3 (SQLite $PYSQLITE3_VERSION)"
     check_sqlite_utils "$PYSQLITE3_VERSION"
