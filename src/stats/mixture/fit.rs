@@ -272,15 +272,28 @@ impl Data {
     /// ranked and the finalists compared on it; the winner is polished there (to
     /// [`POLISH_TOLERANCE`], at most [`POLISH_PASSES`] more passes) and then continues
     /// on these data.
+    ///
+    /// A small fit ([`Data::is_small_fit`]) draws [`KMEANS_STARTS_SMALL`] k-means++
+    /// seedings instead of [`KMEANS_STARTS`], and every start, in the order of its short
+    /// run, continues to [`LOOSE_TOLERANCE`] (while the runs so continued have made at
+    /// most [`LOOSE_WORK`] point-component evaluations; the first [`FINALISTS`] always
+    /// do) before the finalists are chosen: after twelve passes the ranking of the starts
+    /// says little about where they end.
     pub(super) fn best_run(&self, k: usize, thin: Option<&Data>) -> Option<Run> {
         let tolerance = SELECTION_TOLERANCE;
         let ranking = thin.unwrap_or(self);
+        let small = ranking.is_small_fit(k);
+        let seeds = if small {
+            KMEANS_STARTS_SMALL
+        } else {
+            KMEANS_STARTS
+        };
         let mut starts: Vec<Params> = Vec::new();
         if let Some(p) = ranking.quantile_start(k) {
             starts.push(p);
         }
         if k > 1 {
-            for seed in 0..KMEANS_STARTS {
+            for seed in 0..seeds {
                 // k-means often settles on the same partition from different seeds;
                 // each distinct start runs once.
                 if let Some(p) = ranking.kmeans_start(k, seed)
@@ -295,6 +308,22 @@ impl Data {
             .filter_map(|p| ranking.em(p, 0, SHORT_ITERATIONS, tolerance))
             .collect();
         short.sort_by(|a, b| b.loglik.total_cmp(&a.loglik));
+        if small {
+            let per_pass = (ranking.x.len() * k) as f64;
+            let mut work = 0.0;
+            let mut loose: Vec<Run> = Vec::with_capacity(short.len());
+            for (rank, run) in short.into_iter().enumerate() {
+                if rank >= FINALISTS && work > LOOSE_WORK {
+                    break;
+                }
+                if let Some(r) = ranking.resume(run, LOOSE_TOLERANCE) {
+                    work += f64::from(r.iterations - run.iterations) * per_pass;
+                    loose.push(r);
+                }
+            }
+            loose.sort_by(|a, b| b.loglik.total_cmp(&a.loglik));
+            short = loose;
+        }
         let best = short
             .into_iter()
             .take(FINALISTS)
@@ -315,6 +344,13 @@ impl Data {
             }
             None => Some(best),
         }
+    }
+
+    /// Whether a fit of k components on these points is small enough for the thorough
+    /// search of [`Data::best_run`]: exact values (not grouped ones) and at most
+    /// [`SMALL_FIT`] point-component evaluations per pass.
+    pub(super) fn is_small_fit(&self, k: usize) -> bool {
+        self.width.is_none() && self.x.len() * k <= SMALL_FIT
     }
 
     /// Continues a run to `tolerance` (at most [`MAX_ITERATIONS`] passes in all).
