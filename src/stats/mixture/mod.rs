@@ -108,7 +108,10 @@ mod starts;
 #[cfg(test)]
 mod tests;
 
-pub use fit::{Candidate, MixtureFit, fit_mixture, fit_mixture_rounded, fit_mixture_weighted};
+pub use fit::{
+    Candidate, MixtureFit, fit_mixture, fit_mixture_counted, fit_mixture_rounded,
+    fit_mixture_weighted,
+};
 pub use model::Mixture;
 
 /// The most components a mixture may have.
