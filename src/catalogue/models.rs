@@ -11,7 +11,7 @@ use super::args::{
 use super::dist::empirical;
 use super::reader::{Call, model_of};
 use super::state::{AggregateImp, Args, Field, Reader, State, Writer, push, try_extend};
-use super::value::Out;
+use super::value::{Arg, Out};
 use super::{FunctionDef, Imp, Kind, Range, Returns, TableImp};
 use crate::stats::fit::{Family, FitError, fit, fit_weighted};
 use crate::stats::mixture::{
@@ -282,6 +282,18 @@ fn observe_resolution(
     i: usize,
 ) -> std::result::Result<(), ArgError> {
     if let Some(v) = args.optional(i) {
+        // The common row: the same numeric step as the group's first (its bits), which
+        // parses to the same resolution; anything else takes the full check.
+        if let Some(Resolution::Step(step)) = c.get() {
+            let same = match v {
+                Arg::Real(x) => x.to_bits() == step.to_bits(),
+                Arg::Integer(n) => (n as f64).to_bits() == step.to_bits(),
+                _ => false,
+            };
+            if same {
+                return Ok(());
+            }
+        }
         let r = resolution(v)?.unwrap_or(Resolution::Exact);
         c.observe(Some(r), "resolution")?;
     }

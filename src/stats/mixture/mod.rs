@@ -85,7 +85,11 @@
 //!   above. The log-likelihood, AIC and BIC are then those of the grouped data (sums of
 //!   log probabilities), bounded, so BIC does not reward narrow components sitting on
 //!   single grid values. The one-component fit is the grouped MLE too (not the sample
-//!   mean and sd, which count the rounding as spread).
+//!   mean and sd, which count the rounding as spread). A grouped pass works in
+//!   probabilities, with each end's tail from one exponential and Mills' ratio, over
+//!   arrays that vectorise (see `binned.rs`); values already counted (as the SQL
+//!   aggregate counts rows with a resolution, [`crate::stats::tally`]) go in through
+//!   [`fit_mixture_counted`] without a sort.
 //! - Components are reported sorted by mean.
 //!
 //! # Errors and NaN policy
