@@ -102,8 +102,10 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                mean, n, loglik, aic, bic, iterations, converged, k_candidates: [{k, loglik, \
                bic}]}. Without k (or with k NULL), every k from 1 to 6 (at most the number of \
                distinct values, and with n >= 3k - 1) is fitted and the least BIC wins; \
-               k_candidates lists them all. Fifty seeded starts per k: the same data always gives \
-               the same fit. Each EM run has a bounded budget (10,000 passes, and about 4e8 \
+               k_candidates lists them all (with a resolution, a k that could not win even \
+               at the saturated grouped loglik, every grid value at its observed share, is \
+               not fitted: its loglik and bic are null). Fifty seeded starts per k: the same \
+               data always gives the same fit. Each EM run has a bounded budget (10,000 passes, and about 4e8 \
                point-component evaluations: 500 passes for 2 components over 400,000 distinct \
                values); a run that ends on it reports converged false, and an interrupt \
                (Ctrl-C in the shell, sqlite3_interrupt; SQLite 3.41 or later) stops the fit \
@@ -276,6 +278,7 @@ impl Field for Resolution {
 }
 
 /// Reads an optional `resolution` argument (position `i`) into its per-group constant.
+#[inline]
 fn observe_resolution(
     c: &mut Constant<Resolution>,
     args: &Args<'_>,

@@ -11,7 +11,8 @@ use crate::stats::resolution::Resolution;
 pub struct Candidate {
     /// Number of components.
     pub k: usize,
-    /// The best log-likelihood found, `None` when every start lost a component.
+    /// The best log-likelihood found, `None` when every start lost a component or, for
+    /// grouped data, when even the saturated log-likelihood could not have won.
     pub loglik: Option<f64>,
     /// Its BIC, `None` likewise.
     pub bic: Option<f64>,
@@ -226,7 +227,21 @@ fn fit_data(data: Data, k: Option<usize>, thin_to: usize) -> Result<MixtureFit, 
     let thin = data.thinned(thin_to);
     let mut candidates = Vec::with_capacity(ks.len());
     let mut best: Option<(f64, usize, Run)> = None;
+    // Grouped data: no k can have a log-likelihood above the saturated one, so a k
+    // whose BIC would lose even there is not fitted (nor, its penalty being larger, any
+    // later k); its candidate has no loglik or BIC.
+    let ceiling = if k.is_none() { data.saturated() } else { None };
     for &k in &ks {
+        if let (Some(ceiling), Some((b, _, _))) = (ceiling, best.as_ref())
+            && FitSummary::weighted(ceiling, need(k), total).bic > *b + 1e-9 * b.abs()
+        {
+            candidates.push(Candidate {
+                k,
+                loglik: None,
+                bic: None,
+            });
+            continue;
+        }
         let run = data.best_run(k, thin.as_ref());
         if crate::stats::cancel::requested() {
             return Err(MixtureError::Interrupted);
