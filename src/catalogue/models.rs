@@ -12,14 +12,17 @@ use super::dist::empirical;
 use super::reader::{Call, model_of};
 use super::scan::{Ready, Scan};
 use super::state::{AggregateImp, Args, Field, Reader, State, Writer, push, try_extend};
-use super::value::Out;
+use super::value::{Arg, Out};
 use super::{FunctionDef, Imp, Kind, Range, Returns, TableImp};
 use crate::stats::fit::{Family, FitError, fit, fit_weighted};
 use crate::stats::mixture::{
-    MAX_COMPONENTS, MixtureError, fit_mixture_rounded, fit_mixture_weighted,
+    MAX_COMPONENTS, MixtureError, fit_mixture_counted, fit_mixture_rounded, fit_mixture_weighted,
 };
-use crate::stats::readings::{fit_censored, fit_rounded, fit_rounded_weighted};
+use crate::stats::readings::{
+    fit_censored, fit_rounded, fit_rounded_counted, fit_rounded_weighted,
+};
 use crate::stats::resolution::{Resolution, resolve};
+use crate::stats::tally::Tally;
 use crate::value::model::{Law, Model};
 
 type Result<T> = std::result::Result<T, FunctionError>;
@@ -100,8 +103,11 @@ pub static FUNCTIONS: &[FunctionDef] = &[
                mean, n, loglik, aic, bic, iterations, converged, k_candidates: [{k, loglik, \
                bic}]}. Without k (or with k NULL), every k from 1 to 6 (at most the number of \
                distinct values, and with n >= 3k - 1) is fitted and the least BIC wins; \
-               k_candidates lists them all. Fifty seeded starts per k: the same data always gives \
-               the same fit. Each EM run has a bounded budget (10,000 passes, and about 4e8 \
+               k_candidates lists them all (with a resolution, a k that could not win even \
+               at the saturated grouped loglik, every grid value at its observed share, is \
+               not fitted: its loglik and bic are null). Fifty seeded starts per k (150 on \
+               small exact data: distinct values times k at most 2,048): the same data \
+               always gives the same fit. Each EM run has a bounded budget (10,000 passes, and about 4e8 \
                point-component evaluations: 500 passes for 2 components over 400,000 distinct \
                values); a run that ends on it reports converged false, and an interrupt \
                (Ctrl-C in the shell, sqlite3_interrupt; SQLite 3.41 or later) stops the fit \
@@ -274,12 +280,25 @@ impl Field for Resolution {
 }
 
 /// Reads an optional `resolution` argument (position `i`) into its per-group constant.
+#[inline]
 fn observe_resolution(
     c: &mut Constant<Resolution>,
     args: &Args<'_>,
     i: usize,
 ) -> std::result::Result<(), ArgError> {
     if let Some(v) = args.optional(i) {
+        // The common row: the same numeric step as the group's first (its bits), which
+        // parses to the same resolution; anything else takes the full check.
+        if let Some(Resolution::Step(step)) = c.get() {
+            let same = match v {
+                Arg::Real(x) => x.to_bits() == step.to_bits(),
+                Arg::Integer(n) => (n as f64).to_bits() == step.to_bits(),
+                _ => false,
+            };
+            if same {
+                return Ok(());
+            }
+        }
         let r = resolution(v)?.unwrap_or(Resolution::Exact);
         c.observe(Some(r), "resolution")?;
     }
@@ -295,10 +314,105 @@ fn step_of(sorted: &[f64], r: Option<Resolution>) -> std::result::Result<Option<
     }
 }
 
+/// The values of a `dist_fit` or `dist_mixture` group. With a resolution (a stated step
+/// or 'auto') the fits need only the distinct values and their counts, so each row is
+/// counted as it arrives ([`Tally`]) instead of being kept for a sort of all of them;
+/// without one, the values are kept as they come.
+#[derive(Debug, Default)]
+struct Values {
+    /// Values kept one by one (exact readings).
+    xs: Vec<f64>,
+    /// Counts of distinct values (readings with a resolution).
+    tally: Tally,
+}
+
+/// Whether a group's rows are counted: a resolution that is a step or 'auto'.
+fn counted(r: &Constant<Resolution>) -> bool {
+    matches!(r.get(), Some(Resolution::Step(_) | Resolution::Auto))
+}
+
+impl Values {
+    /// One row's value.
+    #[inline]
+    fn add(&mut self, x: f64, counted: bool) -> std::result::Result<(), ArgError> {
+        if counted {
+            Ok(self.tally.add(x, 1)?)
+        } else {
+            push(&mut self.xs, x)
+        }
+    }
+
+    /// Another part's values (after the parts' constants are merged).
+    fn merge(&mut self, other: Values, counted: bool) -> std::result::Result<(), ArgError> {
+        self.tally.merge(&other.tally)?;
+        if counted {
+            for x in std::mem::take(&mut self.xs).into_iter().chain(other.xs) {
+                self.tally.add(x, 1)?;
+            }
+            Ok(())
+        } else {
+            try_extend(&mut self.xs, &other.xs)
+        }
+    }
+
+    fn is_empty(&self) -> bool {
+        self.xs.is_empty() && self.tally.is_empty()
+    }
+
+    /// The distinct values in increasing order and their counts (the kept values
+    /// counted first).
+    fn distinct(&mut self) -> std::result::Result<(Vec<f64>, Vec<f64>), ArgError> {
+        for x in std::mem::take(&mut self.xs) {
+            self.tally.add(x, 1)?;
+        }
+        Ok(self.tally.distinct()?)
+    }
+
+    /// The saved form: every value (a counted one as many times as it was counted), as
+    /// `f64s`.
+    fn save(&self, w: &mut Writer) {
+        w.u64(self.xs.len() as u64 + self.tally.total());
+        for &x in &self.xs {
+            w.f64(x);
+        }
+        self.tally.for_each(|x, c| {
+            for _ in 0..c {
+                w.f64(x);
+            }
+        });
+    }
+
+    /// Values read from the saved form.
+    fn load(xs: Vec<f64>, counted: bool) -> std::result::Result<Values, ArgError> {
+        if !counted {
+            return Ok(Values {
+                xs,
+                tally: Tally::default(),
+            });
+        }
+        let mut v = Values::default();
+        for x in xs {
+            v.tally.add(x, 1)?;
+        }
+        Ok(v)
+    }
+}
+
+/// `values[i]` repeated `counts[i]` times: the sorted values themselves.
+fn expanded(values: &[f64], counts: &[f64]) -> std::result::Result<Vec<f64>, ArgError> {
+    let n: f64 = counts.iter().sum();
+    let mut xs = Vec::new();
+    crate::stats::grow::room(&mut xs, n as usize)?;
+    for (&x, &c) in values.iter().zip(counts) {
+        xs.extend(std::iter::repeat_n(x, c as usize));
+    }
+    Ok(xs)
+}
+
 /// State of `dist_fit`: the values, the family and the resolution.
 #[derive(Debug, Default)]
 pub struct DistFitState {
-    xs: Vec<f64>,
+    values: Values,
     family: TextConstant<Family>,
     resolution: Constant<Resolution>,
 }
@@ -316,7 +430,7 @@ impl State for DistFitState {
             self.family.observe(args.get(1), "family", parse_family)?;
             observe_resolution(&mut self.resolution, args, 2)?;
             if let Some(x) = number(args.get(0), "x")? {
-                push(&mut self.xs, x)?;
+                self.values.add(x, counted(&self.resolution))?;
             }
             Ok(())
         };
@@ -327,7 +441,7 @@ impl State for DistFitState {
         let go = || -> std::result::Result<(), ArgError> {
             self.family.merge(other.family, "family")?;
             self.resolution.merge(other.resolution, "resolution")?;
-            try_extend(&mut self.xs, &other.xs)
+            self.values.merge(other.values, counted(&self.resolution))
         };
         go().map_err(|e| fail(Self::NAME, e))
     }
@@ -336,17 +450,30 @@ impl State for DistFitState {
         let Some(&family) = self.family.get() else {
             return Ok(Out::Null);
         };
-        if self.xs.is_empty() {
+        if self.values.is_empty() {
             return Ok(Out::Null);
         }
-        // In ascending order, so that the fit's sums do not depend on the order of rows
-        // (or of the parts a partitioned engine merged).
-        self.xs.sort_unstable_by(f64::total_cmp);
-        let go = || -> std::result::Result<Out, ArgError> {
-            let step = step_of(&self.xs, self.resolution.get().copied())?;
+        let counted = counted(&self.resolution);
+        let mut go = || -> std::result::Result<Out, ArgError> {
+            if counted {
+                // The grid is checked, and the binned fit made, on the distinct values.
+                let (values, counts) = self.values.distinct()?;
+                let step = step_of(&values, self.resolution.get().copied())?;
+                let f = match step {
+                    Some(r) => fit_rounded_counted(&values, &counts, family, r)?,
+                    // 'auto' found no grid: the exact fit of the sorted values.
+                    None => fit(&expanded(&values, &counts)?, family)?,
+                };
+                return Ok(Out::Text(Model::from(f).rounded_to(step).to_json()));
+            }
+            // In ascending order, so that the fit's sums do not depend on the order of
+            // rows (or of the parts a partitioned engine merged).
+            let xs = &mut self.values.xs;
+            xs.sort_unstable_by(f64::total_cmp);
+            let step = step_of(xs, self.resolution.get().copied())?;
             let f = match step {
-                Some(r) => fit_rounded(&self.xs, family, r)?,
-                None => fit(&self.xs, family)?,
+                Some(r) => fit_rounded(xs, family, r)?,
+                None => fit(xs, family)?,
             };
             Ok(Out::Text(Model::from(f).rounded_to(step).to_json()))
         };
@@ -356,14 +483,17 @@ impl State for DistFitState {
     fn save(&self, w: &mut Writer) {
         w.constant(self.family.raw());
         w.constant(self.resolution.raw());
-        w.f64s(&self.xs);
+        self.values.save(w);
     }
 
     fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
+        let family = TextConstant::from_raw(r.constant()?, parse_family)?;
+        let resolution = r.constant_of()?;
+        let values = Values::load(r.f64s()?, counted(&resolution))?;
         Ok(DistFitState {
-            family: TextConstant::from_raw(r.constant()?, parse_family)?,
-            resolution: r.constant_of()?,
-            xs: r.f64s()?,
+            values,
+            family,
+            resolution,
         })
     }
 }
@@ -465,7 +595,7 @@ impl State for DistFitCensoredState {
 /// State of `dist_mixture`: the values, k (NULL or absent: by BIC) and the resolution.
 #[derive(Debug, Default)]
 pub struct DistMixtureState {
-    xs: Vec<f64>,
+    values: Values,
     k: Constant<i64>,
     resolution: Constant<Resolution>,
 }
@@ -486,7 +616,7 @@ impl State for DistMixtureState {
             }
             observe_resolution(&mut self.resolution, args, 2)?;
             if let Some(x) = number(args.get(0), "x")? {
-                push(&mut self.xs, x)?;
+                self.values.add(x, counted(&self.resolution))?;
             }
             Ok(())
         };
@@ -497,7 +627,7 @@ impl State for DistMixtureState {
         let go = || -> std::result::Result<(), ArgError> {
             self.k.merge(other.k, "k")?;
             self.resolution.merge(other.resolution, "resolution")?;
-            try_extend(&mut self.xs, &other.xs)
+            self.values.merge(other.values, counted(&self.resolution))
         };
         go().map_err(|e| fail(Self::NAME, e))
     }
@@ -505,20 +635,27 @@ impl State for DistMixtureState {
     fn finalize(&mut self) -> Result<Out> {
         // Checked in `step` to lie in 1..=MAX_COMPONENTS; NULL or absent: by BIC.
         let k = self.k.get().map(|&k| k as usize);
-        if self.xs.is_empty() {
+        if self.values.is_empty() {
             return Ok(Out::Null);
         }
         let resolution = self.resolution.get().copied().unwrap_or(Resolution::Exact);
-        // The kernel sorts and merges ties itself (and checks the grid on its distinct
-        // values), so row order does not matter.
-        let f = fit_mixture_rounded(&self.xs, k, resolution).map_err(|e| fail(Self::NAME, e))?;
+        let f = if counted(&self.resolution) {
+            // Counted as the rows came: the distinct values in order, with counts.
+            let (values, counts) = self.values.distinct().map_err(|e| fail(Self::NAME, e))?;
+            fit_mixture_counted(&values, &counts, k, resolution)
+        } else {
+            // The kernel sorts and merges ties itself (and checks the grid on its
+            // distinct values), so row order does not matter.
+            fit_mixture_rounded(&self.values.xs, k, resolution)
+        };
+        let f = f.map_err(|e| fail(Self::NAME, e))?;
         Ok(Out::Text(Model::from(f).to_json()))
     }
 
     fn save(&self, w: &mut Writer) {
         w.constant(self.k.raw());
         w.constant(self.resolution.raw());
-        w.f64s(&self.xs);
+        self.values.save(w);
     }
 
     fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
@@ -528,10 +665,12 @@ impl State for DistMixtureState {
         {
             return Err(MixtureError::BadK(k).into());
         }
+        let resolution = r.constant_of()?;
+        let values = Values::load(r.f64s()?, counted(&resolution))?;
         Ok(DistMixtureState {
             k,
-            resolution: r.constant_of()?,
-            xs: r.f64s()?,
+            resolution,
+            values,
         })
     }
 }

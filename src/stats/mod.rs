@@ -38,6 +38,8 @@
 //!   `quantile`.
 //! - [`sorting`]: a bucket sort of doubles in `total_cmp` order, for the large sort of
 //!   [`mixture`].
+//! - [`tally`]: counts of distinct values kept as rows arrive, for the fits on rounded
+//!   readings, which need only the distinct grid values and their counts.
 //! - [`sketch`]: a mergeable quantile sketch in bounded memory with a proven rank-error
 //!   bound (Karnin, Lang and Liberty 2016).
 //!
@@ -82,6 +84,7 @@ pub mod simplex;
 pub mod sketch;
 pub mod sorting;
 pub mod sum;
+pub mod tally;
 
 use std::fmt;
 

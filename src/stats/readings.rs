@@ -131,6 +131,42 @@ pub fn fit_rounded_weighted(
     fit_grouped(&xs, &counts, total, family, step)
 }
 
+/// [`fit_rounded`] on readings already counted: `values` distinct and increasing,
+/// `counts[i]` (`> 0`) copies of `values[i]`, as [`crate::stats::tally::Tally::distinct`]
+/// gives them. The same fit, bit for bit, and the same errors as [`fit_rounded`] on the
+/// replicated readings; values that are not increasing and distinct are sorted and
+/// merged first (as [`fit_rounded_weighted`] does).
+///
+/// # Errors
+/// As [`fit_rounded`], and [`FitError::BadWeight`] for a count that is not finite and
+/// `> 0`.
+///
+/// # Example
+/// ```
+/// use ogive::stats::fit::Family;
+/// use ogive::stats::readings::{fit_rounded, fit_rounded_counted};
+/// let c = fit_rounded_counted(&[9.0, 10.0, 11.0], &[1.0, 3.0, 2.0], Family::Normal, 1.0)?;
+/// let r = fit_rounded(&[9.0, 10.0, 10.0, 10.0, 11.0, 11.0], Family::Normal, 1.0)?;
+/// assert_eq!(c, r);
+/// # Ok::<(), ogive::stats::fit::FitError>(())
+/// ```
+pub fn fit_rounded_counted(
+    values: &[f64],
+    counts: &[f64],
+    family: Family,
+    step: f64,
+) -> Result<ParametricFit, FitError> {
+    if !(values.windows(2).all(|w| w[0] < w[1]) && values.len() == counts.len()) {
+        return fit_rounded_weighted(values, counts, family, step);
+    }
+    if let Some(&bad) = counts.iter().find(|w| !(w.is_finite() && **w > 0.0)) {
+        return Err(FitError::BadWeight(bad));
+    }
+    let total = super::sum::sum(counts);
+    check_values(values, total, family, |x| x >= 0.0)?;
+    fit_grouped(values, counts, total, family, step)
+}
+
 /// The binned fit of distinct values with counts summing to `total`.
 fn fit_grouped(
     values: &[f64],

@@ -352,17 +352,30 @@ impl Data {
 /// next to the term `exp(0) = 1` that every use adds is nothing.
 #[inline(always)]
 pub(super) fn exp_nonpositive(x: f64) -> f64 {
+    let mut v = [x];
+    exp_nonpositive_lanes(&mut v);
+    v[0]
+}
+
+/// [`exp_nonpositive`] of every element, in place, the same to the bit: the loop over
+/// the series' coefficients outside, the one over the elements inside, so that the
+/// elements' chains of dependent steps interleave.
+#[inline(always)]
+pub(super) fn exp_nonpositive_lanes<const L: usize>(xs: &mut [f64; L]) {
     // ln 2 split as in fdlibm's e_exp.c: the high part has trailing zero bits, so
     // n * LN2_HI is exact for the n that occur here.
     const LN2_HI: f64 = f64::from_bits(0x3fe6_2e42_fee0_0000);
     const LN2_LO: f64 = f64::from_bits(0x3dea_39ef_3579_3c76);
     // 1.5 * 2^52: adding it rounds to an integer held in the low bits of the mantissa.
     const SHIFTER: f64 = 6_755_399_441_055_744.0;
-    let x = x.max(-708.0);
-    let t = x * std::f64::consts::LOG2_E + SHIFTER;
-    let n = t - SHIFTER;
-    let r = (x - n * LN2_HI) - n * LN2_LO;
-    let mut poly = 1.0 / 6_227_020_800.0;
+    let (mut t, mut r) = ([0.0; L], [0.0; L]);
+    for l in 0..L {
+        let x = xs[l].max(-708.0);
+        t[l] = x * std::f64::consts::LOG2_E + SHIFTER;
+        let n = t[l] - SHIFTER;
+        r[l] = (x - n * LN2_HI) - n * LN2_LO;
+    }
+    let mut poly = [1.0 / 6_227_020_800.0; L];
     for d in [
         479_001_600.0,
         39_916_800.0,
@@ -378,13 +391,18 @@ pub(super) fn exp_nonpositive(x: f64) -> f64 {
         1.0,
         1.0,
     ] {
-        poly = poly * r + 1.0 / d;
+        for l in 0..L {
+            poly[l] = poly[l] * r[l] + 1.0 / d;
+        }
     }
-    let scale = f64::from_bits(
-        (t.to_bits()
-            .wrapping_sub(SHIFTER.to_bits())
-            .wrapping_add(1023))
-            << 52,
-    );
-    poly * scale
+    for l in 0..L {
+        let scale = f64::from_bits(
+            (t[l]
+                .to_bits()
+                .wrapping_sub(SHIFTER.to_bits())
+                .wrapping_add(1023))
+                << 52,
+        );
+        xs[l] = poly[l] * scale;
+    }
 }

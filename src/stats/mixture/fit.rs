@@ -11,7 +11,8 @@ use crate::stats::resolution::Resolution;
 pub struct Candidate {
     /// Number of components.
     pub k: usize,
-    /// The best log-likelihood found, `None` when every start lost a component.
+    /// The best log-likelihood found, `None` when every start lost a component or, for
+    /// grouped data, when even the saturated log-likelihood could not have won.
     pub loglik: Option<f64>,
     /// Its BIC, `None` likewise.
     pub bic: Option<f64>,
@@ -117,6 +118,53 @@ pub fn fit_mixture_weighted(
     fit_data(data, k, THIN_TO)
 }
 
+/// [`fit_mixture_rounded`] on values already counted: `values` distinct and increasing,
+/// `counts[i]` (whole numbers, `> 0`) copies of `values[i]`, as
+/// [`crate::stats::tally::Tally::distinct`] gives them. The same fit, with the same
+/// errors in the same order, as [`fit_mixture_rounded`] on the replicated values (which
+/// names the first infinite value in increasing order rather than in row order).
+///
+/// # Errors
+/// As [`fit_mixture_rounded`], and [`MixtureError::BadWeight`] for a count that is not
+/// finite and `> 0`; values that are not increasing and distinct are sorted and merged
+/// first.
+///
+/// # Example
+/// ```
+/// use ogive::stats::mixture::{fit_mixture_counted, fit_mixture_rounded};
+/// use ogive::stats::resolution::Resolution;
+/// let c = fit_mixture_counted(&[1.0, 2.0, 8.0, 9.0], &[2.0, 3.0, 1.0, 4.0], Some(2), Resolution::Step(1.0))?;
+/// let xs = [1.0, 1.0, 2.0, 2.0, 2.0, 8.0, 9.0, 9.0, 9.0, 9.0];
+/// assert_eq!(c, fit_mixture_rounded(&xs, Some(2), Resolution::Step(1.0))?);
+/// # Ok::<(), ogive::stats::mixture::MixtureError>(())
+/// ```
+pub fn fit_mixture_counted(
+    values: &[f64],
+    counts: &[f64],
+    k: Option<usize>,
+    resolution: Resolution,
+) -> Result<MixtureFit, MixtureError> {
+    if let Some(&bad) = counts.iter().find(|w| !(w.is_finite() && **w > 0.0)) {
+        return Err(MixtureError::BadWeight(bad));
+    }
+    check_k_and_values(k, values)?;
+    let (x, count) = if values.windows(2).all(|w| w[0] < w[1]) && values.len() == counts.len() {
+        (values.to_vec(), counts.to_vec())
+    } else {
+        crate::stats::sorting::merge_weighted(values, counts)
+    };
+    let total = crate::stats::sum::sum(&count);
+    let need = 3 * k.unwrap_or(1) - 1;
+    if total < need as f64 {
+        return Err(MixtureError::TooFewPoints {
+            k: k.unwrap_or(1),
+            need,
+            got: total.floor() as u64,
+        });
+    }
+    fit_data(Data::merged(x, count, total, resolution)?, k, THIN_TO)
+}
+
 /// The checks shared by every entry: k in range, every value finite.
 fn check_k_and_values(k: Option<usize>, xs: &[f64]) -> Result<(), MixtureError> {
     if let Some(k) = k
@@ -179,7 +227,21 @@ fn fit_data(data: Data, k: Option<usize>, thin_to: usize) -> Result<MixtureFit, 
     let thin = data.thinned(thin_to);
     let mut candidates = Vec::with_capacity(ks.len());
     let mut best: Option<(f64, usize, Run)> = None;
+    // Grouped data: no k can have a log-likelihood above the saturated one, so a k
+    // whose BIC would lose even there is not fitted (nor, its penalty being larger, any
+    // later k); its candidate has no loglik or BIC.
+    let ceiling = if k.is_none() { data.saturated() } else { None };
     for &k in &ks {
+        if let (Some(ceiling), Some((b, _, _))) = (ceiling, best.as_ref())
+            && FitSummary::weighted(ceiling, need(k), total).bic > *b + 1e-9 * b.abs()
+        {
+            candidates.push(Candidate {
+                k,
+                loglik: None,
+                bic: None,
+            });
+            continue;
+        }
         let run = data.best_run(k, thin.as_ref());
         if crate::stats::cancel::requested() {
             return Err(MixtureError::Interrupted);

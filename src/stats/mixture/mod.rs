@@ -100,7 +100,14 @@
 //!   above. The log-likelihood, AIC and BIC are then those of the grouped data (sums of
 //!   log probabilities), bounded, so BIC does not reward narrow components sitting on
 //!   single grid values. The one-component fit is the grouped MLE too (not the sample
-//!   mean and sd, which count the rounding as spread).
+//!   mean and sd, which count the rounding as spread). With k chosen by BIC, a k whose
+//!   BIC would lose even at the saturated grouped log-likelihood `sum c ln(c / n)` (an
+//!   upper bound for any model when the intervals do not overlap) is not fitted, nor
+//!   any larger k; its candidate has no log-likelihood. A grouped pass works in
+//!   probabilities, with each end's tail from one exponential and Mills' ratio, over
+//!   arrays that vectorise (see `binned.rs`); values already counted (as the SQL
+//!   aggregate counts rows with a resolution, [`crate::stats::tally`]) go in through
+//!   [`fit_mixture_counted`] without a sort.
 //! - Components are reported sorted by mean.
 //!
 //! # Errors and NaN policy
@@ -123,7 +130,10 @@ mod starts;
 #[cfg(test)]
 mod tests;
 
-pub use fit::{Candidate, MixtureFit, fit_mixture, fit_mixture_rounded, fit_mixture_weighted};
+pub use fit::{
+    Candidate, MixtureFit, fit_mixture, fit_mixture_counted, fit_mixture_rounded,
+    fit_mixture_weighted,
+};
 pub use model::Mixture;
 
 /// The most components a mixture may have.

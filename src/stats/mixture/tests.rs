@@ -339,3 +339,41 @@ fn runs_over_many_distinct_values_have_a_bounded_pass_budget() {
     let few = Data::new(&normals(5, 1000), Resolution::Exact).unwrap();
     assert!(few.pass_budget(6) > MAX_ITERATIONS);
 }
+
+#[test]
+fn candidates_that_cannot_win_by_bic_are_skipped_only_when_they_lose() {
+    // Readings to 0.1 of two regimes (2,000 values, weights 0.8 and 0.2): with k chosen
+    // by BIC the saturated grouped log-likelihood rules out the larger k. Each skipped k,
+    // fitted on its own, must indeed have a larger BIC than the winner (the bound is an
+    // upper bound: Gibbs' inequality), and the winner must be the fit of its k given
+    // directly, bit for bit.
+    let xs: Vec<f64> = normals(23, 2_000)
+        .iter()
+        .enumerate()
+        .map(|(i, &z)| {
+            let x = if i % 5 == 0 { 5.0 + z } else { 3.0 + 0.3 * z };
+            (x * 10.0).round() / 10.0
+        })
+        .collect();
+    let step = Resolution::Step(0.1);
+    let chosen = fit_mixture_rounded(&xs, None, step).unwrap();
+    let skipped: Vec<usize> = chosen
+        .candidates
+        .iter()
+        .filter(|c| c.bic.is_none())
+        .map(|c| c.k)
+        .collect();
+    assert!(!skipped.is_empty(), "{:?}", chosen.candidates);
+    let k = chosen.mixture.components().len();
+    assert_eq!(
+        fit_mixture_rounded(&xs, Some(k), step).unwrap().mixture,
+        chosen.mixture
+    );
+    for k in skipped {
+        let own = fit_mixture_rounded(&xs, Some(k), step).unwrap();
+        assert!(own.summary.bic > chosen.summary.bic, "k = {k}");
+    }
+    // Exact values have no such bound: every candidate is fitted.
+    let exact = fit_mixture(&xs, None).unwrap();
+    assert!(exact.candidates.iter().all(|c| c.bic.is_some()));
+}
