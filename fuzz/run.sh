@@ -2,7 +2,7 @@
 # Fuzzes every target in fuzz/fuzz_targets/ for a bounded time each: `bash fuzz/run.sh
 # [SECONDS]` (default 60). arg_calls (random SQL calls of every registry function through
 # the real registration) gets SECONDS; the two BLOB decoders (blob_decode, sketch_decode)
-# two thirds of it each, so CI's 60 gives 60 + 40 + 40 s. One arg_calls input running past
+# two thirds of it each, so CI's 40 gives 40 + 26 + 26 s. One arg_calls input running past
 # 10 s is a finding (-timeout), as a hang.
 # Installs cargo-fuzz from crates.io when it is missing. cargo fuzz passes nightly-only flags
 # (-Zsanitizer=address and friends) to rustc; RUSTC_BOOTSTRAP=1 lets the stable toolchain
