@@ -7,7 +7,7 @@
 
 use super::args::{ArgError, Constant, FunctionError, fail, number};
 use super::reader::{Call, NoMemo};
-use super::state::{AggregateImp, Args, Reader, State, Writer};
+use super::state::{AggregateImp, Args, Lane, Reader, Sink, State, Writer};
 use super::value::Out;
 use super::{FunctionDef, Imp, Kind, Range, Returns};
 use crate::stats::check_probability;
@@ -176,6 +176,15 @@ impl State for QuantileSketchState {
     fn save(&self, w: &mut Writer) {
         w.constant(self.epsilon.raw());
         save_sketch(w, self.sketch.as_ref());
+    }
+
+    #[inline(always)]
+    fn lane(&mut self) -> Option<Lane<'_>> {
+        let key = self.epsilon.get()?.to_bits();
+        Some(Lane {
+            key,
+            sink: Sink::Sketch(self.sketch.as_mut()?),
+        })
     }
 
     fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {

@@ -18,6 +18,7 @@ use std::any::Any;
 use super::args::{ArgError, Constant, FunctionError, fail};
 use super::value::{Arg, Out};
 use crate::stats::ecdf::EcdfCounter;
+use crate::stats::sketch::QuantileSketch;
 
 /// The arguments of one row.
 #[derive(Debug, Clone, Copy)]
@@ -116,8 +117,9 @@ pub trait State: Default + Send + Sync + 'static {
 /// A state's offer to an engine's per-row fast path: once the group's constant argument
 /// (the second) is fixed, a row whose constant is a number (INTEGER or REAL) with the bits
 /// `key`, and whose first argument is a number, needs nothing but adding that number to
-/// `sink`. Every other row goes through [`State::step`] with its full checks, so errors do
-/// not depend on where a row sits in its group.
+/// `sink`. A call with one argument (`quantile_sketch(x)`) has no constant to check: its
+/// rows need only a number as `x`. Every other row goes through [`State::step`] with its
+/// full checks, so errors do not depend on where a row sits in its group.
 pub struct Lane<'a> {
     /// The bits of the group's constant, as `f64::to_bits`; never those of 0.0 or -0.0.
     pub key: u64,
@@ -131,6 +133,9 @@ pub enum Sink<'a> {
     Count(&'a mut EcdfCounter),
     /// A list of values (`quantile`); pushing must not abort on out-of-memory.
     Collect(&'a mut Vec<f64>),
+    /// A quantile sketch (`quantile_sketch`); a value it refuses (NaN) goes to the
+    /// general step, which reports it.
+    Sketch(&'a mut QuantileSketch),
 }
 
 /// A state as engines hold it: [`State`] behind a trait object.

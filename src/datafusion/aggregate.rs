@@ -114,7 +114,8 @@ by_name!(Acc);
 impl Acc {
     /// Runs `body` on every row of a batch; with `lane`, rows the state's fast lane takes
     /// (see [`Lane`]) skip the general step, as in the SQLite adapter: a numeric constant
-    /// with the group's bits and a numeric or NULL `x` only add `x`.
+    /// with the group's bits (or no constant, in a one-argument call) and a numeric or
+    /// NULL `x` only add `x`.
     fn each_row(
         &mut self,
         values: &[ArrayRef],
@@ -129,8 +130,11 @@ impl Acc {
         let mut args = [Arg::Null; MAX_ARGS];
         let mut row = 0;
         while row < rows {
-            if lane && let [x, c] = cols.as_slice() {
-                row = self.lane_rows(x, c, row, rows)?;
+            if lane
+                && let [x, c @ ..] = cols.as_slice()
+                && c.len() <= 1
+            {
+                row = self.lane_rows(x, c.first(), row, rows)?;
                 if row == rows {
                     break;
                 }
@@ -149,7 +153,7 @@ impl Acc {
     fn lane_rows(
         &mut self,
         x: &Column,
-        c: &Column,
+        c: Option<&Column>,
         from: usize,
         rows: usize,
     ) -> Result<usize, DataFusionError> {
@@ -158,13 +162,15 @@ impl Acc {
         };
         let mut row = from;
         while row < rows {
-            let bits = match c.get(row) {
-                Arg::Real(v) => v.to_bits(),
-                Arg::Integer(i) => (i as f64).to_bits(),
-                _ => break,
-            };
-            if bits != key {
-                break;
+            if let Some(c) = c {
+                let bits = match c.get(row) {
+                    Arg::Real(v) => v.to_bits(),
+                    Arg::Integer(i) => (i as f64).to_bits(),
+                    _ => break,
+                };
+                if bits != key {
+                    break;
+                }
             }
             let v = match x.get(row) {
                 Arg::Null => {
@@ -177,6 +183,11 @@ impl Acc {
             };
             match &mut sink {
                 Sink::Count(counter) => counter.add(v),
+                Sink::Sketch(s) => {
+                    if s.insert(v).is_err() {
+                        break;
+                    }
+                }
                 Sink::Collect(xs) => {
                     if !try_push(xs, v) {
                         let held = xs.len();

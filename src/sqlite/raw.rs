@@ -18,8 +18,9 @@
 //! # The fast lane
 //!
 //! A state may offer a [`Lane`]: after a row has fixed the group's constant, a
-//! two-argument row whose constant is INTEGER or REAL with the same bits, and whose `x` is
-//! INTEGER, REAL or NULL, only adds `x` to a counter or a list. The slot caches where that
+//! two-argument row whose constant is INTEGER or REAL with the same bits (or a
+//! one-argument row), and whose `x` is INTEGER, REAL or NULL, only adds `x` to a counter,
+//! a list or a sketch. The slot caches where that
 //! counter or list lives (re-read from the state after every call into it), so such a row
 //! costs five calls into SQLite and no call into the state. Every other row, a TEXT
 //! constant among them wherever it sits in the group, takes the general step with its
@@ -51,6 +52,7 @@ use crate::catalogue::state::{Aggregator, Args, Lane, Sink, try_push};
 use crate::catalogue::value::{Arg, Out};
 use crate::catalogue::{FunctionDef, Imp, Kind};
 use crate::stats::ecdf::EcdfCounter;
+use crate::stats::sketch::QuantileSketch;
 
 /// Reads argument `v` as the catalogue's value.
 ///
@@ -92,6 +94,7 @@ unsafe fn bytes<'a>(p: *const u8, v: *mut sqlite3_value) -> &'a [u8] {
 enum RawSink {
     Count(*mut EcdfCounter),
     Collect(*mut Vec<f64>),
+    Sketch(*mut QuantileSketch),
 }
 
 /// What SQLite's aggregate context points at: the state and the cached lane.
@@ -111,6 +114,7 @@ impl Slot {
             let raw = match sink {
                 Sink::Count(c) => RawSink::Count(c),
                 Sink::Collect(v) => RawSink::Collect(v),
+                Sink::Sketch(s) => RawSink::Sketch(s),
             };
             (key, raw)
         });
@@ -455,7 +459,7 @@ fn numeric(ty: c_int) -> bool {
 /// SQLite's contract for xStep: `argv` holds `argc` values.
 #[inline(always)]
 unsafe fn fast_row(ctx: *mut sqlite3_context, argc: c_int, argv: *mut *mut sqlite3_value) -> bool {
-    if argc != 2 || argv.is_null() {
+    if !(argc == 1 || argc == 2) || argv.is_null() {
         return false;
     }
     // SAFETY: per the contract, `argv` holds two valid values; a context that has a state
@@ -468,9 +472,13 @@ unsafe fn fast_row(ctx: *mut sqlite3_context, argc: c_int, argv: *mut *mut sqlit
         let Some((key, sink)) = (*slot).lane else {
             return false;
         };
-        let (x, c) = (*argv, *argv.add(1));
-        if !numeric(ffi::sqlite3_value_type(c)) || ffi::sqlite3_value_double(c).to_bits() != key {
-            return false;
+        let x = *argv;
+        if argc == 2 {
+            let c = *argv.add(1);
+            if !numeric(ffi::sqlite3_value_type(c)) || ffi::sqlite3_value_double(c).to_bits() != key
+            {
+                return false;
+            }
         }
         match ffi::sqlite3_value_type(x) {
             ffi::SQLITE_NULL => true,
@@ -482,6 +490,7 @@ unsafe fn fast_row(ctx: *mut sqlite3_context, argc: c_int, argv: *mut *mut sqlit
                         true
                     }
                     RawSink::Collect(xs) => try_push(&mut *xs, v),
+                    RawSink::Sketch(s) => (*s).insert(v).is_ok(),
                 }
             }
             _ => false,

@@ -238,17 +238,35 @@ def test_lean_path_counts_what_the_full_path_counts(conn):
 @pytest.mark.parametrize(
     "function, constant, message",
     [
-        ("quantile", "p", "quantile: p must be a number (INTEGER or REAL), got TEXT '0.5abc'"),
-        ("ecdf", "t", "ecdf: t must be a number (INTEGER or REAL), got TEXT '0.5abc'"),
+        ("quantile", "0.5", "quantile: p must be a number (INTEGER or REAL), got TEXT '0.5abc'"),
+        ("ecdf", "0.5", "ecdf: t must be a number (INTEGER or REAL), got TEXT '0.5abc'"),
+        (
+            "quantile_sketch",
+            "0.25",
+            "quantile_sketch: epsilon must be a number (INTEGER or REAL), got TEXT '0.25abc'",
+        ),
     ],
 )
 def test_a_text_constant_is_refused_wherever_it_sits(conn, where, function, constant, message):
     # SQLite reads TEXT '0.5abc' as the double 0.5 (its prefix), the same bits as the
     # group's constant 0.5; the answer must not depend on where such a row sits.
-    rows = ["(1.0, 0.5)", "(2.0, 0.5)", "(3.0, 0.5)", "(4.0, 0.5)"]
+    rows = [f"({x}, {constant})" for x in ("1.0", "2.0", "3.0", "4.0")]
     at = {"first": 0, "middle": 2, "last": len(rows)}[where]
-    rows.insert(at, "(2.5, '0.5abc')")
+    rows.insert(at, f"(2.5, '{constant}abc')")
     expect_error(conn, f"SELECT {function}(column1, column2) FROM (VALUES {', '.join(rows)})", message)
+
+
+@pytest.mark.parametrize("where", ["first", "middle", "last"])
+def test_a_text_value_is_refused_wherever_it_sits_in_a_one_argument_sketch(conn, where):
+    # quantile_sketch(x) has no constant; its fast lane must still refuse TEXT x such as
+    # '2.5abc' (which SQLite would read as 2.5) wherever the row sits.
+    rows = ["(1.0)", "(2.0)", "(3.0)", "(4.0)"]
+    rows.insert({"first": 0, "middle": 2, "last": len(rows)}[where], "('2.5abc')")
+    expect_error(
+        conn,
+        f"SELECT quantile_sketch(column1) FROM (VALUES {', '.join(rows)})",
+        "quantile_sketch: x must be a number (INTEGER or REAL), got TEXT '2.5abc'",
+    )
 
 
 def test_median_is_numpy_median_as_aggregate_and_window(conn):
