@@ -425,14 +425,6 @@ impl QuantileState {
         }
         Ok(())
     }
-
-    /// The values held, in any order.
-    fn values(&self) -> Vec<f64> {
-        match &self.tree {
-            Some(t) => t.to_sorted_vec(),
-            None => self.xs.clone(),
-        }
-    }
 }
 
 impl State for QuantileState {
@@ -472,6 +464,8 @@ impl State for QuantileState {
                     tree.insert(x).map_err(|e| fail(name, e))?;
                 }
             }
+            // The first part merged into an empty state is taken as it is, uncopied.
+            None if self.xs.is_empty() => self.xs = theirs,
             None => try_extend(&mut self.xs, &theirs).map_err(|e| fail(name, e))?,
         }
         Ok(())
@@ -489,7 +483,10 @@ impl State for QuantileState {
     fn save(&self, w: &mut Writer) {
         w.constant(self.p.raw());
         self.ty.save(w);
-        w.f64s(&self.values());
+        match &self.tree {
+            Some(t) => w.f64s(&t.to_sorted_vec()),
+            None => w.f64s(&self.xs),
+        }
     }
 
     fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
