@@ -161,7 +161,7 @@ fn main() {
         ),
     ];
     let mut md = String::from(
-        "# ogive on DataFusion: one run\n\nWritten by `cargo bench --features datafusion --bench \
+        "# ogive on DataFusion\n\nWritten by `cargo bench --features datafusion --bench \
          fusion` (release build, medians of 5 runs per cell with the engines in turns, 10M rows \
          of a lognormal in 8 Parquet files, seeded; the SQLite column is ogive in SQLite over \
          the same rows in one file; a shared 2-core machine). Seconds. `sum(x)` is each \
