@@ -20,9 +20,9 @@
 //! A state may offer a [`Lane`]: after a row has fixed the group's constant, a
 //! two-argument row whose constant is INTEGER or REAL with the same bits (or a
 //! one-argument row), and whose `x` is INTEGER, REAL or NULL, only adds `x` to a counter,
-//! a list or a sketch. The slot caches where that
-//! counter or list lives (re-read from the state after every call into it), so such a row
-//! costs five calls into SQLite and no call into the state. Every other row, a TEXT
+//! a list or a sketch. The slot caches where that counter, list or sketch lives (re-read
+//! from the state after every call into it), so such a row costs at most five calls into
+//! SQLite and no call into the state. Every other row, a TEXT
 //! constant among them wherever it sits in the group, takes the general step with its
 //! full checks, so errors never depend on row order.
 //!
@@ -462,9 +462,9 @@ unsafe fn fast_row(ctx: *mut sqlite3_context, argc: c_int, argv: *mut *mut sqlit
     if !(argc == 1 || argc == 2) || argv.is_null() {
         return false;
     }
-    // SAFETY: per the contract, `argv` holds two valid values; a context that has a state
-    // holds a pointer to its slot; the cached sink points into the boxed state, which no
-    // other reference touches while the lane runs.
+    // SAFETY: per the contract, `argv` holds `argc` (one or two) valid values; a context
+    // that has a state holds a pointer to its slot; the cached sink points into the boxed
+    // state, which no other reference touches while the lane runs.
     unsafe {
         let Some(slot) = slot(ctx, false) else {
             return false;
