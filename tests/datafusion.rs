@@ -120,15 +120,60 @@ fn bad_input_gives_the_same_message_as_sqlite() {
 }
 
 #[test]
-fn table_functions_refuse_a_column_argument_with_a_clear_error() {
+fn table_functions_take_a_subquery_and_refuse_what_they_cannot_read() {
+    let rows = readings();
+    let dir = tempdir("subquery");
+    write_parquet(&dir, &rows);
+    let conn = sqlite(&rows);
     let rt = tokio::runtime::Runtime::new().unwrap();
-    let mut ctx = SessionContext::new();
-    ogive::datafusion::register(&mut ctx).unwrap();
+    let ctx = rt.block_on(session(&dir, 2));
+    // An uncorrelated subquery is run while the query is planned: the same rows as SQLite
+    // (also in EXACT, at 1, 2 and 8 partitions); none of its rows reads as NULL.
+    for sql in [
+        "SELECT x, cdf FROM dist_steps((SELECT dist_empirical(x) FROM t WHERE g = 1)) ORDER BY x",
+        "SELECT count(*) FROM dist_steps((SELECT dist_empirical(x) FROM t WHERE g < 0))",
+    ] {
+        let want = sqlite_rows(&conn, sql).unwrap();
+        let got = rt.block_on(fusion_rows(&ctx, sql)).unwrap();
+        assert_eq!(want.len(), got.len(), "{sql}");
+        for (w, g) in want.iter().zip(&got) {
+            assert!(
+                w.iter().zip(g).all(|(a, b)| same(a, b)),
+                "{sql}\n{w:?}\n{g:?}"
+            );
+        }
+    }
+    // A value of the wrong type from a subquery: SQLite's message.
+    let sql = "SELECT * FROM dist_steps((SELECT 1))";
+    let want = sqlite_rows(&conn, sql).unwrap_err();
+    let got = rt.block_on(fusion_rows(&ctx, sql)).unwrap_err();
+    assert!(got.contains(&want), "SQLite: {want}\nDataFusion: {got}");
+    // What only DataFusion refuses, each with the function's name and what to write.
+    for (sql, says) in [
+        (
+            "SELECT * FROM dist_steps((SELECT dist_empirical(x) FROM t GROUP BY g))",
+            "dist_steps: argument 1 (d) is a subquery that gave 7 rows; it must give one value",
+        ),
+        (
+            "SELECT * FROM dist_steps((SELECT dist_empirical(x), 1 FROM t))",
+            "dist_steps: argument 1 (d) is a subquery of 2 columns",
+        ),
+        (
+            "SELECT * FROM dist_steps(random())",
+            "dist_steps: argument 1 (d) must be a constant or an uncorrelated subquery",
+        ),
+    ] {
+        let e = rt.block_on(fusion_rows(&ctx, sql)).unwrap_err();
+        assert!(e.contains(says), "{sql}: {e}");
+    }
+    // A column of another table in the same FROM: DataFusion's planner refuses it before
+    // the function is called (no lateral table functions); an error, not a panic.
     let e = rt
-        .block_on(fusion_rows(&ctx, "SELECT * FROM dist_steps((SELECT 1))"))
+        .block_on(fusion_rows(
+            &ctx,
+            "SELECT s.x FROM (SELECT dist_empirical(x) AS d FROM t) AS a, dist_steps(a.d) AS s",
+        ))
         .unwrap_err();
-    assert!(
-        e.contains("dist_steps: argument 1 (d) must be a constant"),
-        "{e}"
-    );
+    assert!(!e.contains("panic"), "{e}");
+    std::fs::remove_dir_all(&dir).ok();
 }

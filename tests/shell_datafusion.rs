@@ -1,5 +1,5 @@
 //! The shell on DataFusion: the demo database exported to Parquet, and its check files
-//! and portable query files run with `--engine datafusion`, print exactly what they print
+//! and query files run with `--engine datafusion`, print exactly what they print
 //! on SQLite (the reference: the SQLite engine, checked by tests/shell.rs).
 #![cfg(feature = "datafusion")]
 
@@ -63,6 +63,8 @@ fn demo_checks_and_queries_print_the_same_on_both_engines() {
         "03_route_percentiles.sql",
         "04_drift_this_week.sql",
         "05_pallet_weighted.sql",
+        "06_two_regimes.sql",
+        "07_which_model_fits.sql",
     ]
     .iter()
     .map(|f| format!("{ROOT}/sql/demo/{f}"))

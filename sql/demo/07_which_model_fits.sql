@@ -33,6 +33,6 @@ WITH s AS (
                      WHERE trailer = 'TR03' AND route IS NOT NULL))
 )
 SELECT round(max(step), 3) AS tallest_step,
-       (SELECT x FROM s ORDER BY step DESC LIMIT 1) AS at_c,
+       (SELECT x FROM s ORDER BY step DESC, x LIMIT 1) AS at_c,
        round(max(step) / 2, 3) AS ks_d_floor
 FROM s;

@@ -1,23 +1,30 @@
 //! Table registry rows (`dist_steps`, `dist_curve`, `dist_histogram`, `dist_components`)
 //! as DataFusion table functions.
 //!
-//! DataFusion calls a table function while it plans, before any query runs, with the
-//! argument expressions. Each argument is evaluated there on its own: a literal, a cast
-//! or arithmetic on literals works (`dist_components('{"family": ...}')`,
-//! `dist_curve(X'...', -1, 12, 30)`), a column or a subquery cannot (DataFusion has no
-//! lateral table functions). Where SQLite takes `FROM fit, dist_components(fit.m)`,
-//! compute the value first and pass it as a literal, or use the scalar functions on each
-//! row (`dist_cdf`, `dist_quantile`, `dist_component`).
+//! DataFusion calls a table function while it plans, before the query runs, with the
+//! argument expressions. Each argument is evaluated there on its own:
+//!
+//! - a literal, a cast or arithmetic on literals (`dist_components('{"family": ...}')`,
+//!   `dist_curve(X'...', -1, 12, 30)`) is evaluated on a batch of one row;
+//! - an uncorrelated scalar subquery (`dist_steps((SELECT dist_empirical(x) FROM t))`) is
+//!   planned and run to its end, on a thread of its own with its own runtime (the caller
+//!   is planning inside the session's runtime, which must not be blocked on); it must give
+//!   one column and at most one row (none reads as NULL);
+//! - a column of another table in the same `FROM` cannot be read (DataFusion has no
+//!   lateral table functions). Where SQLite takes `FROM fit, dist_components(fit.m)`, pass
+//!   the value as a subquery, `dist_components((SELECT dist_mixture(x, 2) FROM t))`, or
+//!   use the scalar functions on each row (`dist_cdf`, `dist_quantile`, `dist_component`).
 
 use std::sync::Arc;
 
-use ::datafusion::arrow::array::{ArrayRef, RecordBatch, RecordBatchOptions};
+use ::datafusion::arrow::array::{ArrayRef, RecordBatch, RecordBatchOptions, new_null_array};
 use ::datafusion::arrow::datatypes::{Field, Schema};
-use ::datafusion::catalog::{TableFunctionArgs, TableFunctionImpl, TableProvider};
+use ::datafusion::catalog::{Session, TableFunctionArgs, TableFunctionImpl, TableProvider};
 use ::datafusion::common::DFSchema;
 use ::datafusion::datasource::MemTable;
 use ::datafusion::error::DataFusionError;
-use ::datafusion::logical_expr::ColumnarValue;
+use ::datafusion::logical_expr::{ColumnarValue, Expr, Subquery};
+use ::datafusion::physical_plan::collect;
 
 use super::convert::{Column, data_type, out_array, read_row};
 use super::{guarded, to_datafusion};
@@ -95,23 +102,28 @@ impl TableFn {
         )?;
         let mut cols = Vec::with_capacity(exprs.len());
         for (i, e) in exprs.iter().enumerate() {
-            let value = args
-                .session()
-                .create_physical_expr(e.clone(), &empty)
-                .and_then(|p| p.evaluate(&one_row))
-                .map_err(|err| {
-                    DataFusionError::Plan(format!(
-                        "{}: argument {} ({}) must be a constant on DataFusion, which plans table \
-                         functions before any query runs: pass the value as a literal, or use \
-                         the scalar functions on each row ({err})",
-                        def.name,
-                        i + 1,
-                        imp.args.get(i).copied().unwrap_or("?"),
-                    ))
-                })?;
-            let array = match value {
-                ColumnarValue::Array(a) => a,
-                ColumnarValue::Scalar(s) => s.to_array_of_size(1)?,
+            let what = imp.args.get(i).copied().unwrap_or("?");
+            let array = if let Expr::ScalarSubquery(q) = e {
+                self.subquery_value(args.session(), i, what, q)?
+            } else {
+                let value = args
+                    .session()
+                    .create_physical_expr(e.clone(), &empty)
+                    .and_then(|p| p.evaluate(&one_row))
+                    .map_err(|err| {
+                        DataFusionError::Plan(format!(
+                            "{}: argument {} ({what}) must be a constant or an uncorrelated \
+                             subquery on DataFusion, which plans table functions before the \
+                             query runs: pass the value as a literal or as (SELECT ...), or \
+                             use the scalar functions on each row ({err})",
+                            def.name,
+                            i + 1,
+                        ))
+                    })?;
+                match value {
+                    ColumnarValue::Array(a) => a,
+                    ColumnarValue::Scalar(s) => s.to_array_of_size(1)?,
+                }
             };
             cols.push(Column::new(def.name, i, array, true)?);
         }
@@ -146,5 +158,68 @@ impl TableFn {
             RecordBatch::try_new(Arc::clone(&schema), arrays)?
         };
         Ok(Arc::new(MemTable::try_new(schema, vec![vec![batch]])?))
+    }
+
+    /// The value of a scalar subquery argument (argument `i`, named `what`): its plan run
+    /// to the end on a thread of its own, as a one-row array (NULL when it gives no row).
+    ///
+    /// # Errors
+    /// A plan error naming the function when the subquery reads the outer query's columns,
+    /// gives more than one column or more than one row, or when running it fails.
+    fn subquery_value(
+        &self,
+        session: &dyn Session,
+        i: usize,
+        what: &str,
+        q: &Subquery,
+    ) -> Result<ArrayRef, DataFusionError> {
+        let name = self.def.name;
+        let wrong = |why: String| {
+            DataFusionError::Plan(format!("{name}: argument {} ({what}) {why}", i + 1))
+        };
+        if !q.outer_ref_columns.is_empty() {
+            return Err(wrong(
+                "is a subquery that reads the outer query's columns; on DataFusion a table \
+                 function's subquery must stand alone (no lateral table functions)"
+                    .into(),
+            ));
+        }
+        let width = q.subquery.schema().fields().len();
+        if width != 1 {
+            return Err(wrong(format!(
+                "is a subquery of {width} columns; it must select one value"
+            )));
+        }
+        let plan = q.subquery.as_ref();
+        // The caller plans inside the session's runtime: run the subquery on a runtime of
+        // its own, on another thread, and wait for it.
+        let batches = std::thread::scope(|scope| {
+            scope
+                .spawn(|| {
+                    let runtime = tokio::runtime::Builder::new_current_thread()
+                        .enable_all()
+                        .build()
+                        .map_err(|e| DataFusionError::External(Box::new(e)))?;
+                    runtime.block_on(async {
+                        let physical = session.create_physical_plan(plan).await?;
+                        collect(physical, session.task_ctx()).await
+                    })
+                })
+                .join()
+        })
+        .map_err(|_| {
+            to_datafusion(fail(
+                name,
+                ArgError::Internal("a panic was caught in a subquery argument".into()),
+            ))
+        })??;
+        let rows: usize = batches.iter().map(RecordBatch::num_rows).sum();
+        match batches.iter().find(|b| b.num_rows() > 0) {
+            _ if rows > 1 => Err(wrong(format!(
+                "is a subquery that gave {rows} rows; it must give one value"
+            ))),
+            Some(b) => Ok(b.column(0).slice(0, 1)),
+            None => Ok(new_null_array(q.subquery.schema().field(0).data_type(), 1)),
+        }
     }
 }

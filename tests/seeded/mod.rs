@@ -159,6 +159,8 @@ pub const EXACT: &[&str] = &[
      \"components\": [{\"weight\": 0.25, \"mean\": 1, \"sd\": 0.5}, {\"weight\": 0.75, \"mean\": 4, \"sd\": 1}]}') \
      ORDER BY component",
     "SELECT x, cdf, pdf FROM dist_curve('{\"family\": \"gamma\", \"shape\": 2, \"scale\": 1.5}', 0, 10, 11)",
+    "SELECT component, weight, mean, sd FROM dist_components((SELECT dist_mixture(x, 2) FROM t)) \
+     ORDER BY component",
 ];
 
 pub fn tempdir(name: &str) -> std::path::PathBuf {
