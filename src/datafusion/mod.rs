@@ -12,9 +12,10 @@
 //!   DataFusion's partial and final aggregation split a group over partitions and merge
 //!   the parts; window rows (`quantile`, `ecdf`, `median` over a sliding frame) retract
 //!   through the state's `inverse`.
-//! - **Table functions** ([`table`]) take literal arguments only: DataFusion plans a
-//!   table function before it runs any query, so `dist_steps((SELECT ...))` or a column
-//!   of another table cannot be its argument there.
+//! - **Table functions** ([`table`]) take a constant or a scalar subquery that stands
+//!   alone (`dist_steps((SELECT dist_empirical(x) FROM t))`), both evaluated while the
+//!   query is planned; a column of another table cannot be their argument (DataFusion
+//!   has no lateral table functions).
 //! - **JSON fields**: `j ->> 'path'` (a number, as a double) and `j -> 'path'` (JSON
 //!   text) read the JSON that the fits and tests return, with SQLite's path syntax
 //!   (`'$.bic'`, `'$[0]'`, `'bic'`); see [`json`].

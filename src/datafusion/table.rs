@@ -9,7 +9,7 @@
 //! - an uncorrelated scalar subquery (`dist_steps((SELECT dist_empirical(x) FROM t))`) is
 //!   planned and run to its end, on a thread of its own with its own runtime (the caller
 //!   is planning inside the session's runtime, which must not be blocked on); it must give
-//!   one column and at most one row (none reads as NULL);
+//!   one column (DataFusion's planner checks) and at most one row (none reads as NULL);
 //! - a column of another table in the same `FROM` cannot be read (DataFusion has no
 //!   lateral table functions). Where SQLite takes `FROM fit, dist_components(fit.m)`, pass
 //!   the value as a subquery, `dist_components((SELECT dist_mixture(x, 2) FROM t))`, or
@@ -164,8 +164,9 @@ impl TableFn {
     /// to the end on a thread of its own, as a one-row array (NULL when it gives no row).
     ///
     /// # Errors
-    /// A plan error naming the function when the subquery reads the outer query's columns,
-    /// gives more than one column or more than one row, or when running it fails.
+    /// A plan error naming the function when the subquery reads the outer query's columns
+    /// or gives more than one row; DataFusion's error when running it fails. (DataFusion's
+    /// planner itself refuses a subquery of more than one column.)
     fn subquery_value(
         &self,
         session: &dyn Session,
@@ -183,12 +184,6 @@ impl TableFn {
                  function's subquery must stand alone (no lateral table functions)"
                     .into(),
             ));
-        }
-        let width = q.subquery.schema().fields().len();
-        if width != 1 {
-            return Err(wrong(format!(
-                "is a subquery of {width} columns; it must select one value"
-            )));
         }
         let plan = q.subquery.as_ref();
         // The caller plans inside the session's runtime: run the subquery on a runtime of
