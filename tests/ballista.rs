@@ -160,10 +160,7 @@ fn exact_functions_agree_bit_for_bit_with_sqlite_on_two_executors() {
     let rt = tokio::runtime::Runtime::new().unwrap();
     let cluster = start(&root);
     let ctx = client(&cluster, &data, &rt);
-    for sql in EXACT
-        .iter()
-        .filter(|s| !s.contains("dist_components") && !s.contains("dist_curve"))
-    {
+    for sql in EXACT {
         let want = sqlite_rows(&conn, sql).unwrap_or_else(|e| panic!("SQLite: {sql}: {e}"));
         let got = on_cluster(&rt, &ctx, sql).unwrap_or_else(|e| panic!("Ballista: {sql}: {e}"));
         assert!(!want.is_empty(), "{sql} gave no rows");

@@ -167,14 +167,18 @@ fn table_functions_take_a_subquery_and_refuse_what_they_cannot_read() {
         let e = rt.block_on(fusion_rows(&ctx, sql)).unwrap_err();
         assert!(e.contains(says), "{sql}: {e}");
     }
-    // A column of another table in the same FROM: DataFusion's planner refuses it before
-    // the function is called (no lateral table functions); an error, not a panic.
+    // A column of another table in the same FROM (no lateral table functions): the same
+    // error, which says what to write instead.
     let e = rt
         .block_on(fusion_rows(
             &ctx,
             "SELECT s.x FROM (SELECT dist_empirical(x) AS d FROM t) AS a, dist_steps(a.d) AS s",
         ))
         .unwrap_err();
-    assert!(!e.contains("panic"), "{e}");
+    assert!(
+        e.contains("dist_steps: argument 1 (d) must be a constant or an uncorrelated subquery")
+            && e.contains("pass the value as a literal or as (SELECT ...)"),
+        "{e}"
+    );
     std::fs::remove_dir_all(&dir).ok();
 }

@@ -12,8 +12,9 @@
 //! catalogue's saved form in one BINARY column, which Ballista's shuffle carries like any
 //! other column); the aggregates used over window frames (ogive defines no separate window
 //! UDFs); `->>` and `->` (the client plans them into ordinary function calls); and table
-//! functions with constant arguments, as on DataFusion (the client evaluates them while
-//! planning and the plan carries their rows). `tests/ballista.rs` runs each kind on a
+//! functions with constant or subquery arguments, as on DataFusion (the client evaluates
+//! them while planning, and the plan carries their rows as a `VALUES` list:
+//! [`crate::datafusion::table::TravellingPlans`]). `tests/ballista.rs` runs each kind on a
 //! scheduler with two executors against SQLite.
 
 use std::net::SocketAddr;
@@ -154,7 +155,11 @@ pub fn connect(scheduler: &str) -> Result<SessionContext, DataFusionError> {
             ))
         })?;
     // Upgrading replaces the state's functions with Ballista's defaults: register after.
-    let state = default_session_builder(SessionConfig::new())?
+    let mut state = default_session_builder(SessionConfig::new())?
         .upgrade_for_ballista(format!("http://{host}:{port}"))?;
+    // Table functions' rows travel in the plan as VALUES (an in-memory table would not).
+    state
+        .config_mut()
+        .set_extension(Arc::new(crate::datafusion::table::TravellingPlans));
     Ok(SessionContext::new_with_state(with_ogive(state)?))
 }

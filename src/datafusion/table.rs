@@ -19,11 +19,14 @@ use std::sync::Arc;
 
 use ::datafusion::arrow::array::{ArrayRef, RecordBatch, RecordBatchOptions, new_null_array};
 use ::datafusion::arrow::datatypes::{Field, Schema};
+use ::datafusion::catalog::view::ViewTable;
 use ::datafusion::catalog::{Session, TableFunctionArgs, TableFunctionImpl, TableProvider};
-use ::datafusion::common::DFSchema;
+use ::datafusion::common::{DFSchema, ScalarValue};
 use ::datafusion::datasource::MemTable;
 use ::datafusion::error::DataFusionError;
-use ::datafusion::logical_expr::{ColumnarValue, Expr, Subquery};
+use ::datafusion::logical_expr::{
+    ColumnarValue, Expr, LogicalPlan, LogicalPlanBuilder, Subquery, cast, col, lit,
+};
 use ::datafusion::physical_plan::collect;
 
 use super::convert::{Column, data_type, out_array, read_row};
@@ -33,6 +36,24 @@ use crate::catalogue::reader::{Call, NoMemo};
 use crate::catalogue::scan::drain;
 use crate::catalogue::value::{Arg, Out};
 use crate::catalogue::{FunctionDef, Imp, MAX_ARGS, Returns};
+
+/// Marks a session whose plans are serialised to run elsewhere (a Ballista client, see
+/// `crate::ballista::connect`), set as a [`SessionConfig`] extension. There a table
+/// function's rows become a `VALUES` plan inside a view, which datafusion-proto carries;
+/// an in-memory table, faster to plan and used everywhere else, it cannot carry.
+///
+/// [`SessionConfig`]: ::datafusion::prelude::SessionConfig
+///
+/// # Example
+/// ```
+/// use std::sync::Arc;
+/// use datafusion::prelude::SessionConfig;
+/// use ogive::datafusion::table::TravellingPlans;
+/// let config = SessionConfig::new().with_extension(Arc::new(TravellingPlans));
+/// assert!(config.get_extension::<TravellingPlans>().is_some());
+/// ```
+#[derive(Debug)]
+pub struct TravellingPlans;
 
 /// A table registry row.
 pub struct TableFn {
@@ -157,6 +178,14 @@ impl TableFn {
         } else {
             RecordBatch::try_new(Arc::clone(&schema), arrays)?
         };
+        if args
+            .session()
+            .config()
+            .get_extension::<TravellingPlans>()
+            .is_some()
+        {
+            return Ok(Arc::new(ViewTable::new(values_plan(&batch)?, None)));
+        }
         Ok(Arc::new(MemTable::try_new(schema, vec![vec![batch]])?))
     }
 
@@ -217,4 +246,45 @@ impl TableFn {
             None => Ok(new_null_array(q.subquery.schema().field(0).data_type(), 1)),
         }
     }
+}
+
+/// The rows of `batch` as a `VALUES` plan with its column names and types: literals,
+/// which a serialised plan carries. No rows is one row of NULLs that a filter drops
+/// (`VALUES` needs a row).
+///
+/// # Errors
+/// DataFusion's, if it refuses the plan.
+fn values_plan(
+    batch: &RecordBatch,
+) -> Result<::datafusion::logical_expr::LogicalPlan, DataFusionError> {
+    let schema = batch.schema();
+    let row = |i: usize| -> Result<Vec<Expr>, DataFusionError> {
+        batch
+            .columns()
+            .iter()
+            .map(|a| ScalarValue::try_from_array(a, i).map(lit))
+            .collect()
+    };
+    let rows = if batch.num_rows() == 0 {
+        vec![
+            schema
+                .fields()
+                .iter()
+                .map(|f| ScalarValue::try_from(f.data_type()).map(lit))
+                .collect::<Result<Vec<_>, _>>()?,
+        ]
+    } else {
+        (0..batch.num_rows()).map(row).collect::<Result<_, _>>()?
+    };
+    let mut plan = LogicalPlanBuilder::values(rows)?;
+    if batch.num_rows() == 0 {
+        // Not `WHERE false`: the optimizer turns that into an empty relation, whose
+        // serialised form loses the columns.
+        plan = plan.filter(col("column1").is_not_null())?;
+    }
+    let names = schema.fields().iter().enumerate().map(|(i, f)| {
+        let column = col(format!("column{}", i + 1));
+        cast(column, f.data_type().clone()).alias(f.name())
+    });
+    plan.project(names)?.build()
 }

@@ -161,6 +161,7 @@ pub const EXACT: &[&str] = &[
     "SELECT x, cdf, pdf FROM dist_curve('{\"family\": \"gamma\", \"shape\": 2, \"scale\": 1.5}', 0, 10, 11)",
     "SELECT component, weight, mean, sd FROM dist_components((SELECT dist_mixture(x, 2) FROM t)) \
      ORDER BY component",
+    "SELECT count(*), sum(cdf) FROM dist_steps((SELECT dist_empirical(x) FROM t WHERE g < 0))",
 ];
 
 pub fn tempdir(name: &str) -> std::path::PathBuf {
