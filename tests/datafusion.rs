@@ -120,6 +120,44 @@ fn bad_input_gives_the_same_message_as_sqlite() {
 }
 
 #[test]
+fn a_batch_at_once_skips_null_and_nan_and_checks_the_constant_on_every_row() {
+    // The adapter reads a REAL column's batch at once when the group's constant holds on
+    // every row; NULL and NaN (which SQLite stores as NULL) are skipped as row by row.
+    // Reference: the same values in SQLite, NaN written as NULL there.
+    let conn = rusqlite::Connection::open_in_memory().unwrap();
+    ogive::register(&conn).unwrap();
+    let rt = tokio::runtime::Runtime::new().unwrap();
+    let mut ctx = SessionContext::new();
+    ogive::datafusion::register(&mut ctx).unwrap();
+    let lite =
+        "(SELECT column1 AS x FROM (VALUES (1.0), (NULL), (NULL), (3.0), (2.5), (5.0), (2.0)))";
+    let fusion = "(SELECT column1 AS x FROM \
+                  (VALUES (1.0), (CAST('NaN' AS DOUBLE)), (NULL), (3.0), (2.5), (5.0), (2.0)))";
+    for select in [
+        "SELECT quantile(x, 0.5), ecdf(x, 2.5), median(x) FROM",
+        "SELECT sketch_quantile(quantile_sketch(x), 0.5), sketch_cdf(quantile_sketch(x, 0.01), 2.5) FROM",
+        // A constant that is a column, equal on every row: still one group constant.
+        "SELECT ecdf(x, CASE WHEN x > 2 THEN 2.5 ELSE 2.5 END), \
+         quantile(x, CASE WHEN x IS NULL THEN 0.5 ELSE 0.5 END) FROM",
+        "SELECT ecdf(x, x) FROM",
+    ] {
+        let want = sqlite_rows(&conn, &format!("{select} {lite}"));
+        let got = rt.block_on(fusion_rows(&ctx, &format!("{select} {fusion}")));
+        match (&want, &got) {
+            (Ok(w), Ok(g)) => assert!(
+                w.len() == g.len()
+                    && w.iter()
+                        .zip(g)
+                        .all(|(a, b)| a.iter().zip(b).all(|(a, b)| same(a, b))),
+                "{select}\n SQLite:     {w:?}\n DataFusion: {g:?}"
+            ),
+            (Err(w), Err(g)) => assert!(g.contains(w.as_str()), "{select}\n{w}\n{g}"),
+            _ => panic!("{select}\n SQLite:     {want:?}\n DataFusion: {got:?}"),
+        }
+    }
+}
+
+#[test]
 fn table_functions_take_a_subquery_and_refuse_what_they_cannot_read() {
     let rows = readings();
     let dir = tempdir("subquery");

@@ -23,7 +23,7 @@ use super::convert::{Column, columns_of, data_type, out_array, read_row};
 use super::scalar::signature;
 use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, FunctionError, fail};
-use crate::catalogue::state::{Aggregator, Args, Lane, Sink, try_push};
+use crate::catalogue::state::{Aggregator, Args, Lane, Sink, try_extend, try_push};
 use crate::catalogue::value::{Arg, Out};
 use crate::catalogue::{FunctionDef, Imp, Kind, MAX_ARGS};
 
@@ -160,6 +160,46 @@ impl Acc {
         let Some(Lane { key, mut sink }) = self.state.lane() else {
             return Ok(from);
         };
+        // The whole rest of the batch at once: a REAL x, and the group's constant on every
+        // row (or none). The same rows as one by one below: NULL and NaN skipped.
+        if let Some((values, nulls)) = x.reals()
+            && c.is_none_or(|c| c.all_bits(key, from..rows))
+        {
+            let values = &values[from..rows];
+            let taken =
+                |i: usize, v: f64| !v.is_nan() && nulls.is_none_or(|n| n.is_valid(from + i));
+            match &mut sink {
+                Sink::Count(counter) => {
+                    for (i, &v) in values.iter().enumerate() {
+                        if taken(i, v) {
+                            counter.add(v);
+                        }
+                    }
+                }
+                Sink::Collect(xs) if nulls.is_none() && !values.iter().any(|v| v.is_nan()) => {
+                    try_extend(xs, values).map_err(|e| to_datafusion(fail(self.def.name, e)))?;
+                }
+                Sink::Collect(xs) => {
+                    for (i, &v) in values.iter().enumerate() {
+                        if taken(i, v) && !try_push(xs, v) {
+                            let held = xs.len();
+                            return Err(to_datafusion(fail(
+                                self.def.name,
+                                ArgError::OutOfMemory { held },
+                            )));
+                        }
+                    }
+                }
+                Sink::Sketch(s) => {
+                    for (i, &v) in values.iter().enumerate() {
+                        if taken(i, v) && s.insert(v).is_err() {
+                            return Ok(from + i);
+                        }
+                    }
+                }
+            }
+            return Ok(rows);
+        }
         let mut row = from;
         while row < rows {
             if let Some(c) = c {

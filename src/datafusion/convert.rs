@@ -1,10 +1,12 @@
 //! Arrow arrays to the catalogue's [`Arg`], and [`Out`] back to arrays.
 
+use std::ops::Range;
 use std::sync::Arc;
 
 use ::datafusion::arrow::array::{
     Array, ArrayRef, AsArray, BinaryArray, Float64Array, Int64Array, RecordBatch, StringArray,
 };
+use ::datafusion::arrow::buffer::NullBuffer;
 use ::datafusion::arrow::compute::{CastOptions, cast_with_options};
 use ::datafusion::arrow::datatypes::{DataType, Float64Type, Int64Type};
 use ::datafusion::error::DataFusionError;
@@ -122,6 +124,50 @@ impl Column {
             Shape::Blob => Arg::Blob(a.as_binary::<i32>().value(row)),
             Shape::LargeBlob => Arg::Blob(a.as_binary::<i64>().value(row)),
             Shape::BlobView => Arg::Blob(a.as_binary_view().value(row)),
+        }
+    }
+}
+
+impl Column {
+    /// A REAL column's doubles and validity, for reading many rows at once; `None` for any
+    /// other column or a constant one. A NaN among them reads as NULL (as in [`Column::get`]).
+    pub fn reals(&self) -> Option<(&[f64], Option<&NullBuffer>)> {
+        match (self.shape, self.constant) {
+            (Shape::Real, false) => {
+                let a = self.array.as_primitive::<Float64Type>();
+                Some((a.values(), a.nulls()))
+            }
+            _ => None,
+        }
+    }
+
+    /// Whether every row of `rows` holds a number (INTEGER or REAL, an INTEGER as its
+    /// double) whose bits (`f64::to_bits`) are `key`.
+    pub fn all_bits(&self, key: u64, rows: Range<usize>) -> bool {
+        let number = |a: Arg<'_>| match a {
+            Arg::Real(v) => v.to_bits() == key,
+            Arg::Integer(i) => (i as f64).to_bits() == key,
+            _ => false,
+        };
+        if rows.is_empty() {
+            return true;
+        }
+        if self.constant {
+            return number(self.get(0));
+        }
+        if let Some(nulls) = self.array.nulls()
+            && rows.clone().any(|i| nulls.is_null(i))
+        {
+            return false;
+        }
+        match self.shape {
+            Shape::Real => self.array.as_primitive::<Float64Type>().values()[rows]
+                .iter()
+                .all(|v| v.to_bits() == key),
+            Shape::Integer => self.array.as_primitive::<Int64Type>().values()[rows]
+                .iter()
+                .all(|&i| (i as f64).to_bits() == key),
+            _ => false,
         }
     }
 }

@@ -254,9 +254,7 @@ impl TableFn {
 ///
 /// # Errors
 /// DataFusion's, if it refuses the plan.
-fn values_plan(
-    batch: &RecordBatch,
-) -> Result<::datafusion::logical_expr::LogicalPlan, DataFusionError> {
+fn values_plan(batch: &RecordBatch) -> Result<LogicalPlan, DataFusionError> {
     let schema = batch.schema();
     let row = |i: usize| -> Result<Vec<Expr>, DataFusionError> {
         batch
