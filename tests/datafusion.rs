@@ -23,6 +23,25 @@ async fn session(dir: &Path, partitions: usize) -> SessionContext {
     ctx
 }
 
+/// The seeded readings as Parquet files in a new folder `name`, in SQLite, and a runtime
+/// and a 2-partition session over the files.
+fn on_two_partitions(
+    name: &str,
+) -> (
+    std::path::PathBuf,
+    rusqlite::Connection,
+    tokio::runtime::Runtime,
+    SessionContext,
+) {
+    let rows = readings();
+    let dir = tempdir(name);
+    write_parquet(&dir, &rows);
+    let conn = sqlite(&rows);
+    let rt = tokio::runtime::Runtime::new().unwrap();
+    let ctx = rt.block_on(session(&dir, 2));
+    (dir, conn, rt, ctx)
+}
+
 #[test]
 fn exact_functions_agree_bit_for_bit_with_sqlite_at_1_2_and_8_partitions() {
     let rows = readings();
@@ -84,12 +103,7 @@ fn the_sketch_keeps_its_rank_error_over_partitions() {
 
 #[test]
 fn bad_input_gives_the_same_message_as_sqlite() {
-    let rows = readings();
-    let dir = tempdir("errors");
-    write_parquet(&dir, &rows);
-    let conn = sqlite(&rows);
-    let rt = tokio::runtime::Runtime::new().unwrap();
-    let ctx = rt.block_on(session(&dir, 2));
+    let (dir, conn, rt, ctx) = on_two_partitions("errors");
     for sql in [
         "SELECT quantile(x, 1.5) FROM t",
         "SELECT ecdf(x, 'abc') FROM t",
@@ -159,12 +173,7 @@ fn a_batch_at_once_skips_null_and_nan_and_checks_the_constant_on_every_row() {
 
 #[test]
 fn table_functions_take_a_subquery_and_refuse_what_they_cannot_read() {
-    let rows = readings();
-    let dir = tempdir("subquery");
-    write_parquet(&dir, &rows);
-    let conn = sqlite(&rows);
-    let rt = tokio::runtime::Runtime::new().unwrap();
-    let ctx = rt.block_on(session(&dir, 2));
+    let (dir, conn, rt, ctx) = on_two_partitions("subquery");
     // An uncorrelated subquery is run while the query is planned: the same rows as SQLite
     // (also in EXACT, at 1, 2 and 8 partitions); none of its rows reads as NULL.
     for sql in [
