@@ -42,7 +42,11 @@ fn exercise(bytes: &[u8]) {
     if let Ok(s) = decode(bytes) {
         let again = encode(&s).expect("a decoded sketch is not empty");
         assert_eq!(again, ascending(bytes, &s));
-        assert_eq!(decode(&again).as_ref(), Ok(&s), "its own bytes decode to it");
+        assert_eq!(
+            decode(&again).as_ref(),
+            Ok(&s),
+            "its own bytes decode to it"
+        );
         let _ = s.quantiles(&[0.0, 0.25, 0.5, 1.0]);
         let _ = s.cdf(0.0);
         let _ = s.instance_error_bound();
