@@ -207,6 +207,11 @@ fn table_functions_take_a_subquery_and_refuse_what_they_cannot_read() {
             "The subquery should only return one column",
         ),
         (
+            "SELECT g, (SELECT count(*) FROM dist_steps((SELECT a.d))) \
+             FROM (SELECT g, dist_empirical(x) AS d FROM t GROUP BY g) AS a",
+            "dist_steps: argument 1 (d) is a subquery that reads the outer query's columns",
+        ),
+        (
             "SELECT * FROM dist_steps(EXISTS (SELECT 1 FROM t))",
             "dist_steps: argument 1 (d) must be a constant or an uncorrelated subquery",
         ),
