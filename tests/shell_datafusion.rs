@@ -176,3 +176,68 @@ fn engine_flags_are_checked_before_anything_runs() {
     assert_eq!(code, 2);
     assert!(err.contains("--db is SQLite's"), "{err}");
 }
+
+/// One Ctrl-C stops a DataFusion statement while it runs: in its finalizer (the last step,
+/// which DataFusion runs where the query is polled) and in a table function's subquery
+/// argument (run while the query is planned). Each statement joins a 4,000-row CSV with
+/// itself (16M values into one distribution value), about 10 s of work in this debug
+/// build; the shell must exit with 130 and say "cancelled" within 5 s of the signal (it
+/// takes milliseconds; before the fix it waited for the finalizer or the subquery).
+#[cfg(unix)]
+#[test]
+fn one_ctrl_c_stops_a_long_statement() {
+    use std::time::{Duration, Instant};
+    let dir = std::env::temp_dir().join(format!("ogive-shell-df-int-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let mut csv = String::from("x\n");
+    for i in 0..4000 {
+        csv.push_str(&format!("{}\n", (i * 7919 % 4000) as f64 / 100.0));
+    }
+    std::fs::write(dir.join("t.csv"), csv).unwrap();
+    for (name, sql) in [
+        (
+            "finalizer.sql",
+            "SELECT dist_n(dist_empirical(a.x)) FROM t AS a, t AS b;",
+        ),
+        (
+            "subquery.sql",
+            "SELECT count(*) FROM dist_steps((SELECT dist_empirical(a.x) FROM t AS a, t AS b));",
+        ),
+    ] {
+        std::fs::write(dir.join(name), format!("-- long\n{sql}\n")).unwrap();
+        let mut child = Command::new(BIN)
+            .args(["run", "--engine", "datafusion", "--table", "t=t.csv", name])
+            .current_dir(&dir)
+            .env("NO_COLOR", "1")
+            .stdout(std::process::Stdio::null())
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .unwrap();
+        std::thread::sleep(Duration::from_millis(1500));
+        assert!(
+            child.try_wait().unwrap().is_none(),
+            "{name} ended before the signal"
+        );
+        let sent = Command::new("kill")
+            .args(["-INT", &child.id().to_string()])
+            .status()
+            .unwrap();
+        assert!(sent.success());
+        let since = Instant::now();
+        let status = loop {
+            if let Some(s) = child.try_wait().unwrap() {
+                break s;
+            }
+            if since.elapsed() > Duration::from_secs(5) {
+                child.kill().ok();
+                panic!("{name}: still running 5 s after Ctrl-C");
+            }
+            std::thread::sleep(Duration::from_millis(20));
+        };
+        let mut err = String::new();
+        std::io::Read::read_to_string(&mut child.stderr.take().unwrap(), &mut err).unwrap();
+        assert_eq!(status.code(), Some(130), "{name}: {err}");
+        assert!(err.contains("cancelled (Ctrl-C)"), "{name}: {err}");
+    }
+    std::fs::remove_dir_all(&dir).ok();
+}

@@ -4,6 +4,7 @@
 
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Duration;
 
 use datafusion::arrow::array::{ArrayRef, RecordBatch};
@@ -20,7 +21,10 @@ use datafusion::common::ScalarValue;
 /// A DataFusion session with ogive's functions and the user's tables.
 pub struct Fusion {
     ctx: SessionContext,
-    rt: tokio::runtime::Runtime,
+    /// Never dropped: dropping a runtime waits for its workers, and after Ctrl-C one may
+    /// still be inside a cancelled statement's finalizer or subquery argument for seconds.
+    /// The session lasts as long as the process, whose end stops them.
+    rt: std::mem::ManuallyDrop<tokio::runtime::Runtime>,
     /// The Ballista scheduler's `HOST:PORT`, when the queries run on one.
     scheduler: Option<String>,
 }
@@ -121,7 +125,7 @@ impl Fusion {
         }
         Ok(Fusion {
             ctx,
-            rt,
+            rt: std::mem::ManuallyDrop::new(rt),
             scheduler: scheduler.map(str::to_string),
         })
     }
@@ -136,7 +140,10 @@ impl Fusion {
             }
         };
         let work = async {
-            let mut df = ogive::datafusion::sql(&self.ctx, sql).await.map_err(fail)?;
+            let (ctx, text) = (self.ctx.clone(), sql.to_string());
+            let mut df = on_worker(async move { ogive::datafusion::sql(&ctx, &text).await })
+                .await?
+                .map_err(fail)?;
             // Named parameters are DataFusion's `$name`; bound, never pasted into the text.
             let mut names: Vec<String> = df
                 .logical_plan()
@@ -167,7 +174,7 @@ impl Fusion {
                 .iter()
                 .map(|f| f.name().clone())
                 .collect();
-            let batches = df.collect().await.map_err(fail)?;
+            let batches = on_worker(df.collect()).await?.map_err(fail)?;
             if columns.is_empty() {
                 return Ok(Outcome::Changed(0));
             }
@@ -178,11 +185,28 @@ impl Fusion {
                 .collect();
             Ok(Outcome::Rows(ResultSet { columns, rows }))
         };
-        self.rt.block_on(async {
-            tokio::select! {
-                r = work => r,
-                () = cancelled() => Err(StatementError::Interrupted),
-            }
+        // Ctrl-C is watched by a thread of its own: the runtime's timers need a free worker,
+        // and a long finalizer or a subquery argument can hold every worker.
+        let (tell, told) = tokio::sync::oneshot::channel::<()>();
+        let done = AtomicBool::new(false);
+        std::thread::scope(|scope| {
+            scope.spawn(|| {
+                while !done.load(Ordering::Relaxed) {
+                    if crate::interrupt::requested() {
+                        let _ = tell.send(());
+                        return;
+                    }
+                    std::thread::sleep(Duration::from_millis(20));
+                }
+            });
+            let r = self.rt.block_on(async {
+                tokio::select! {
+                    r = work => r,
+                    _ = told => Err(StatementError::Interrupted),
+                }
+            });
+            done.store(true, Ordering::Relaxed);
+            r
         })
     }
 }
@@ -198,10 +222,30 @@ fn scalar(v: &Value) -> ScalarValue {
     }
 }
 
-/// Resolves when Ctrl-C was pressed.
-async fn cancelled() {
-    while !crate::interrupt::requested() {
-        tokio::time::sleep(Duration::from_millis(20)).await;
+/// Runs `work` on a worker of the runtime, not on the thread that waits for Ctrl-C:
+/// planning may run a table function's subquery argument to its end, and the last step of
+/// a query (a finalizer) runs where it is polled. Dropped (a cancelled statement), the
+/// task is aborted at its next await.
+///
+/// # Errors
+/// The statement error for a task that panicked or was aborted.
+async fn on_worker<T: Send + 'static>(
+    work: impl Future<Output = T> + Send + 'static,
+) -> Result<T, StatementError> {
+    let task = tokio::spawn(work);
+    let _abort = AbortOnDrop(task.abort_handle());
+    task.await.map_err(|e| StatementError::Sql {
+        message: format!("the statement stopped: {e}"),
+        offset: None,
+    })
+}
+
+/// Aborts a spawned task when dropped.
+struct AbortOnDrop(tokio::task::AbortHandle);
+
+impl Drop for AbortOnDrop {
+    fn drop(&mut self) {
+        self.0.abort();
     }
 }
 
