@@ -57,8 +57,8 @@ SELECT trailer,
 FROM fits
 ORDER BY trailer;
 
--- TR01's hourly readings, component by component: taken as exact, most components are a few
--- thousandths of a degree wide, each sitting on one 0.1 degC value; as logged, the two regimes
+-- TR01's hourly readings, component by component: taken as exact, four of BIC's six components are
+-- narrower than the logger's 0.1 degC step, two (sd 0.0005) sitting on single values; as logged, two regimes
 SELECT 'as exact' AS taken, component, round(weight, 3) AS weight, round(mean, 2) AS mean_c,
        round(sd, 4) AS sd_c
 FROM dist_components((SELECT dist_mixture(temp_c) FROM readings
