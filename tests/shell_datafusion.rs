@@ -241,3 +241,46 @@ fn one_ctrl_c_stops_a_long_statement() {
     }
     std::fs::remove_dir_all(&dir).ok();
 }
+
+/// With the process's stop flag set (as the shell sets it on Ctrl-C), a long fit on
+/// DataFusion stops at its next poll with its function's error; cleared, fits run again.
+/// (In-process: this file's other tests run the shell in child processes.)
+#[test]
+fn the_stop_flag_stops_a_long_fit_with_its_error() {
+    use std::sync::Arc;
+    use std::sync::atomic::{AtomicBool, Ordering};
+
+    use datafusion::arrow::array::{Float64Array, RecordBatch};
+    use datafusion::arrow::datatypes::{DataType, Field, Schema};
+    use datafusion::datasource::MemTable;
+    use datafusion::prelude::SessionContext;
+
+    let flag = Arc::new(AtomicBool::new(true));
+    assert!(ogive::datafusion::stop_when(Arc::clone(&flag)));
+    let schema = Arc::new(Schema::new(vec![Field::new("x", DataType::Float64, false)]));
+    let xs: Vec<f64> = (0..200_000)
+        .map(|i| (f64::from(i) * 0.618_033_988_749_895).fract() + f64::from(i % 7))
+        .collect();
+    let batch =
+        RecordBatch::try_new(Arc::clone(&schema), vec![Arc::new(Float64Array::from(xs))]).unwrap();
+    let mut ctx = SessionContext::new();
+    ogive::datafusion::register(&mut ctx).unwrap();
+    ctx.register_table(
+        "t",
+        Arc::new(MemTable::try_new(schema, vec![vec![batch]]).unwrap()),
+    )
+    .unwrap();
+    let rt = tokio::runtime::Runtime::new().unwrap();
+    let run = |sql: &str| {
+        rt.block_on(async { ctx.sql(sql).await?.collect().await })
+            .map(|b| b.iter().map(|b| b.num_rows()).sum::<usize>())
+            .map_err(|e| e.to_string())
+    };
+    let e = run("SELECT dist_mixture(x, 8) FROM t").unwrap_err();
+    assert!(e.contains("dist_mixture: interrupted"), "{e}");
+    flag.store(false, Ordering::Relaxed);
+    assert_eq!(
+        run("SELECT dist_mixture(x, 2) FROM (SELECT x FROM t LIMIT 500)"),
+        Ok(1)
+    );
+}

@@ -56,7 +56,8 @@ pub mod scalar;
 pub mod sql;
 pub mod table;
 
-use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{Arc, OnceLock};
 
 use ::datafusion::error::DataFusionError;
 use ::datafusion::execution::FunctionRegistry;
@@ -86,12 +87,43 @@ pub(crate) fn guarded<T>(
     name: &'static str,
     work: impl FnOnce() -> Result<T, DataFusionError>,
 ) -> Result<T, DataFusionError> {
-    std::panic::catch_unwind(std::panic::AssertUnwindSafe(work)).unwrap_or_else(|_| {
-        Err(to_datafusion(fail(
-            name,
-            ArgError::Internal("a panic was caught".into()),
-        )))
-    })
+    let run = || {
+        std::panic::catch_unwind(std::panic::AssertUnwindSafe(work)).unwrap_or_else(|_| {
+            Err(to_datafusion(fail(
+                name,
+                ArgError::Internal("a panic was caught".into()),
+            )))
+        })
+    };
+    match STOP.get() {
+        Some(flag) => {
+            let flag = Arc::clone(flag);
+            crate::stats::cancel::with_check(Box::new(move || flag.load(Ordering::Relaxed)), run)
+        }
+        None => run(),
+    }
+}
+
+/// The flag of [`stop_when`].
+static STOP: OnceLock<Arc<AtomicBool>> = OnceLock::new();
+
+/// Lets this process stop ogive's long work on DataFusion: while `flag` is set, a kernel
+/// that polls for cancellation (an EM pass of a mixture, an exact p-value's lattice walk,
+/// a curve's next point) stops with its function's "interrupted" error, as a Ctrl-C does
+/// in SQLite. The shell sets it when Ctrl-C cancels a statement, whose finalizer would
+/// otherwise run to its end on a worker. One flag per process: `false` when one was given
+/// before (which stays). Without a flag nothing is cancelled.
+///
+/// # Example
+/// ```
+/// use std::sync::Arc;
+/// use std::sync::atomic::AtomicBool;
+/// let flag = Arc::new(AtomicBool::new(false));
+/// assert!(ogive::datafusion::stop_when(Arc::clone(&flag)));
+/// assert!(!ogive::datafusion::stop_when(flag));
+/// ```
+pub fn stop_when(flag: Arc<AtomicBool>) -> bool {
+    STOP.set(flag).is_ok()
 }
 
 /// Registers every function of the registry, and the `->>` and `->` JSON operators, on

@@ -27,6 +27,10 @@ pub struct Fusion {
     rt: std::mem::ManuallyDrop<tokio::runtime::Runtime>,
     /// The Ballista scheduler's `HOST:PORT`, when the queries run on one.
     scheduler: Option<String>,
+    /// Set when Ctrl-C cancels a statement, so that its work still running on a worker
+    /// stops at its next poll ([`ogive::datafusion::stop_when`]); cleared when the next
+    /// statement starts.
+    stop: Arc<AtomicBool>,
 }
 
 /// A statement's error as the user reads it: a Ballista scheduler that cannot be reached
@@ -91,6 +95,8 @@ impl Fusion {
             .enable_all()
             .build()
             .map_err(|e| Failure::failed(format!("cannot start DataFusion's runtime: {e}")))?;
+        let stop = Arc::new(AtomicBool::new(false));
+        ogive::datafusion::stop_when(Arc::clone(&stop));
         let partitions = std::thread::available_parallelism().map_or(1, |n| n.get());
         let ctx = match scheduler {
             None => {
@@ -127,6 +133,7 @@ impl Fusion {
             ctx,
             rt: std::mem::ManuallyDrop::new(rt),
             scheduler: scheduler.map(str::to_string),
+            stop,
         })
     }
 
@@ -187,6 +194,7 @@ impl Fusion {
         };
         // Ctrl-C is watched by a thread of its own: the runtime's timers need a free worker,
         // and a long finalizer or a subquery argument can hold every worker.
+        self.stop.store(false, Ordering::Relaxed);
         let (tell, told) = tokio::sync::oneshot::channel::<()>();
         let done = AtomicBool::new(false);
         std::thread::scope(|scope| {
@@ -202,7 +210,10 @@ impl Fusion {
             let r = self.rt.block_on(async {
                 tokio::select! {
                     r = work => r,
-                    _ = told => Err(StatementError::Interrupted),
+                    _ = told => {
+                        self.stop.store(true, Ordering::Relaxed);
+                        Err(StatementError::Interrupted)
+                    }
                 }
             });
             done.store(true, Ordering::Relaxed);
