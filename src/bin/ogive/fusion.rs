@@ -192,8 +192,8 @@ impl Fusion {
                 .collect();
             Ok(Outcome::Rows(ResultSet { columns, rows }))
         };
-        // Ctrl-C is watched by a thread of its own: the runtime's timers need a free worker,
-        // and a long finalizer or a subquery argument can hold every worker.
+        // Ctrl-C is watched by a plain thread, not a timer of the runtime, so that the watch
+        // does not wait for a worker that a finalizer or a subquery argument keeps busy.
         self.stop.store(false, Ordering::Relaxed);
         let (tell, told) = tokio::sync::oneshot::channel::<()>();
         let done = AtomicBool::new(false);
