@@ -19,7 +19,7 @@ use ::datafusion::error::DataFusionError;
 use ::datafusion::logical_expr::function::{AccumulatorArgs, StateFieldsArgs};
 use ::datafusion::logical_expr::{Accumulator, AggregateUDF, AggregateUDFImpl, Signature};
 
-use super::convert::{Column, columns_of, data_type, out_array, read_row};
+use super::convert::{Column, columns_of, data_type, number_bits, out_array, read_row};
 use super::scalar::signature;
 use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, FunctionError, fail};
@@ -160,57 +160,34 @@ impl Acc {
         let Some(Lane { key, mut sink }) = self.state.lane() else {
             return Ok(from);
         };
+        let name = self.def.name;
         // The whole rest of the batch at once: a REAL x, and the group's constant on every
         // row (or none). The same rows as one by one below: NULL and NaN skipped.
         if let Some((values, nulls)) = x.reals()
             && c.is_none_or(|c| c.all_bits(key, from..rows))
         {
             let values = &values[from..rows];
-            let taken =
-                |i: usize, v: f64| !v.is_nan() && nulls.is_none_or(|n| n.is_valid(from + i));
-            match &mut sink {
-                Sink::Count(counter) => {
-                    for (i, &v) in values.iter().enumerate() {
-                        if taken(i, v) {
-                            counter.add(v);
-                        }
-                    }
-                }
-                Sink::Collect(xs) if nulls.is_none() && !values.iter().any(|v| v.is_nan()) => {
-                    try_extend(xs, values).map_err(|e| to_datafusion(fail(self.def.name, e)))?;
-                }
-                Sink::Collect(xs) => {
-                    for (i, &v) in values.iter().enumerate() {
-                        if taken(i, v) && !try_push(xs, v) {
-                            let held = xs.len();
-                            return Err(to_datafusion(fail(
-                                self.def.name,
-                                ArgError::OutOfMemory { held },
-                            )));
-                        }
-                    }
-                }
-                Sink::Sketch(s) => {
-                    for (i, &v) in values.iter().enumerate() {
-                        if taken(i, v) && s.insert(v).is_err() {
-                            return Ok(from + i);
-                        }
-                    }
+            if let Sink::Collect(xs) = &mut sink
+                && nulls.is_none()
+                && !values.iter().any(|v| v.is_nan())
+            {
+                try_extend(xs, values).map_err(|e| to_datafusion(fail(name, e)))?;
+                return Ok(rows);
+            }
+            for (i, &v) in values.iter().enumerate() {
+                let taken = !v.is_nan() && nulls.is_none_or(|n| n.is_valid(from + i));
+                if taken && !add(name, &mut sink, v)? {
+                    return Ok(from + i);
                 }
             }
             return Ok(rows);
         }
         let mut row = from;
         while row < rows {
-            if let Some(c) = c {
-                let bits = match c.get(row) {
-                    Arg::Real(v) => v.to_bits(),
-                    Arg::Integer(i) => (i as f64).to_bits(),
-                    _ => break,
-                };
-                if bits != key {
-                    break;
-                }
+            if let Some(c) = c
+                && number_bits(c.get(row)) != Some(key)
+            {
+                break;
             }
             let v = match x.get(row) {
                 Arg::Null => {
@@ -221,22 +198,8 @@ impl Acc {
                 Arg::Integer(i) => i as f64,
                 _ => break,
             };
-            match &mut sink {
-                Sink::Count(counter) => counter.add(v),
-                Sink::Sketch(s) => {
-                    if s.insert(v).is_err() {
-                        break;
-                    }
-                }
-                Sink::Collect(xs) => {
-                    if !try_push(xs, v) {
-                        let held = xs.len();
-                        return Err(to_datafusion(fail(
-                            self.def.name,
-                            ArgError::OutOfMemory { held },
-                        )));
-                    }
-                }
+            if !add(name, &mut sink, v)? {
+                break;
             }
             row += 1;
         }
@@ -250,6 +213,26 @@ impl Acc {
             self.def.name
         ))
     }
+}
+
+/// Adds `v` to a lane's sink; `false` when the sink refuses it (the sketch refuses NaN),
+/// for the general step to report.
+///
+/// # Errors
+/// The function's out-of-memory error when a list cannot grow.
+#[inline(always)]
+fn add(name: &'static str, sink: &mut Sink<'_>, v: f64) -> Result<bool, DataFusionError> {
+    match sink {
+        Sink::Count(counter) => counter.add(v),
+        Sink::Sketch(s) => return Ok(s.insert(v).is_ok()),
+        Sink::Collect(xs) => {
+            if !try_push(xs, v) {
+                let held = xs.len();
+                return Err(to_datafusion(fail(name, ArgError::OutOfMemory { held })));
+            }
+        }
+    }
+    Ok(true)
 }
 
 /// A result as a DataFusion scalar of the row's declared type.

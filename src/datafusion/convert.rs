@@ -126,9 +126,7 @@ impl Column {
             Shape::BlobView => Arg::Blob(a.as_binary_view().value(row)),
         }
     }
-}
 
-impl Column {
     /// A REAL column's doubles and validity, for reading many rows at once; `None` for any
     /// other column or a constant one. A NaN among them reads as NULL (as in [`Column::get`]).
     pub fn reals(&self) -> Option<(&[f64], Option<&NullBuffer>)> {
@@ -144,16 +142,11 @@ impl Column {
     /// Whether every row of `rows` holds a number (INTEGER or REAL, an INTEGER as its
     /// double) whose bits (`f64::to_bits`) are `key`.
     pub fn all_bits(&self, key: u64, rows: Range<usize>) -> bool {
-        let number = |a: Arg<'_>| match a {
-            Arg::Real(v) => v.to_bits() == key,
-            Arg::Integer(i) => (i as f64).to_bits() == key,
-            _ => false,
-        };
         if rows.is_empty() {
             return true;
         }
         if self.constant {
-            return number(self.get(0));
+            return number_bits(self.get(0)) == Some(key);
         }
         if let Some(nulls) = self.array.nulls()
             && rows.clone().any(|i| nulls.is_null(i))
@@ -169,6 +162,17 @@ impl Column {
                 .all(|&i| (i as f64).to_bits() == key),
             _ => false,
         }
+    }
+}
+
+/// The bits (`f64::to_bits`) of a number argument, an INTEGER as its double; `None` for
+/// any other value.
+#[inline]
+pub fn number_bits(a: Arg<'_>) -> Option<u64> {
+    match a {
+        Arg::Real(v) => Some(v.to_bits()),
+        Arg::Integer(i) => Some((i as f64).to_bits()),
+        _ => None,
     }
 }
 
