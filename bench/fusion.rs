@@ -1,7 +1,9 @@
 //! ogive on DataFusion, side by side with ogive in SQLite and with DataFusion's own
 //! `median` and `approx_percentile_cont`: one run over 10M rows in 8 Parquet files.
 //! A measurement, not a test: `cargo bench --features datafusion --bench fusion`
-//! writes bench/fusion.md.
+//! writes bench/fusion.md. Words after `--` pick cases by a part of their label
+//! (`-- quantile ks`): such a run skips SQLite and the built-in table, prints its
+//! timings and writes no file.
 
 use std::fmt::Write as _;
 use std::path::Path;
@@ -133,11 +135,16 @@ fn rank_error(sorted: &[f64], q: f64, p: f64) -> f64 {
 }
 
 fn main() {
+    // cargo passes `--bench`; other words pick cases.
+    let picks: Vec<String> = std::env::args()
+        .skip(1)
+        .filter(|a| !a.starts_with("--"))
+        .collect();
     let dir = std::env::temp_dir().join("ogive-bench-fusion");
     std::fs::create_dir_all(&dir).unwrap();
     let (g, x) = data();
     write_parquet(&dir, &g, &x);
-    let conn = sqlite(&dir.join("t.db"), &g, &x);
+    let conn = picks.is_empty().then(|| sqlite(&dir.join("t.db"), &g, &x));
     drop(g);
     let mut sorted = x;
     sorted.sort_by(f64::total_cmp);
@@ -169,13 +176,19 @@ fn main() {
          partitions | 1 / 2 partitions |\n|---|---:|---:|---:|---:|\n",
     );
     for (label, sql) in cases {
+        if !picks.is_empty() && !picks.iter().any(|p| label.contains(p.as_str())) {
+            continue;
+        }
         let (mut ss, mut aa, mut bb) = (Vec::new(), Vec::new(), Vec::new());
         for _ in 0..RUNS {
-            ss.push(lite(&conn, sql));
+            if let Some(conn) = &conn {
+                ss.push(lite(conn, sql));
+            }
             aa.push(fusion(&rt, &one, sql).0);
             bb.push(fusion(&rt, &two, sql).0);
         }
-        let (s, a, b) = (median(ss), median(aa), median(bb));
+        let s = if ss.is_empty() { f64::NAN } else { median(ss) };
+        let (a, b) = (median(aa), median(bb));
         writeln!(
             md,
             "| `{label}` | {s:.3} | {a:.3} | {b:.3} | {:.2}x |",
@@ -183,6 +196,9 @@ fn main() {
         )
         .unwrap();
         eprintln!("{label}: sqlite {s:.3} df1 {a:.3} df2 {b:.3}");
+    }
+    if !picks.is_empty() {
+        return;
     }
 
     md.push_str(

@@ -13,17 +13,22 @@
 //! selection: the values are collected in a vector and moved into the tree only when
 //! SQLite first calls `value` or `inverse`, which it does only in window use.
 
+use std::sync::Arc;
+
 use serde_json::json;
 
 use super::args::{ArgError, Constant, FunctionError, TextConstant, fail, number, whole};
-use super::state::{AggregateImp, Args, Lane, Reader, Sink, State, Writer, push, try_extend};
+use super::state::{
+    Adopted, AggregateImp, Args, Lane, Reader, Run, Sink, State, Writer, push, runs_of, try_extend,
+};
 use super::value::{Arg, Out};
 use super::{FunctionDef, Imp, Kind, Range, Returns};
 use crate::stats::ecdf::{EcdfCounter, WeightedEcdfCounter};
 use crate::stats::moments::Profile;
 use crate::stats::order::OrderStatistics;
 use crate::stats::quantile::{
-    QuantileType, WeightedSorted, quantile_ranked, quantile_select, quantile_sorted,
+    QuantileType, WeightedSorted, quantile_ranked, quantile_select, quantile_select_runs,
+    quantile_sorted,
 };
 use crate::stats::sum::ExactSum;
 use crate::stats::{StatsError, check_probability, check_weight};
@@ -381,11 +386,12 @@ pub(crate) fn load_exact(r: &mut Reader<'_>) -> std::result::Result<ExactSum, Ar
 // quantile(x, p [, type])
 
 /// State of `quantile(x, p [, type])`: the non-NULL values of the group (or frame), in a
-/// vector for the plain aggregate and in an order-statistic tree once the engine uses it
-/// as a window.
+/// vector for the plain aggregate (with the values of merged parts that an engine holds,
+/// [`Adopted`]) and in an order-statistic tree once the engine uses it as a window.
 #[derive(Debug, Default)]
 pub struct QuantileState {
     xs: Vec<f64>,
+    adopted: Adopted,
     tree: Option<OrderStatistics>,
     p: Constant<f64>,
     ty: TypeArg,
@@ -396,7 +402,10 @@ impl QuantileState {
     fn tree(&mut self) -> std::result::Result<&mut OrderStatistics, StatsError> {
         let tree = match self.tree.take() {
             Some(t) => t,
-            None => OrderStatistics::from_values(&std::mem::take(&mut self.xs))?,
+            None => {
+                self.adopted.absorb_into(&mut self.xs)?;
+                OrderStatistics::from_values(&std::mem::take(&mut self.xs))?
+            }
         };
         Ok(self.tree.insert(tree))
     }
@@ -410,7 +419,8 @@ impl QuantileState {
             Some(tree) => quantile_ranked(tree.len() as usize, p, ty, |i| {
                 tree.kth(i as u64).unwrap_or(f64::NAN)
             }),
-            None => quantile_select(&mut self.xs, p, ty),
+            None if self.adopted.is_empty() => quantile_select(&mut self.xs, p, ty),
+            None => quantile_select_runs(&self.adopted.with(&self.xs), p, ty),
         }
     }
 
@@ -458,8 +468,12 @@ impl State for QuantileState {
             t.try_for_each(|x| push(&mut theirs, x))
                 .map_err(|e| fail(name, e))?;
         }
+        let mut adopted = other.adopted;
         match self.tree.as_mut() {
             Some(tree) => {
+                adopted
+                    .absorb_into(&mut theirs)
+                    .map_err(|e| fail(name, ArgError::from(e)))?;
                 for x in theirs {
                     tree.insert(x).map_err(|e| fail(name, e))?;
                 }
@@ -467,6 +481,9 @@ impl State for QuantileState {
             // The first part merged into an empty state is taken as it is, uncopied.
             None if self.xs.is_empty() => self.xs = theirs,
             None => try_extend(&mut self.xs, &theirs).map_err(|e| fail(name, e))?,
+        }
+        if self.tree.is_none() {
+            self.adopted.append(adopted);
         }
         Ok(())
     }
@@ -485,7 +502,7 @@ impl State for QuantileState {
         self.ty.save(w);
         match &self.tree {
             Some(t) => w.f64s(&t.to_sorted_vec()),
-            None => w.f64s(&self.xs),
+            None => w.f64_runs(&self.adopted.with(&self.xs)),
         }
     }
 
@@ -494,8 +511,30 @@ impl State for QuantileState {
             p: r.constant_of()?,
             ty: TypeArg::load(r)?,
             xs: r.f64s()?,
+            adopted: Adopted::default(),
             tree: None,
         })
+    }
+
+    const LISTS: usize = 1;
+
+    fn take_values(&mut self) -> Vec<Vec<f64>> {
+        // A window's tree stays in the saved form; so do adopted runs (a part that was
+        // itself merged).
+        vec![std::mem::take(&mut self.xs)]
+    }
+
+    fn adopt(&mut self, runs: Vec<Arc<dyn Run>>) -> Result<()> {
+        let [run] = runs_of::<Self, 1>(runs)?;
+        match self.tree.as_mut() {
+            Some(tree) => {
+                for &x in run.values() {
+                    tree.insert(x).map_err(|e| fail(Self::NAME, e))?;
+                }
+            }
+            None => self.adopted.push(run),
+        }
+        Ok(())
     }
 
     #[inline(always)]
@@ -559,6 +598,16 @@ impl State for MedianState {
 
     fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
         QuantileState::load(r).map(MedianState)
+    }
+
+    const LISTS: usize = QuantileState::LISTS;
+
+    fn take_values(&mut self) -> Vec<Vec<f64>> {
+        self.0.take_values()
+    }
+
+    fn adopt(&mut self, runs: Vec<Arc<dyn Run>>) -> Result<()> {
+        self.0.adopt(runs).map_err(as_median)
     }
 }
 

@@ -30,12 +30,15 @@
 //! weights.
 
 use std::borrow::Cow;
+use std::sync::Arc;
 
 use serde_json::json;
 
 use super::args::{ArgError, FunctionError, TextConstant, fail, number, text};
 use super::reader::Call;
-use super::state::{AggregateImp, Args, Reader, State, Writer, push, try_extend};
+use super::state::{
+    Adopted, AggregateImp, Args, Reader, Run, State, Writer, push, runs_of, try_extend,
+};
 use super::value::Out;
 use super::{FunctionDef, Imp, Kind, Range, Returns};
 use crate::stats::censored::Censored;
@@ -47,6 +50,7 @@ use crate::stats::ks::{
 };
 use crate::stats::lilliefors::{self, Scale, lilliefors_p};
 use crate::stats::sample::Sample;
+use crate::stats::sorting::{is_sorted_total, merge_sorted, sorted_total};
 use crate::value::Dist;
 use crate::value::model::{Law, Model};
 
@@ -235,13 +239,33 @@ pub fn ks_json(k: &KsReport<'_>, as_distance: bool) -> serde_json::Value {
     v
 }
 
-/// State of `ks_test`: the two samples and the per-group options.
+/// State of `ks_test`: the two samples and the per-group options. Merged parts' samples
+/// an engine holds ([`Adopted`]) come sorted ([`State::take_values`] sorts them, in the
+/// part's own step), so the answer merges them instead of sorting everything again.
 #[derive(Debug, Default)]
 pub struct KsTestState {
     first: Vec<f64>,
     second: Vec<f64>,
+    /// Sorted runs of each sample, from merged parts.
+    adopted: [Adopted; 2],
     alternative: TextConstant<Alternative>,
     method: TextConstant<PMethod>,
+}
+
+impl KsTestState {
+    /// Sample `i`'s values, sorted: the own values sorted, merged with the adopted runs.
+    fn sorted(&mut self, i: usize) -> std::result::Result<Vec<f64>, ArgError> {
+        let own = if i == 0 {
+            &mut self.first
+        } else {
+            &mut self.second
+        };
+        let own = sorted_total(&std::mem::take(own));
+        if self.adopted[i].is_empty() {
+            return Ok(own);
+        }
+        Ok(merge_sorted(&self.adopted[i].with(&own))?)
+    }
 }
 
 /// Parses an alternative.
@@ -286,24 +310,29 @@ impl State for KsTestState {
             self.alternative.merge(other.alternative, "alternative")?;
             self.method.merge(other.method, "method")?;
             try_extend(&mut self.first, &other.first)?;
-            try_extend(&mut self.second, &other.second)
+            try_extend(&mut self.second, &other.second)?;
+            let [a, b] = other.adopted;
+            self.adopted[0].append(a);
+            self.adopted[1].append(b);
+            Ok(())
         };
         go().map_err(|e| fail(Self::NAME, e))
     }
 
     fn finalize(&mut self) -> Result<Out> {
+        let empty = |own: &[f64], adopted: &Adopted| own.is_empty() && adopted.is_empty();
         if self.alternative.is_null()
             || self.method.is_null()
-            || self.first.is_empty()
-            || self.second.is_empty()
+            || empty(&self.first, &self.adopted[0])
+            || empty(&self.second, &self.adopted[1])
         {
             return Ok(Out::Null);
         }
-        self.first.sort_unstable_by(f64::total_cmp);
-        self.second.sort_unstable_by(f64::total_cmp);
+        let first = self.sorted(0).map_err(|e| fail(Self::NAME, e))?;
+        let second = self.sorted(1).map_err(|e| fail(Self::NAME, e))?;
         let r = ks_2samp(
-            &self.first,
-            &self.second,
+            &first,
+            &second,
             self.alternative.get().copied().unwrap_or_default(),
             self.method.get().copied().unwrap_or_default(),
         )
@@ -316,8 +345,8 @@ impl State for KsTestState {
     fn save(&self, w: &mut Writer) {
         w.constant(self.alternative.raw());
         w.constant(self.method.raw());
-        w.f64s(&self.first);
-        w.f64s(&self.second);
+        w.f64_runs(&self.adopted[0].with(&self.first));
+        w.f64_runs(&self.adopted[1].with(&self.second));
     }
 
     fn load(r: &mut Reader<'_>) -> std::result::Result<Self, ArgError> {
@@ -326,7 +355,38 @@ impl State for KsTestState {
             method: TextConstant::from_raw(r.constant()?, parse_method)?,
             first: r.f64s()?,
             second: r.f64s()?,
+            adopted: Default::default(),
         })
+    }
+
+    const LISTS: usize = 2;
+
+    fn take_values(&mut self) -> Vec<Vec<f64>> {
+        // Sorted here, in the part's own step (in parallel with the other parts), so
+        // that the final step only merges.
+        let (first, second) = (
+            std::mem::take(&mut self.first),
+            std::mem::take(&mut self.second),
+        );
+        vec![sorted_total(&first), sorted_total(&second)]
+    }
+
+    fn adopt(&mut self, runs: Vec<Arc<dyn Run>>) -> Result<()> {
+        let [a, b] = runs_of::<Self, 2>(runs)?;
+        for (i, run) in [a, b].into_iter().enumerate() {
+            if is_sorted_total(run.values()) {
+                self.adopted[i].push(run);
+            } else {
+                // Not as `take_values` gives them: kept as own values, sorted at the end.
+                let own = if i == 0 {
+                    &mut self.first
+                } else {
+                    &mut self.second
+                };
+                try_extend(own, run.values()).map_err(|e| fail(Self::NAME, e))?;
+            }
+        }
+        Ok(())
     }
 }
 

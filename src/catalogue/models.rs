@@ -5,23 +5,29 @@
 //! [`crate::stats::fit`], [`crate::stats::mixture`] and [`crate::value::model`]. NULL x
 //! is skipped; a group with no non-NULL x gives NULL. Models travel as JSON text.
 
+use std::sync::Arc;
+
 use super::args::{
     ArgError, Constant, FunctionError, TextConstant, fail, number, resolution, text, whole,
 };
 use super::dist::empirical;
 use super::reader::{Call, model_of};
 use super::scan::{Ready, Scan};
-use super::state::{AggregateImp, Args, Field, Reader, State, Writer, push, try_extend};
+use super::state::{
+    Adopted, AggregateImp, Args, Field, Reader, Run, State, Writer, push, runs_of, try_extend,
+};
 use super::value::{Arg, Out};
 use super::{FunctionDef, Imp, Kind, Range, Returns, TableImp};
 use crate::stats::fit::{Family, FitError, fit, fit_weighted};
 use crate::stats::mixture::{
-    MAX_COMPONENTS, MixtureError, fit_mixture_counted, fit_mixture_rounded, fit_mixture_weighted,
+    MAX_COMPONENTS, MixtureError, fit_mixture_counted, fit_mixture_rounded, fit_mixture_sorted,
+    fit_mixture_weighted,
 };
 use crate::stats::readings::{
     fit_censored, fit_rounded, fit_rounded_counted, fit_rounded_weighted,
 };
 use crate::stats::resolution::{Resolution, resolve};
+use crate::stats::sorting::{is_sorted_total, merge_sorted, sorted_total};
 use crate::stats::tally::Tally;
 use crate::value::model::{Law, Model};
 
@@ -317,11 +323,15 @@ fn step_of(sorted: &[f64], r: Option<Resolution>) -> std::result::Result<Option<
 /// The values of a `dist_fit` or `dist_mixture` group. With a resolution (a stated step
 /// or 'auto') the fits need only the distinct values and their counts, so each row is
 /// counted as it arrives ([`Tally`]) instead of being kept for a sort of all of them;
-/// without one, the values are kept as they come.
+/// without one, the values are kept as they come, with the sorted values of merged parts
+/// that an engine holds ([`Adopted`]: [`Values::take_sorted`] sorts a part's values in its
+/// own step, so the final step merges them instead of sorting all).
 #[derive(Debug, Default)]
 struct Values {
     /// Values kept one by one (exact readings).
     xs: Vec<f64>,
+    /// Sorted runs of exact readings from merged parts.
+    adopted: Adopted,
     /// Counts of distinct values (readings with a resolution).
     tally: Tally,
 }
@@ -345,8 +355,11 @@ impl Values {
     /// Another part's values (after the parts' constants are merged).
     fn merge(&mut self, other: Values, counted: bool) -> std::result::Result<(), ArgError> {
         self.tally.merge(&other.tally)?;
+        self.adopted.append(other.adopted);
         if counted {
-            for x in std::mem::take(&mut self.xs).into_iter().chain(other.xs) {
+            let mut kept = std::mem::take(&mut self.xs);
+            self.adopted.absorb_into(&mut kept)?;
+            for x in kept.into_iter().chain(other.xs) {
                 self.tally.add(x, 1)?;
             }
             Ok(())
@@ -356,24 +369,60 @@ impl Values {
     }
 
     fn is_empty(&self) -> bool {
-        self.xs.is_empty() && self.tally.is_empty()
+        self.xs.is_empty() && self.adopted.is_empty() && self.tally.is_empty()
     }
 
     /// The distinct values in increasing order and their counts (the kept values
     /// counted first).
     fn distinct(&mut self) -> std::result::Result<(Vec<f64>, Vec<f64>), ArgError> {
-        for x in std::mem::take(&mut self.xs) {
+        let mut kept = std::mem::take(&mut self.xs);
+        self.adopted.absorb_into(&mut kept)?;
+        for x in kept {
             self.tally.add(x, 1)?;
         }
         Ok(self.tally.distinct()?)
     }
 
+    /// The kept values (own and adopted), sorted in the order of `f64::total_cmp`.
+    fn sorted(&mut self) -> std::result::Result<Vec<f64>, ArgError> {
+        let own = sorted_total(&std::mem::take(&mut self.xs));
+        if self.adopted.is_empty() {
+            return Ok(own);
+        }
+        let all = merge_sorted(&self.adopted.with(&own))?;
+        self.adopted = Adopted::default();
+        Ok(all)
+    }
+
+    /// For [`State::take_values`]: the part's own kept values, sorted (a counted part
+    /// keeps its counts in the saved form).
+    fn take_sorted(&mut self) -> Vec<Vec<f64>> {
+        vec![sorted_total(&std::mem::take(&mut self.xs))]
+    }
+
+    /// For [`State::adopt`]: a part's sorted values; counted as they are with a
+    /// resolution, and kept as own values if they are not sorted.
+    fn adopt(&mut self, run: Arc<dyn Run>, counted: bool) -> std::result::Result<(), ArgError> {
+        if counted {
+            for &x in run.values() {
+                self.tally.add(x, 1)?;
+            }
+        } else if is_sorted_total(run.values()) {
+            self.adopted.push(run);
+        } else {
+            try_extend(&mut self.xs, run.values())?;
+        }
+        Ok(())
+    }
+
     /// The saved form: every value (a counted one as many times as it was counted), as
     /// `f64s`.
     fn save(&self, w: &mut Writer) {
-        w.u64(self.xs.len() as u64 + self.tally.total());
-        for &x in &self.xs {
-            w.f64(x);
+        w.u64(self.xs.len() as u64 + self.adopted.len() as u64 + self.tally.total());
+        for run in self.adopted.with(&self.xs) {
+            for &x in run {
+                w.f64(x);
+            }
         }
         self.tally.for_each(|x, c| {
             for _ in 0..c {
@@ -387,7 +436,7 @@ impl Values {
         if !counted {
             return Ok(Values {
                 xs,
-                tally: Tally::default(),
+                ..Values::default()
             });
         }
         let mut v = Values::default();
@@ -468,12 +517,11 @@ impl State for DistFitState {
             }
             // In ascending order, so that the fit's sums do not depend on the order of
             // rows (or of the parts a partitioned engine merged).
-            let xs = &mut self.values.xs;
-            xs.sort_unstable_by(f64::total_cmp);
-            let step = step_of(xs, self.resolution.get().copied())?;
+            let xs = self.values.sorted()?;
+            let step = step_of(&xs, self.resolution.get().copied())?;
             let f = match step {
-                Some(r) => fit_rounded(xs, family, r)?,
-                None => fit(xs, family)?,
+                Some(r) => fit_rounded(&xs, family, r)?,
+                None => fit(&xs, family)?,
             };
             Ok(Out::Text(Model::from(f).rounded_to(step).to_json()))
         };
@@ -495,6 +543,20 @@ impl State for DistFitState {
             family,
             resolution,
         })
+    }
+
+    const LISTS: usize = 1;
+
+    fn take_values(&mut self) -> Vec<Vec<f64>> {
+        self.values.take_sorted()
+    }
+
+    fn adopt(&mut self, runs: Vec<Arc<dyn Run>>) -> Result<()> {
+        let [run] = runs_of::<Self, 1>(runs)?;
+        let counted = counted(&self.resolution);
+        self.values
+            .adopt(run, counted)
+            .map_err(|e| fail(Self::NAME, e))
     }
 }
 
@@ -643,10 +705,14 @@ impl State for DistMixtureState {
             // Counted as the rows came: the distinct values in order, with counts.
             let (values, counts) = self.values.distinct().map_err(|e| fail(Self::NAME, e))?;
             fit_mixture_counted(&values, &counts, k, resolution)
-        } else {
+        } else if self.values.adopted.is_empty() {
             // The kernel sorts and merges ties itself (and checks the grid on its
             // distinct values), so row order does not matter.
             fit_mixture_rounded(&self.values.xs, k, resolution)
+        } else {
+            // Parts an engine sorted in their own steps: merged, not sorted again.
+            let xs = self.values.sorted().map_err(|e| fail(Self::NAME, e))?;
+            fit_mixture_sorted(xs, k, resolution)
         };
         let f = f.map_err(|e| fail(Self::NAME, e))?;
         Ok(Out::Text(Model::from(f).to_json()))
@@ -672,6 +738,20 @@ impl State for DistMixtureState {
             resolution,
             values,
         })
+    }
+
+    const LISTS: usize = 1;
+
+    fn take_values(&mut self) -> Vec<Vec<f64>> {
+        self.values.take_sorted()
+    }
+
+    fn adopt(&mut self, runs: Vec<Arc<dyn Run>>) -> Result<()> {
+        let [run] = runs_of::<Self, 1>(runs)?;
+        let counted = counted(&self.resolution);
+        self.values
+            .adopt(run, counted)
+            .map_err(|e| fail(Self::NAME, e))
     }
 }
 

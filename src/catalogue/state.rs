@@ -10,14 +10,22 @@
 //! docs/state-format.md and begins with a magic, a version and the function's name, so a
 //! state is never read as another function's.
 //!
+//! A state that collects values may also ship them apart from its saved form
+//! ([`State::take_values`], [`State::adopt`]): an engine with columns of its own (Arrow's
+//! lists in DataFusion) then moves the values into a column without a copy, and the state
+//! that merges the parts keeps them where the engine holds them ([`Run`]) and answers from
+//! them in place. Nothing but speed depends on it: the answer is the same, bit for bit.
+//!
 //! Engines hold states as [`Aggregator`] trait objects, made by the registry row's
 //! [`AggregateImp`].
 
 use std::any::Any;
+use std::sync::Arc;
 
 use super::args::{ArgError, Constant, FunctionError, fail};
 use super::value::{Arg, Out};
 use crate::stats::ecdf::EcdfCounter;
+use crate::stats::grow::OutOfMemory;
 use crate::stats::sketch::QuantileSketch;
 
 /// The arguments of one row.
@@ -112,6 +120,119 @@ pub trait State: Default + Send + Sync + 'static {
     fn lane(&mut self) -> Option<Lane<'_>> {
         None
     }
+
+    /// How many lists of values [`State::take_values`] gives: 0 (the default) for a state
+    /// whose saved form holds everything.
+    const LISTS: usize = 0;
+
+    /// Takes out the values the state collected, as [`State::LISTS`] lists, for an engine
+    /// to ship apart from the saved form, which then holds the rest; the state is then
+    /// consumed (an engine asks for it once, at the end of a part). A list's order is the
+    /// state's to choose.
+    fn take_values(&mut self) -> Vec<Vec<f64>> {
+        Vec::new()
+    }
+
+    /// Adds to the state, read where the engine holds them, the lists of values that
+    /// [`State::take_values`] took from another part's state (one run per list); the
+    /// state was loaded from that part's saved form.
+    ///
+    /// # Errors
+    /// An internal error for runs of another count; memory running out.
+    fn adopt(&mut self, runs: Vec<Arc<dyn Run>>) -> Result<(), FunctionError> {
+        if runs.is_empty() {
+            return Ok(());
+        }
+        Err(fail(
+            Self::NAME,
+            ArgError::Internal(format!("got {} lists of values, keeps none", runs.len())),
+        ))
+    }
+}
+
+/// Values another part of a group collected, shared read-only with the engine that holds
+/// them (for DataFusion, a slice of an Arrow buffer), so that a merge adopts them without
+/// a copy.
+pub trait Run: Send + Sync {
+    /// The values.
+    fn values(&self) -> &[f64];
+}
+
+impl Run for Vec<f64> {
+    fn values(&self) -> &[f64] {
+        self
+    }
+}
+
+/// The lists a state adopted ([`State::adopt`]), as one list of runs each: each part's
+/// values where the engine holds them.
+#[derive(Default, Clone)]
+pub struct Adopted(Vec<Arc<dyn Run>>);
+
+impl std::fmt::Debug for Adopted {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "Adopted({} values in {} runs)", self.len(), self.0.len())
+    }
+}
+
+impl Adopted {
+    /// Adds a run.
+    pub fn push(&mut self, run: Arc<dyn Run>) {
+        if !run.values().is_empty() {
+            self.0.push(run);
+        }
+    }
+
+    /// Adds the runs of another.
+    pub fn append(&mut self, other: Adopted) {
+        self.0.extend(other.0);
+    }
+
+    /// How many values the runs hold.
+    pub fn len(&self) -> usize {
+        self.0.iter().map(|r| r.values().len()).sum()
+    }
+
+    /// Whether there is no run.
+    pub fn is_empty(&self) -> bool {
+        self.0.is_empty()
+    }
+
+    /// `own` and then the runs, as slices.
+    pub fn with<'a>(&'a self, own: &'a [f64]) -> Vec<&'a [f64]> {
+        std::iter::once(own)
+            .chain(self.0.iter().map(|r| r.values()))
+            .collect()
+    }
+
+    /// Moves the runs' values to the end of `own` (the last run first), leaving no run: for
+    /// a state that needs them in one list of its own.
+    ///
+    /// # Errors
+    /// [`OutOfMemory`]; the runs not yet moved stay.
+    pub fn absorb_into(&mut self, own: &mut Vec<f64>) -> Result<(), OutOfMemory> {
+        while let Some(r) = self.0.last() {
+            crate::stats::grow::extend(own, r.values())?;
+            self.0.pop();
+        }
+        Ok(())
+    }
+}
+
+/// One run from each list, for [`State::adopt`].
+///
+/// # Errors
+/// The internal error of [`State::adopt`] for another count than `S::LISTS`.
+pub fn runs_of<S: State, const N: usize>(
+    runs: Vec<Arc<dyn Run>>,
+) -> Result<[Arc<dyn Run>; N], FunctionError> {
+    let got = runs.len();
+    runs.try_into().map_err(|_| {
+        fail(
+            S::NAME,
+            ArgError::Internal(format!("got {got} lists of values, keeps {N}")),
+        )
+    })
 }
 
 /// A state's offer to an engine's per-row fast path: once the group's constant argument
@@ -174,6 +295,15 @@ pub trait Aggregator: Send + Sync {
     fn merge_boxed(&mut self, other: Box<dyn Aggregator>) -> Result<(), FunctionError>;
     /// [`State::lane`].
     fn lane(&mut self) -> Option<Lane<'_>>;
+    /// The saved form without the values [`State::take_values`] takes, and those values;
+    /// consumes the state. For a state with no such lists, the saved form and no list.
+    fn save_apart(&mut self) -> (Vec<u8>, Vec<Vec<f64>>);
+    /// Merges a state given as [`Aggregator::save_apart`] gave it, its lists of values
+    /// read where the engine holds them.
+    ///
+    /// # Errors
+    /// As [`Aggregator::merge_saved`]; [`State::adopt`]'s errors.
+    fn merge_apart(&mut self, bytes: &[u8], runs: Vec<Arc<dyn Run>>) -> Result<(), FunctionError>;
     /// For [`Aggregator::merge_boxed`].
     fn into_any(self: Box<Self>) -> Box<dyn Any>;
     /// The SQL name of the state's function.
@@ -216,6 +346,15 @@ impl<S: State> Aggregator for S {
     fn lane(&mut self) -> Option<Lane<'_>> {
         State::lane(self)
     }
+    fn save_apart(&mut self) -> (Vec<u8>, Vec<Vec<f64>>) {
+        let lists = State::take_values(self);
+        (Aggregator::save(self), lists)
+    }
+    fn merge_apart(&mut self, bytes: &[u8], runs: Vec<Arc<dyn Run>>) -> Result<(), FunctionError> {
+        let mut other = load::<S>(bytes)?;
+        other.adopt(runs)?;
+        State::merge(self, other)
+    }
     fn into_any(self: Box<Self>) -> Box<dyn Any> {
         self
     }
@@ -245,6 +384,9 @@ pub struct AggregateImp {
     pub new: fn() -> Box<dyn Aggregator>,
     /// A state restored from its saved form.
     pub load: LoadFn,
+    /// How many lists of values the state ships apart from its saved form
+    /// ([`State::LISTS`]).
+    pub lists: usize,
 }
 
 impl AggregateImp {
@@ -253,6 +395,7 @@ impl AggregateImp {
         AggregateImp {
             new: new_boxed::<S>,
             load: load_boxed::<S>,
+            lists: S::LISTS,
         }
     }
 }
@@ -319,10 +462,19 @@ impl Writer {
 
     /// A length-prefixed list of `f64`.
     pub fn f64s(&mut self, xs: &[f64]) {
-        self.u64(xs.len() as u64);
-        self.out.reserve(xs.len() * 8);
-        for &x in xs {
-            self.f64(x);
+        self.f64_runs(&[xs]);
+    }
+
+    /// A length-prefixed list of `f64`, given in runs: the same bytes as
+    /// [`Writer::f64s`] of their concatenation.
+    pub fn f64_runs(&mut self, runs: &[&[f64]]) {
+        let n: usize = runs.iter().map(|r| r.len()).sum();
+        self.u64(n as u64);
+        self.out.reserve(n * 8);
+        for r in runs {
+            for &x in *r {
+                self.f64(x);
+            }
         }
     }
 

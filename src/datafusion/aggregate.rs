@@ -1,8 +1,13 @@
 //! Aggregate and window registry rows as DataFusion `AggregateUDF`s.
 //!
 //! The partial state DataFusion ships between its partial and final aggregation (and
-//! between processes) is one BINARY value: the catalogue's saved form of the state
-//! (`docs/state-format.md`), merged on arrival by the state's own `merge`. A window row
+//! between processes) is one BINARY value, the catalogue's saved form of the state
+//! (`docs/state-format.md`), merged on arrival by the state's own `merge`; a state that
+//! collects values (`quantile`) ships them beside it as lists of doubles
+//! ([`State::take_values`](crate::catalogue::state::State::take_values)), moved into the
+//! list column without a copy and read where DataFusion holds them when the final step
+//! merges and answers. On one partition DataFusion aggregates in one step and ships
+//! nothing. A window row
 //! (`Kind::Window`) supports retraction through the state's `inverse`, so sliding frames
 //! cost what they cost in SQLite. A window row answers one group by `finalize` (as
 //! SQLite's xFinal: `quantile` by selection) and frame after frame by `value`; an
@@ -19,7 +24,10 @@ use ::datafusion::error::DataFusionError;
 use ::datafusion::logical_expr::function::{AccumulatorArgs, StateFieldsArgs};
 use ::datafusion::logical_expr::{Accumulator, AggregateUDF, AggregateUDFImpl, Signature};
 
-use super::convert::{Column, columns_of, data_type, number_bits, out_array, read_row};
+use super::convert::{
+    Column, columns_of, data_type, number_bits, out_array, read_row, runs_at, values_list,
+    values_list_type,
+};
 use super::scalar::signature;
 use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, FunctionError, fail};
@@ -68,15 +76,31 @@ impl AggregateUDFImpl for Aggregate {
     }
 
     fn state_fields(&self, args: StateFieldsArgs) -> Result<Vec<FieldRef>, DataFusionError> {
-        Ok(vec![Arc::new(Field::new(
+        let mut fields = vec![Arc::new(Field::new(
             format!("{}[ogive state]", args.name),
             DataType::Binary,
             true,
-        ))])
+        ))];
+        for i in 0..self.lists() {
+            fields.push(Arc::new(Field::new(
+                format!("{}[ogive values {i}]", args.name),
+                values_list_type(),
+                true,
+            )));
+        }
+        Ok(fields)
     }
 }
 
 impl Aggregate {
+    /// How many lists of values the row's state ships apart from its saved form.
+    fn lists(&self) -> usize {
+        match self.def.imp {
+            Imp::Aggregate(imp) => imp.lists,
+            _ => 0,
+        }
+    }
+
     /// A new state; `framed` for sliding window frames.
     fn acc(&self, framed: bool) -> Result<Acc, DataFusionError> {
         let Imp::Aggregate(imp) = self.def.imp else {
@@ -271,7 +295,15 @@ impl Accumulator for Acc {
 
     fn state(&mut self) -> Result<Vec<ScalarValue>, DataFusionError> {
         guarded(self.def.name, || {
-            Ok(vec![ScalarValue::Binary(Some(self.state.save()))])
+            if self.finished {
+                return Err(self.finished_error());
+            }
+            // DataFusion asks once, at the end of a partial step: the state is consumed.
+            self.finished = true;
+            let (saved, lists) = self.state.save_apart();
+            let mut out = vec![ScalarValue::Binary(Some(saved))];
+            out.extend(lists.into_iter().map(values_list));
+            Ok(out)
         })
     }
 
@@ -300,9 +332,9 @@ impl Acc {
         scalar_of(self.def, out.map_err(to_datafusion)?)
     }
 
-    /// Merges a batch of partial states in their saved form.
+    /// Merges a batch of partial states in their saved form, with their lists of values.
     fn merge_saved(&mut self, states: &[ArrayRef]) -> Result<(), DataFusionError> {
-        let Some(saved) = states.first() else {
+        let Some((saved, lists)) = states.split_first() else {
             return Ok(());
         };
         let saved = saved.as_binary_opt::<i32>().ok_or_else(|| {
@@ -310,10 +342,15 @@ impl Acc {
         })?;
         for i in 0..saved.len() {
             if saved.is_valid(i) {
+                let runs = runs_at(self.def.name, lists, i)?;
+                let held: usize = runs.iter().map(|r| r.values().len()).sum();
                 self.state
-                    .merge_saved(saved.value(i))
+                    .merge_apart(saved.value(i), runs)
                     .map_err(to_datafusion)?;
-                self.rows = self.rows.saturating_add(saved.value(i).len() / 16);
+                self.rows = self
+                    .rows
+                    .saturating_add(saved.value(i).len() / 16)
+                    .saturating_add(held / 2);
             }
         }
         Ok(())

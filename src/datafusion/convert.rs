@@ -1,16 +1,20 @@
-//! Arrow arrays to the catalogue's [`Arg`], and [`Out`] back to arrays.
+//! Arrow arrays to the catalogue's [`Arg`], and [`Out`] back to arrays; a state's lists of
+//! values to list columns and back, uncopied.
 
 use std::ops::Range;
 use std::sync::Arc;
 
 use ::datafusion::arrow::array::{
-    Array, ArrayRef, AsArray, BinaryArray, Float64Array, Int64Array, RecordBatch, StringArray,
+    Array, ArrayRef, AsArray, BinaryArray, Float64Array, Int64Array, ListArray, RecordBatch,
+    StringArray,
 };
-use ::datafusion::arrow::buffer::NullBuffer;
+use ::datafusion::arrow::buffer::{NullBuffer, OffsetBuffer, ScalarBuffer};
 use ::datafusion::arrow::compute::{CastOptions, cast_with_options};
-use ::datafusion::arrow::datatypes::{DataType, Float64Type, Int64Type};
+use ::datafusion::arrow::datatypes::{DataType, Field, Float64Type, Int64Type};
+use ::datafusion::common::ScalarValue;
 use ::datafusion::error::DataFusionError;
 
+use crate::catalogue::state::Run;
 use crate::catalogue::value::{Arg, Out};
 use crate::catalogue::{MAX_ARGS, Returns};
 
@@ -274,4 +278,63 @@ pub fn out_array(
             _ => None,
         }))),
     })
+}
+
+/// The Arrow type of a list of values a state ships apart from its saved form
+/// ([`crate::catalogue::state::State::take_values`]): a list of non-null doubles.
+pub fn values_list_type() -> DataType {
+    DataType::List(Arc::new(Field::new_list_field(DataType::Float64, false)))
+}
+
+/// A state's list of values as a one-row list scalar of [`values_list_type`], without a
+/// copy: the vector becomes the Arrow buffer.
+pub fn values_list(values: Vec<f64>) -> ScalarValue {
+    let n = values.len();
+    let items = Float64Array::new(ScalarBuffer::from(values), None);
+    let list = ListArray::new(
+        Arc::new(Field::new_list_field(DataType::Float64, false)),
+        OffsetBuffer::from_lengths([n]),
+        Arc::new(items),
+        None,
+    );
+    ScalarValue::List(Arc::new(list))
+}
+
+/// A row's values in a list column of [`values_list_type`], shared with the column's
+/// buffer.
+struct Shared(ScalarBuffer<f64>);
+
+impl Run for Shared {
+    fn values(&self) -> &[f64] {
+        &self.0
+    }
+}
+
+/// Row `row` of each list column, as runs that share the columns' buffers.
+///
+/// # Errors
+/// A column that is not such a list, or a NULL value in it (a state's values are never
+/// NULL): an internal error naming the function.
+pub fn runs_at(
+    name: &str,
+    lists: &[ArrayRef],
+    row: usize,
+) -> Result<Vec<Arc<dyn Run>>, DataFusionError> {
+    let bad = || {
+        DataFusionError::Internal(format!(
+            "{name}: a partial state's values are not a list of doubles"
+        ))
+    };
+    lists
+        .iter()
+        .map(|col| {
+            let list = col.as_list_opt::<i32>().ok_or_else(bad)?;
+            let items = list.value(row);
+            let items = items.as_primitive_opt::<Float64Type>().ok_or_else(bad)?;
+            if items.null_count() > 0 {
+                return Err(bad());
+            }
+            Ok(Arc::new(Shared(items.values().clone())) as Arc<dyn Run>)
+        })
+        .collect()
 }

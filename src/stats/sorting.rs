@@ -22,6 +22,8 @@
 //! and was slower than the comparison sort on a million values (its six scatter passes
 //! over the whole array cost more than they save).
 
+use super::grow::OutOfMemory;
+
 /// Below this many values [`sorted_total`] uses the comparison sort.
 pub const BUCKET_MIN: usize = 1 << 12;
 /// Values per bucket, on average.
@@ -60,6 +62,70 @@ pub fn sort_total(xs: &mut [f64]) {
     for (x, &k) in xs.iter_mut().zip(&keys) {
         *x = from_total_key(k);
     }
+}
+
+/// Runs each sorted in the order of [`f64::total_cmp`], merged into one sorted list: the
+/// same values in the same order as their concatenation sorted by
+/// `sort_unstable_by(f64::total_cmp)`. Runs are merged two at a time, halves first, so
+/// `k` runs cost about `log2(k)` passes over the values. This is how the final step of
+/// an engine that sorted each part of a group on its own (in parallel) gets the group's
+/// sorted values without sorting again.
+///
+/// # Errors
+/// [`OutOfMemory`] when the merged list (or a half's) cannot be had.
+///
+/// # Example
+/// ```
+/// use ogive::stats::sorting::merge_sorted;
+/// let m = merge_sorted(&[&[-1.0, 0.0, 4.0], &[-0.0, 2.0], &[]]).unwrap();
+/// assert_eq!(m, [-1.0, -0.0, 0.0, 2.0, 4.0]);
+/// assert!(m[1].is_sign_negative());
+/// ```
+pub fn merge_sorted(runs: &[&[f64]]) -> Result<Vec<f64>, OutOfMemory> {
+    match runs {
+        [] => Ok(Vec::new()),
+        [one] => {
+            let mut out = Vec::new();
+            super::grow::extend(&mut out, one)?;
+            Ok(out)
+        }
+        [a, b] => merge_two(a, b),
+        _ => {
+            let (left, right) = runs.split_at(runs.len() / 2);
+            merge_two(&merge_sorted(left)?, &merge_sorted(right)?)
+        }
+    }
+}
+
+/// Two sorted runs merged (ties: `a`'s first, though equal keys are equal bits).
+fn merge_two(a: &[f64], b: &[f64]) -> Result<Vec<f64>, OutOfMemory> {
+    let n = a.len() + b.len();
+    let mut out = Vec::new();
+    out.try_reserve_exact(n)
+        .map_err(|_| OutOfMemory { held: n })?;
+    let (mut i, mut j) = (0, 0);
+    while i < a.len() && j < b.len() {
+        // The smaller key goes out; one comparison and no unpredictable branch on which.
+        let take_b = total_key(b[j]) < total_key(a[i]);
+        out.push(if take_b { b[j] } else { a[i] });
+        j += usize::from(take_b);
+        i += usize::from(!take_b);
+    }
+    out.extend_from_slice(&a[i..]);
+    out.extend_from_slice(&b[j..]);
+    Ok(out)
+}
+
+/// Whether `xs` is sorted in the order of [`f64::total_cmp`].
+///
+/// # Example
+/// ```
+/// use ogive::stats::sorting::is_sorted_total;
+/// assert!(is_sorted_total(&[-0.0, 0.0, 1.0]));
+/// assert!(!is_sorted_total(&[0.0, -0.0]));
+/// ```
+pub fn is_sorted_total(xs: &[f64]) -> bool {
+    xs.windows(2).all(|w| total_key(w[0]) <= total_key(w[1]))
 }
 
 /// Weighted values sorted by value (in `total_cmp` order), identical values merged into
@@ -166,6 +232,16 @@ mod tests {
         let mut in_place = xs.to_vec();
         sort_total(&mut in_place);
         assert_eq!(bits(&in_place), bits(&want));
+        assert!(is_sorted_total(&want));
+        // Sorted parts (one to five, some empty) merged give the same list.
+        for k in 1..=5 {
+            let cut = |i: usize| xs.len() * i / k;
+            let mut parts: Vec<Vec<f64>> =
+                (0..k).map(|i| xs[cut(i)..cut(i + 1)].to_vec()).collect();
+            parts.iter_mut().for_each(|p| sort_total(p));
+            let runs: Vec<&[f64]> = parts.iter().map(Vec::as_slice).collect();
+            assert_eq!(bits(&merge_sorted(&runs).unwrap()), bits(&want), "{k} runs");
+        }
     }
 
     /// A fixed-seed stream of 64-bit words (the project's generator).

@@ -162,6 +162,11 @@ pub const EXACT: &[&str] = &[
     "SELECT component, weight, mean, sd FROM dist_components((SELECT dist_mixture(x, 2) FROM t)) \
      ORDER BY component",
     "SELECT count(*), sum(cdf) FROM dist_steps((SELECT dist_empirical(x) FROM t WHERE g < 0))",
+    // Above 32,768 values, so that merged parts' values are selected where the engine
+    // holds them (the sampled path) and sorted parts merged, not re-sorted.
+    "SELECT quantile(t.x * v.column1 + t.t, 0.37), median(t.x - v.column1), \
+     ks_test(t.x + v.column1 * t.t, t.flag), dist_fit(t.x * v.column1, 'gamma') \
+     FROM t, (VALUES (1.0), (2.0), (3.0), (4.5)) AS v",
 ];
 
 pub fn tempdir(name: &str) -> std::path::PathBuf {

@@ -31,9 +31,17 @@ impl Data {
     /// The data of `xs`, with the step of `resolution` checked against the distinct
     /// values (or found, for [`Resolution::Auto`]).
     pub(super) fn new(xs: &[f64], resolution: Resolution) -> Result<Data, MixtureError> {
+        Data::from_sorted(crate::stats::sorting::sorted_total(xs), resolution)
+    }
+
+    /// [`Data::new`] of values already sorted in the order of `f64::total_cmp`.
+    pub(super) fn from_sorted(
+        mut x: Vec<f64>,
+        resolution: Resolution,
+    ) -> Result<Data, MixtureError> {
+        let n = x.len() as f64;
         // Ties are merged in place: the distinct values move to the front of the
-        // sorted copy, their counts alongside.
-        let mut x = crate::stats::sorting::sorted_total(xs);
+        // sorted list, their counts alongside.
         let mut count: Vec<f64> = Vec::with_capacity(x.len());
         let mut distinct = 0;
         for i in 0..x.len() {
@@ -48,7 +56,7 @@ impl Data {
         }
         x.truncate(distinct);
         count.shrink_to_fit();
-        Data::merged(x, count, xs.len() as f64, resolution)
+        Data::merged(x, count, n, resolution)
     }
 
     /// The data of distinct values in increasing order with positive counts (frequency

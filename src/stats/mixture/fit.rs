@@ -83,6 +83,37 @@ pub fn fit_mixture_rounded(
     fit_thinned(xs, k, THIN_TO, resolution)
 }
 
+/// [`fit_mixture_rounded`] on values already sorted in the order of `f64::total_cmp`
+/// (as [`crate::stats::sorting::merge_sorted`] gives the sorted parts of a group): the
+/// same fit, without sorting again. Values that are not sorted are sorted first. An
+/// infinite value is named in increasing order (the smallest first), not in row order.
+///
+/// # Errors
+/// As [`fit_mixture_rounded`].
+///
+/// # Example
+/// ```
+/// use ogive::stats::mixture::{fit_mixture_rounded, fit_mixture_sorted};
+/// use ogive::stats::resolution::Resolution;
+/// let xs = [1.0, 1.2, 0.9, 1.1, 5.0, 5.2, 4.9, 5.1];
+/// let mut sorted = xs.to_vec();
+/// sorted.sort_by(f64::total_cmp);
+/// let a = fit_mixture_sorted(sorted, Some(2), Resolution::Exact)?;
+/// assert_eq!(a, fit_mixture_rounded(&xs, Some(2), Resolution::Exact)?);
+/// # Ok::<(), ogive::stats::mixture::MixtureError>(())
+/// ```
+pub fn fit_mixture_sorted(
+    xs: Vec<f64>,
+    k: Option<usize>,
+    resolution: Resolution,
+) -> Result<MixtureFit, MixtureError> {
+    if !crate::stats::sorting::is_sorted_total(&xs) {
+        return fit_mixture_rounded(&xs, k, resolution);
+    }
+    check_counts(k, &xs)?;
+    fit_data(Data::from_sorted(xs, resolution)?, k, THIN_TO)
+}
+
 /// [`fit_mixture_rounded`] on frequency-weighted values: `weights[i]` copies of
 /// `values[i]`. With whole-number weights it is the fit of the replicated values (EM
 /// works on distinct values with counts in any case); fractional weights are allowed.
@@ -185,18 +216,24 @@ pub(super) fn fit_thinned(
     thin_to: usize,
     resolution: Resolution,
 ) -> Result<MixtureFit, MixtureError> {
+    check_counts(k, xs)?;
+    let data = Data::new(xs, resolution)?;
+    fit_data(data, k, thin_to)
+}
+
+/// The checks of the entries that take values one by one: [`check_k_and_values`], and at
+/// least `3k - 1` of them.
+fn check_counts(k: Option<usize>, xs: &[f64]) -> Result<(), MixtureError> {
     check_k_and_values(k, xs)?;
-    let need = |k: usize| 3 * k - 1;
-    let first_k = k.unwrap_or(1);
-    if xs.len() < need(first_k) {
+    let need = 3 * k.unwrap_or(1) - 1;
+    if xs.len() < need {
         return Err(MixtureError::TooFewPoints {
-            k: first_k,
-            need: need(first_k),
+            k: k.unwrap_or(1),
+            need,
             got: xs.len() as u64,
         });
     }
-    let data = Data::new(xs, resolution)?;
-    fit_data(data, k, thin_to)
+    Ok(())
 }
 
 /// The fit of merged data.

@@ -132,7 +132,7 @@ mod tests;
 
 pub use fit::{
     Candidate, MixtureFit, fit_mixture, fit_mixture_counted, fit_mixture_rounded,
-    fit_mixture_weighted,
+    fit_mixture_sorted, fit_mixture_weighted,
 };
 pub use model::Mixture;
 
