@@ -50,7 +50,7 @@ use crate::stats::ks::{
 };
 use crate::stats::lilliefors::{self, Scale, lilliefors_p};
 use crate::stats::sample::Sample;
-use crate::stats::sorting::{is_sorted_total, merge_sorted, sorted_total};
+use crate::stats::sorting::{is_sorted_total, merge_sorted};
 use crate::value::Dist;
 use crate::value::model::{Law, Model};
 
@@ -260,7 +260,8 @@ impl KsTestState {
         } else {
             &mut self.second
         };
-        let own = sorted_total(&std::mem::take(own));
+        let mut own = std::mem::take(own);
+        own.sort_unstable_by(f64::total_cmp);
         if self.adopted[i].is_empty() {
             return Ok(own);
         }
@@ -368,7 +369,11 @@ impl State for KsTestState {
             std::mem::take(&mut self.first),
             std::mem::take(&mut self.second),
         );
-        vec![sorted_total(&first), sorted_total(&second)]
+        let mut lists = vec![first, second];
+        for l in &mut lists {
+            l.sort_unstable_by(f64::total_cmp);
+        }
+        lists
     }
 
     fn adopt(&mut self, runs: Vec<Arc<dyn Run>>) -> Result<()> {

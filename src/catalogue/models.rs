@@ -27,7 +27,7 @@ use crate::stats::readings::{
     fit_censored, fit_rounded, fit_rounded_counted, fit_rounded_weighted,
 };
 use crate::stats::resolution::{Resolution, resolve};
-use crate::stats::sorting::{is_sorted_total, merge_sorted, sorted_total};
+use crate::stats::sorting::{is_sorted_total, merge_sorted};
 use crate::stats::tally::Tally;
 use crate::value::model::{Law, Model};
 
@@ -385,7 +385,9 @@ impl Values {
 
     /// The kept values (own and adopted), sorted in the order of `f64::total_cmp`.
     fn sorted(&mut self) -> std::result::Result<Vec<f64>, ArgError> {
-        let own = sorted_total(&std::mem::take(&mut self.xs));
+        // In place: a sorted copy would need as much memory again.
+        let mut own = std::mem::take(&mut self.xs);
+        own.sort_unstable_by(f64::total_cmp);
         if self.adopted.is_empty() {
             return Ok(own);
         }
@@ -397,7 +399,9 @@ impl Values {
     /// For [`State::take_values`]: the part's own kept values, sorted (a counted part
     /// keeps its counts in the saved form).
     fn take_sorted(&mut self) -> Vec<Vec<f64>> {
-        vec![sorted_total(&std::mem::take(&mut self.xs))]
+        let mut own = std::mem::take(&mut self.xs);
+        own.sort_unstable_by(f64::total_cmp);
+        vec![own]
     }
 
     /// For [`State::adopt`]: a part's sorted values; counted as they are with a

@@ -312,6 +312,45 @@ mod tests {
     use super::*;
     use crate::stats::fixtures::{compare as fixture, floats, rel_close};
 
+    #[test]
+    fn the_untied_shortcut_gives_the_test_of_the_full_statistic() {
+        // Above AUTO_EXACT_CELLS, untied and tied: `ks_2samp` (which skips the block list
+        // when there is no tie) must equal the test from the full statistic, field for
+        // field (an invariant of the walk; the p-values themselves are checked against
+        // scipy in tests/python).
+        let mut rng = crate::stats::rng::Xoshiro256pp::new(21);
+        let n = 12_000;
+        let draw = |rng: &mut crate::stats::rng::Xoshiro256pp, shift: f64, round: bool| {
+            let mut v: Vec<f64> = (0..n)
+                .map(|_| {
+                    let x = rng.normal() + shift;
+                    if round { (x * 10.0).round() / 10.0 } else { x }
+                })
+                .collect();
+            v.sort_by(f64::total_cmp);
+            v
+        };
+        assert!((n * n) as u64 > AUTO_EXACT_CELLS);
+        for round in [false, true] {
+            let (x, y) = (draw(&mut rng, 0.0, round), draw(&mut rng, 0.05, round));
+            for alternative in [
+                Alternative::TwoSided,
+                Alternative::Less,
+                Alternative::Greater,
+            ] {
+                for method in [PMethod::Auto, PMethod::Asymptotic] {
+                    let full = two_sample_statistic(&x, &y).unwrap();
+                    assert_eq!(full.has_ties(), round);
+                    assert_eq!(
+                        ks_2samp(&x, &y, alternative, method).unwrap(),
+                        ks_2samp_from_statistic(&full, alternative, method).unwrap(),
+                        "ties {round}"
+                    );
+                }
+            }
+        }
+    }
+
     /// Exhaustive enumeration of every split of the pooled sample: the share of splits whose
     /// statistic is at least the observed one. The reference for the exact p-value with ties.
     fn enumerate_p(x: &[f64], y: &[f64], alternative: Alternative) -> f64 {

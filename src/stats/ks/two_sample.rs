@@ -97,6 +97,21 @@ pub(crate) fn next_pooled(x: &[f64], i: usize, y: &[f64], j: usize) -> Option<f6
 /// # Ok::<(), ogive::stats::ks::TestError>(())
 /// ```
 pub fn two_sample_statistic(x: &[f64], y: &[f64]) -> Result<TwoSampleStatistic, TestError> {
+    let mut blocks = Vec::new();
+    walk(x, y, |size| {
+        Ok(crate::stats::grow::push(&mut blocks, size)?)
+    })
+    .map(|s| TwoSampleStatistic { blocks, ..s })
+}
+
+/// The walk of [`two_sample_statistic`] over the pooled sample: checks both samples,
+/// calls `block` with each tie block's size in order, and gives the statistics with an
+/// empty block list.
+fn walk(
+    x: &[f64],
+    y: &[f64],
+    mut block: impl FnMut(usize) -> Result<(), TestError>,
+) -> Result<TwoSampleStatistic, TestError> {
     check_sorted(x)?;
     check_sorted(y)?;
     let (n1, n2) = (x.len(), y.len());
@@ -105,7 +120,6 @@ pub fn two_sample_statistic(x: &[f64], y: &[f64]) -> Result<TwoSampleStatistic, 
     }
     let (mut i, mut j) = (0usize, 0usize);
     let (mut plus, mut minus) = (0i128, 0i128);
-    let mut blocks = Vec::new();
     while i < n1 || j < n2 {
         let Some(v) = next_pooled(x, i, y, j) else {
             break;
@@ -117,7 +131,7 @@ pub fn two_sample_statistic(x: &[f64], y: &[f64]) -> Result<TwoSampleStatistic, 
         while j < n2 && y[j] == v {
             j += 1;
         }
-        crate::stats::grow::push(&mut blocks, i + j - start)?;
+        block(i + j - start)?;
         let diff = i as i128 * n2 as i128 - j as i128 * n1 as i128;
         plus = plus.max(diff);
         minus = minus.max(-diff);
@@ -127,7 +141,7 @@ pub fn two_sample_statistic(x: &[f64], y: &[f64]) -> Result<TwoSampleStatistic, 
         n2,
         plus: plus as u64,
         minus: minus as u64,
-        blocks,
+        blocks: Vec::new(),
     })
 }
 
@@ -157,6 +171,25 @@ pub fn ks_2samp(
     alternative: Alternative,
     method: PMethod,
 ) -> Result<KsResult, TestError> {
+    let cells = x.len() as u64 * y.len() as u64;
+    let exact = match method {
+        PMethod::Auto => cells <= AUTO_EXACT_CELLS,
+        PMethod::Exact => true,
+        PMethod::Asymptotic => false,
+    };
+    if !exact {
+        // The block list matters only for an exact p-value or with ties: a walk that
+        // notes whether there is a tie spares the list (8 bytes a distinct value) when
+        // there is none, and the test is then the same as with the all-ones list.
+        let mut tied = false;
+        let s = walk(x, y, |size| {
+            tied |= size > 1;
+            Ok(())
+        })?;
+        if !tied {
+            return test_of(&s, false, alternative, method);
+        }
+    }
     let s = two_sample_statistic(x, y)?;
     ks_2samp_from_statistic(&s, alternative, method)
 }
@@ -181,6 +214,17 @@ pub fn ks_2samp_from_statistic(
     alternative: Alternative,
     method: PMethod,
 ) -> Result<KsResult, TestError> {
+    test_of(s, s.has_ties(), alternative, method)
+}
+
+/// [`ks_2samp_from_statistic`], told whether the pooled sample has ties (`s.blocks` is
+/// read only for an exact p-value or with ties).
+fn test_of(
+    s: &TwoSampleStatistic,
+    ties: bool,
+    alternative: Alternative,
+    method: PMethod,
+) -> Result<KsResult, TestError> {
     let cells = s.n1 as u64 * s.n2 as u64;
     let exact = match method {
         PMethod::Auto => cells <= AUTO_EXACT_CELLS,
@@ -201,8 +245,7 @@ pub fn ks_2samp_from_statistic(
             exact_2samp_p(s.n1, s.n2, h, &s.blocks, alternative)?,
             MethodUsed::Exact,
         )
-    } else if let Some(p) = s
-        .has_ties()
+    } else if let Some(p) = ties
         .then(|| ties_2samp_p(s.n1, s.n2, &s.blocks, d, alternative))
         .flatten()
     {
