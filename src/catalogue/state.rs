@@ -152,7 +152,13 @@ pub trait State: Default + Send + Sync + 'static {
 
 /// Values another part of a group collected, shared read-only with the engine that holds
 /// them (for DataFusion, a slice of an Arrow buffer), so that a merge adopts them without
-/// a copy.
+/// a copy. A `Vec<f64>` is one (for engines without buffers of their own, and tests).
+///
+/// # Example
+/// ```
+/// use ogive::catalogue::state::Run;
+/// assert_eq!(vec![1.5, 2.5].values(), [1.5, 2.5]);
+/// ```
 pub trait Run: Send + Sync {
     /// The values.
     fn values(&self) -> &[f64];
@@ -166,6 +172,19 @@ impl Run for Vec<f64> {
 
 /// The lists a state adopted ([`State::adopt`]), as one list of runs each: each part's
 /// values where the engine holds them.
+///
+/// # Example
+/// ```
+/// use std::sync::Arc;
+/// use ogive::catalogue::state::{Adopted, Run};
+/// let mut a = Adopted::default();
+/// a.push(Arc::new(vec![3.0, 1.0]) as Arc<dyn Run>);
+/// a.push(Arc::new(Vec::<f64>::new()) as Arc<dyn Run>); // an empty run is not kept
+/// assert_eq!((a.len(), a.with(&[2.0]).len()), (2, 2));
+/// let mut own = vec![2.0];
+/// a.absorb_into(&mut own).unwrap();
+/// assert_eq!((own, a.is_empty()), (vec![2.0, 3.0, 1.0], true));
+/// ```
 #[derive(Default, Clone)]
 pub struct Adopted(Vec<Arc<dyn Run>>);
 
@@ -222,7 +241,17 @@ impl Adopted {
 /// One run from each list, for [`State::adopt`].
 ///
 /// # Errors
-/// The internal error of [`State::adopt`] for another count than `S::LISTS`.
+/// The internal error of [`State::adopt`] for another count than `N`.
+///
+/// # Example
+/// ```
+/// use std::sync::Arc;
+/// use ogive::catalogue::column::QuantileState;
+/// use ogive::catalogue::state::{Run, runs_of};
+/// let runs = vec![Arc::new(vec![1.0]) as Arc<dyn Run>];
+/// assert!(runs_of::<QuantileState, 1>(runs.clone()).is_ok());
+/// assert!(runs_of::<QuantileState, 2>(runs).is_err());
+/// ```
 pub fn runs_of<S: State, const N: usize>(
     runs: Vec<Arc<dyn Run>>,
 ) -> Result<[Arc<dyn Run>; N], FunctionError> {

@@ -3,7 +3,8 @@
 //! The partial state DataFusion ships between its partial and final aggregation (and
 //! between processes) is one BINARY value, the catalogue's saved form of the state
 //! (`docs/state-format.md`), merged on arrival by the state's own `merge`; a state that
-//! collects values (`quantile`) ships them beside it as lists of doubles
+//! collects values (`quantile`, `median`, `ks_test`, `dist_fit`, `dist_mixture`) ships
+//! them beside it as lists of doubles
 //! ([`State::take_values`](crate::catalogue::state::State::take_values)), moved into the
 //! list column without a copy and read where DataFusion holds them when the final step
 //! merges and answers. On one partition DataFusion aggregates in one step and ships
@@ -22,12 +23,15 @@ use ::datafusion::arrow::datatypes::{DataType, Field, FieldRef};
 use ::datafusion::common::ScalarValue;
 use ::datafusion::error::DataFusionError;
 use ::datafusion::logical_expr::function::{AccumulatorArgs, StateFieldsArgs};
-use ::datafusion::logical_expr::{Accumulator, AggregateUDF, AggregateUDFImpl, Signature};
+use ::datafusion::logical_expr::{
+    Accumulator, AggregateUDF, AggregateUDFImpl, GroupsAccumulator, Signature,
+};
 
 use super::convert::{
     Column, columns_of, data_type, number_bits, out_array, read_row, runs_at, values_list,
     values_list_type,
 };
+use super::groups::Groups;
 use super::scalar::signature;
 use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, FunctionError, fail};
@@ -66,6 +70,23 @@ impl AggregateUDFImpl for Aggregate {
 
     fn accumulator(&self, _: AccumulatorArgs) -> Result<Box<dyn Accumulator>, DataFusionError> {
         Ok(Box::new(self.acc(false)?))
+    }
+
+    fn groups_accumulator_supported(&self, args: AccumulatorArgs) -> bool {
+        !args.is_distinct && matches!(self.def.imp, Imp::Aggregate(_))
+    }
+
+    fn create_groups_accumulator(
+        &self,
+        _: AccumulatorArgs,
+    ) -> Result<Box<dyn GroupsAccumulator>, DataFusionError> {
+        let Imp::Aggregate(imp) = self.def.imp else {
+            return Err(DataFusionError::Internal(format!(
+                "{} is not an aggregate",
+                self.def.name
+            )));
+        };
+        Ok(Box::new(Groups::new(self.def, imp)))
     }
 
     fn create_sliding_accumulator(
@@ -213,17 +234,10 @@ impl Acc {
             {
                 break;
             }
-            let v = match x.get(row) {
-                Arg::Null => {
-                    row += 1;
-                    continue;
-                }
-                Arg::Real(v) => v,
-                Arg::Integer(i) => i as f64,
+            match lane_value(x.get(row)) {
+                Some(None) => {}
+                Some(Some(v)) if add(name, &mut sink, v)? => {}
                 _ => break,
-            };
-            if !add(name, &mut sink, v)? {
-                break;
             }
             row += 1;
         }
@@ -239,13 +253,29 @@ impl Acc {
     }
 }
 
+/// What the lane does with a row's `x`: `Some(None)` skips it (NULL), `Some(Some(v))`
+/// adds `v` (a number), `None` leaves the row to the general step (text, BLOB).
+#[inline(always)]
+pub(super) fn lane_value(x: Arg<'_>) -> Option<Option<f64>> {
+    match x {
+        Arg::Null => Some(None),
+        Arg::Real(v) => Some(Some(v)),
+        Arg::Integer(i) => Some(Some(i as f64)),
+        _ => None,
+    }
+}
+
 /// Adds `v` to a lane's sink; `false` when the sink refuses it (the sketch refuses NaN),
 /// for the general step to report.
 ///
 /// # Errors
 /// The function's out-of-memory error when a list cannot grow.
 #[inline(always)]
-fn add(name: &'static str, sink: &mut Sink<'_>, v: f64) -> Result<bool, DataFusionError> {
+pub(super) fn add(
+    name: &'static str,
+    sink: &mut Sink<'_>,
+    v: f64,
+) -> Result<bool, DataFusionError> {
     match sink {
         Sink::Count(counter) => counter.add(v),
         Sink::Sketch(s) => return Ok(s.insert(v).is_ok()),

@@ -5,7 +5,7 @@ use std::ops::Range;
 use std::sync::Arc;
 
 use ::datafusion::arrow::array::{
-    Array, ArrayRef, AsArray, BinaryArray, Float64Array, Int64Array, ListArray, RecordBatch,
+    Array, ArrayRef, AsArray, BinaryArray, Float64Array, Int64Array, LargeListArray, RecordBatch,
     StringArray,
 };
 use ::datafusion::arrow::buffer::{NullBuffer, OffsetBuffer, ScalarBuffer};
@@ -281,9 +281,10 @@ pub fn out_array(
 }
 
 /// The Arrow type of a list of values a state ships apart from its saved form
-/// ([`crate::catalogue::state::State::take_values`]): a list of non-null doubles.
+/// ([`crate::catalogue::state::State::take_values`]): a list of non-null doubles, with
+/// 64-bit offsets (a group's list, or a batch of them, may hold more than 2^31 values).
 pub fn values_list_type() -> DataType {
-    DataType::List(Arc::new(Field::new_list_field(DataType::Float64, false)))
+    DataType::LargeList(Arc::new(Field::new_list_field(DataType::Float64, false)))
 }
 
 /// A state's list of values as a one-row list scalar of [`values_list_type`], without a
@@ -291,13 +292,13 @@ pub fn values_list_type() -> DataType {
 pub fn values_list(values: Vec<f64>) -> ScalarValue {
     let n = values.len();
     let items = Float64Array::new(ScalarBuffer::from(values), None);
-    let list = ListArray::new(
+    let list = LargeListArray::new(
         Arc::new(Field::new_list_field(DataType::Float64, false)),
         OffsetBuffer::from_lengths([n]),
         Arc::new(items),
         None,
     );
-    ScalarValue::List(Arc::new(list))
+    ScalarValue::LargeList(Arc::new(list))
 }
 
 /// A row's values in a list column of [`values_list_type`], shared with the column's
@@ -328,7 +329,10 @@ pub fn runs_at(
     lists
         .iter()
         .map(|col| {
-            let list = col.as_list_opt::<i32>().ok_or_else(bad)?;
+            let list = col.as_list_opt::<i64>().ok_or_else(bad)?;
+            if row >= list.len() {
+                return Err(bad());
+            }
             let items = list.value(row);
             let items = items.as_primitive_opt::<Float64Type>().ok_or_else(bad)?;
             if items.null_count() > 0 {

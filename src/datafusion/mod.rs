@@ -51,6 +51,7 @@ macro_rules! by_name {
 
 pub mod aggregate;
 pub mod convert;
+mod groups;
 pub mod json;
 pub mod scalar;
 pub mod sql;

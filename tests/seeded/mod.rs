@@ -129,6 +129,8 @@ pub const EXACT: &[&str] = &[
      FROM t GROUP BY g ORDER BY g",
     "SELECT g, quantiles(x, '[0.1, 0.5, 0.99]'), profile(x) FROM t GROUP BY g ORDER BY g",
     "SELECT g, ks_test(x, flag) FROM t GROUP BY g ORDER BY g",
+    "SELECT g, quantile(x, 0.5) FILTER (WHERE flag), ecdf(x, 3.0) FILTER (WHERE t % 3 = 0), \
+     quantile_sketch(x) FILTER (WHERE t < 0) IS NULL FROM t GROUP BY g ORDER BY g",
     "SELECT g, dist_empirical(x), dist_empirical(x, w) FROM t GROUP BY g ORDER BY g",
     "SELECT dist_merge(d) FROM (SELECT g, dist_empirical(x) AS d FROM t GROUP BY g)",
     "SELECT g, dist_fit(x, 'gamma'), dist_fit(x, 'normal') FROM t GROUP BY g ORDER BY g",
