@@ -136,27 +136,52 @@ fn bad_input_gives_the_same_message_as_sqlite() {
 #[test]
 fn a_batch_at_once_skips_null_and_nan_and_checks_the_constant_on_every_row() {
     // The adapter reads a REAL column's batch at once when the group's constant holds on
-    // every row; NULL and NaN (which SQLite stores as NULL) are skipped as row by row.
+    // every row (with GROUP BY: a REAL column's doubles, and a constant the same on every
+    // row); NULL and NaN (which SQLite stores as NULL) are skipped as row by row.
     // Reference: the same values in SQLite, NaN written as NULL there.
     let conn = rusqlite::Connection::open_in_memory().unwrap();
     ogive::register(&conn).unwrap();
     let rt = tokio::runtime::Runtime::new().unwrap();
     let mut ctx = SessionContext::new();
     ogive::datafusion::register(&mut ctx).unwrap();
-    let lite =
-        "(SELECT column1 AS x FROM (VALUES (1.0), (NULL), (NULL), (3.0), (2.5), (5.0), (2.0)))";
-    let fusion = "(SELECT column1 AS x FROM \
-                  (VALUES (1.0), (CAST('NaN' AS DOUBLE)), (NULL), (3.0), (2.5), (5.0), (2.0)))";
-    for select in [
-        "SELECT quantile(x, 0.5), ecdf(x, 2.5), median(x) FROM",
-        "SELECT sketch_quantile(quantile_sketch(x), 0.5), sketch_cdf(quantile_sketch(x, 0.01), 2.5) FROM",
+    // The NaN comes after its group's first row, so that the lane takes it.
+    let lite = "(SELECT column1 AS x, column2 AS g FROM (VALUES (1.0, 1), (3.0, 2), (NULL, 1), \
+                (NULL, 2), (2.5, 1), (5.0, 2), (2.0, 1)))";
+    let fusion = "(SELECT column1 AS x, column2 AS g FROM (VALUES (1.0, 1), (3.0, 2), (NULL, 1), \
+                  (CAST('NaN' AS DOUBLE), 2), (2.5, 1), (5.0, 2), (2.0, 1)))";
+    // Each also with GROUP BY, where one state per group takes the batch's rows.
+    let grouped = " GROUP BY g ORDER BY g";
+    for (select, end) in [
+        ("SELECT quantile(x, 0.5), ecdf(x, 2.5), median(x) FROM", ""),
+        (
+            "SELECT g, quantile(x, 0.5), ecdf(x, 2.5), median(x) FROM",
+            grouped,
+        ),
+        (
+            "SELECT sketch_quantile(quantile_sketch(x), 0.5), sketch_cdf(quantile_sketch(x, 0.01), 2.5) FROM",
+            "",
+        ),
+        (
+            "SELECT g, sketch_quantile(quantile_sketch(x), 0.5), sketch_cdf(quantile_sketch(x, 0.01), 2.5) FROM",
+            grouped,
+        ),
         // A constant that is a column, equal on every row: still one group constant.
-        "SELECT ecdf(x, CASE WHEN x > 2 THEN 2.5 ELSE 2.5 END), \
-         quantile(x, CASE WHEN x IS NULL THEN 0.5 ELSE 0.5 END) FROM",
-        "SELECT ecdf(x, x) FROM",
+        (
+            "SELECT ecdf(x, CASE WHEN x > 2 THEN 2.5 ELSE 2.5 END), \
+             quantile(x, CASE WHEN x IS NULL THEN 0.5 ELSE 0.5 END) FROM",
+            "",
+        ),
+        // One constant per group, different between groups.
+        (
+            "SELECT g, ecdf(x, CASE WHEN g = 1 THEN 2.5 ELSE 3.0 END), \
+             quantile(x, CASE WHEN g = 1 THEN 0.5 ELSE 0.25 END) FROM",
+            grouped,
+        ),
+        ("SELECT ecdf(x, x) FROM", ""),
+        ("SELECT g, ecdf(x, x) FROM", grouped),
     ] {
-        let want = sqlite_rows(&conn, &format!("{select} {lite}"));
-        let got = rt.block_on(fusion_rows(&ctx, &format!("{select} {fusion}")));
+        let want = sqlite_rows(&conn, &format!("{select} {lite}{end}"));
+        let got = rt.block_on(fusion_rows(&ctx, &format!("{select} {fusion}{end}")));
         match (&want, &got) {
             (Ok(w), Ok(g)) => assert!(
                 w.len() == g.len()

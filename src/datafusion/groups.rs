@@ -15,13 +15,13 @@ use std::sync::Arc;
 use ::datafusion::arrow::array::{
     Array, ArrayRef, AsArray, BinaryBuilder, BooleanArray, LargeListArray,
 };
-use ::datafusion::arrow::buffer::{OffsetBuffer, ScalarBuffer};
+use ::datafusion::arrow::buffer::{NullBuffer, OffsetBuffer, ScalarBuffer};
 use ::datafusion::arrow::datatypes::{DataType, Field};
 use ::datafusion::error::DataFusionError;
 use ::datafusion::logical_expr::{EmitTo, GroupsAccumulator};
 
 use super::aggregate::{add, lane_value};
-use super::convert::{columns_of, number_bits, out_array, read_row, runs_at};
+use super::convert::{Column, columns_of, number_bits, out_array, read_row, runs_at};
 use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, fail};
 use crate::catalogue::state::{AggregateImp, Aggregator, Args, Lane};
@@ -75,21 +75,32 @@ impl Groups {
         taken
     }
 
-    /// One row into its group's state: through the lane when the row qualifies.
+    /// One row into its group's state: through the lane when the row qualifies (see
+    /// [`Fast`] for what the batch settled once), else through the general step.
     #[inline]
     fn step_row(
         state: &mut dyn Aggregator,
-        cols: &[super::convert::Column],
+        cols: &[Column],
+        fast: &Fast<'_>,
         row: usize,
         name: &'static str,
     ) -> Result<(), DataFusionError> {
         if let [x, c @ ..] = cols
             && c.len() <= 1
             && let Some(Lane { key, mut sink }) = state.lane()
-            && c.first()
-                .is_none_or(|c| number_bits(c.get(row)) == Some(key))
+            && (fast.key == Some(key)
+                || c.first()
+                    .is_none_or(|c| number_bits(c.get(row)) == Some(key)))
         {
-            match lane_value(x.get(row)) {
+            let v = match fast.reals {
+                // As `Column::get` reads it: NULL and NaN are NULL.
+                Some((values, nulls)) => {
+                    let v = values[row];
+                    Some((!v.is_nan() && nulls.is_none_or(|n| n.is_valid(row))).then_some(v))
+                }
+                None => lane_value(x.get(row)),
+            };
+            match v {
                 Some(None) => return Ok(()),
                 Some(Some(v)) if add(name, &mut sink, v)? => return Ok(()),
                 _ => {}
@@ -98,6 +109,25 @@ impl Groups {
         let mut args = [Arg::Null; MAX_ARGS];
         let n = read_row(cols, row, &mut args);
         state.step(&Args::new(&args[..n])).map_err(to_datafusion)
+    }
+}
+
+/// What a batch settles once for the lane: `x`'s doubles when it is a REAL column, and the
+/// bits of the constant argument when every row of the batch holds the same number (as a
+/// literal does), so that a row whose group's lane key is those bits needs no read of it.
+struct Fast<'a> {
+    reals: Option<(&'a [f64], Option<&'a NullBuffer>)>,
+    key: Option<u64>,
+}
+
+impl<'a> Fast<'a> {
+    fn of(cols: &'a [Column], rows: usize) -> Fast<'a> {
+        let reals = cols.first().and_then(Column::reals);
+        let key = match cols {
+            [_, c] => number_bits(c.get(0)).filter(|&k| c.all_bits(k, 0..rows)),
+            _ => None,
+        };
+        Fast { reals, key }
     }
 }
 
@@ -113,12 +143,13 @@ impl GroupsAccumulator for Groups {
         guarded(name, || {
             self.grow(total_num_groups)?;
             let cols = columns_of(name, values)?;
+            let fast = Fast::of(&cols, group_indices.len());
             for (row, &g) in group_indices.iter().enumerate() {
                 if opt_filter.is_some_and(|f| !(f.is_valid(row) && f.value(row))) {
                     continue;
                 }
                 let state = self.states.get_mut(g).ok_or_else(|| bad_group(name, g))?;
-                Self::step_row(state.as_mut(), &cols, row, name)?;
+                Self::step_row(state.as_mut(), &cols, &fast, row, name)?;
             }
             self.rows = self.rows.saturating_add(group_indices.len());
             Ok(())
