@@ -22,7 +22,7 @@ const FILES: usize = 8;
 const GROUPS: i64 = 1_000;
 /// Runs per cell; the tables show medians. The engines run in turns within a round, so
 /// that the machine's state is shared alike.
-const RUNS: usize = 5;
+const RUNS: usize = 9;
 
 /// The median of a few timings.
 fn median(mut v: Vec<f64>) -> f64 {
@@ -171,9 +171,9 @@ fn main() {
             "SELECT sketch_quantile(quantile_sketch(x), 0.5) FROM t",
         ),
     ];
-    let mut md = String::from(
+    let mut md = format!(
         "# ogive on DataFusion\n\nWritten by `cargo bench --features datafusion --bench \
-         fusion` (release build, medians of 5 runs per cell with the engines in turns, 10M rows \
+         fusion` (release build, medians of {RUNS} runs per cell with the engines in turns, 10M rows \
          of a lognormal in 8 Parquet files, seeded; the SQLite column is ogive in SQLite over \
          the same rows in one file; a shared 2-core machine). Seconds. `sum(x)` is each \
          engine's own, the floor: what reading the rows costs (grouped: what reading and \
@@ -206,12 +206,12 @@ fn main() {
         return;
     }
 
-    md.push_str(
+    md.push_str(&format!(
         "\nAgainst DataFusion's own functions on the same data (2 partitions; a first run gives \
-         the answer, the time is the median of 5 more). The rank error is |rank - p n| / n \
+         the answer, the time is the median of {RUNS} more). The rank error is |rank - p n| / n \
          of the answer in the sorted data (0 when the answer is an order statistic at rank \
          p n).\n\n| query | seconds | answer | rank error |\n|---|---:|---:|---:|\n",
-    );
+    ));
     let builtin = [
         (
             "ogive `quantile(x, 0.5)` (exact)",
