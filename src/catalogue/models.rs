@@ -404,19 +404,23 @@ impl Values {
         vec![own]
     }
 
-    /// For [`State::adopt`]: a part's sorted values; counted as they are with a
-    /// resolution, and kept as own values if they are not sorted.
-    fn adopt(&mut self, run: Arc<dyn Run>, counted: bool) -> std::result::Result<(), ArgError> {
-        if counted {
-            for &x in run.values() {
-                self.tally.add(x, 1)?;
+    /// [`State::adopt`] for state `S` (one list): a part's sorted values; counted as they
+    /// are with a resolution, and kept as own values if they are not sorted.
+    fn adopt<S: State>(&mut self, runs: Vec<Arc<dyn Run>>, counted: bool) -> Result<()> {
+        let [run] = runs_of::<S, 1>(runs)?;
+        let mut go = || -> std::result::Result<(), ArgError> {
+            if counted {
+                for &x in run.values() {
+                    self.tally.add(x, 1)?;
+                }
+            } else if is_sorted_total(run.values()) {
+                self.adopted.push(Arc::clone(&run));
+            } else {
+                try_extend(&mut self.xs, run.values())?;
             }
-        } else if is_sorted_total(run.values()) {
-            self.adopted.push(run);
-        } else {
-            try_extend(&mut self.xs, run.values())?;
-        }
-        Ok(())
+            Ok(())
+        };
+        go().map_err(|e| fail(S::NAME, e))
     }
 
     /// The saved form: every value (a counted one as many times as it was counted), as
@@ -556,11 +560,7 @@ impl State for DistFitState {
     }
 
     fn adopt(&mut self, runs: Vec<Arc<dyn Run>>) -> Result<()> {
-        let [run] = runs_of::<Self, 1>(runs)?;
-        let counted = counted(&self.resolution);
-        self.values
-            .adopt(run, counted)
-            .map_err(|e| fail(Self::NAME, e))
+        self.values.adopt::<Self>(runs, counted(&self.resolution))
     }
 }
 
@@ -751,11 +751,7 @@ impl State for DistMixtureState {
     }
 
     fn adopt(&mut self, runs: Vec<Arc<dyn Run>>) -> Result<()> {
-        let [run] = runs_of::<Self, 1>(runs)?;
-        let counted = counted(&self.resolution);
-        self.values
-            .adopt(run, counted)
-            .map_err(|e| fail(Self::NAME, e))
+        self.values.adopt::<Self>(runs, counted(&self.resolution))
     }
 }
 

@@ -18,7 +18,7 @@
 
 use std::sync::Arc;
 
-use ::datafusion::arrow::array::{Array, ArrayRef, AsArray};
+use ::datafusion::arrow::array::{Array, ArrayRef, AsArray, BinaryArray};
 use ::datafusion::arrow::datatypes::{DataType, Field, FieldRef};
 use ::datafusion::common::ScalarValue;
 use ::datafusion::error::DataFusionError;
@@ -364,25 +364,61 @@ impl Acc {
 
     /// Merges a batch of partial states in their saved form, with their lists of values.
     fn merge_saved(&mut self, states: &[ArrayRef]) -> Result<(), DataFusionError> {
-        let Some((saved, lists)) = states.split_first() else {
+        let Some(batch) = Partials::of(self.def.name, states)? else {
             return Ok(());
         };
-        let saved = saved.as_binary_opt::<i32>().ok_or_else(|| {
-            DataFusionError::Internal(format!("{}: partial state is not BINARY", self.def.name))
-        })?;
-        for i in 0..saved.len() {
-            if saved.is_valid(i) {
-                let runs = runs_at(self.def.name, lists, i)?;
-                let held: usize = runs.iter().map(|r| r.values().len()).sum();
-                self.state
-                    .merge_apart(saved.value(i), runs)
-                    .map_err(to_datafusion)?;
-                self.rows = self
-                    .rows
-                    .saturating_add(saved.value(i).len() / 16)
-                    .saturating_add(held / 2);
-            }
+        for i in 0..batch.saved.len() {
+            let added = batch.merge_row(self.state.as_mut(), i)?;
+            self.rows = self.rows.saturating_add(added);
         }
         Ok(())
+    }
+}
+
+/// A batch of partial states, as [`Accumulator::state`] gave them: the saved forms, and the
+/// value lists beside them.
+pub(super) struct Partials<'a> {
+    name: &'static str,
+    /// The saved forms.
+    pub saved: &'a BinaryArray,
+    lists: &'a [ArrayRef],
+}
+
+impl<'a> Partials<'a> {
+    /// The batch's columns; `None` for no column.
+    ///
+    /// # Errors
+    /// An internal error when the first column is not BINARY.
+    pub(super) fn of(
+        name: &'static str,
+        states: &'a [ArrayRef],
+    ) -> Result<Option<Partials<'a>>, DataFusionError> {
+        let Some((saved, lists)) = states.split_first() else {
+            return Ok(None);
+        };
+        let saved = saved.as_binary_opt::<i32>().ok_or_else(|| {
+            DataFusionError::Internal(format!("{name}: partial state is not BINARY"))
+        })?;
+        Ok(Some(Partials { name, saved, lists }))
+    }
+
+    /// Merges row `i` (unless NULL) into `state`; gives what it adds to a size estimate
+    /// counted in rows of 16 bytes.
+    ///
+    /// # Errors
+    /// As [`runs_at`] and [`Aggregator::merge_apart`].
+    pub(super) fn merge_row(
+        &self,
+        state: &mut dyn Aggregator,
+        i: usize,
+    ) -> Result<usize, DataFusionError> {
+        if !self.saved.is_valid(i) {
+            return Ok(0);
+        }
+        let runs = runs_at(self.name, self.lists, i)?;
+        let held: usize = runs.iter().map(|r| r.values().len()).sum();
+        let bytes = self.saved.value(i);
+        state.merge_apart(bytes, runs).map_err(to_datafusion)?;
+        Ok((bytes.len() / 16).saturating_add(held / 2))
     }
 }

@@ -290,15 +290,19 @@ pub fn values_list_type() -> DataType {
 /// A state's list of values as a one-row list scalar of [`values_list_type`], without a
 /// copy: the vector becomes the Arrow buffer.
 pub fn values_list(values: Vec<f64>) -> ScalarValue {
-    let n = values.len();
-    let items = Float64Array::new(ScalarBuffer::from(values), None);
-    let list = LargeListArray::new(
+    let ends = vec![0, values.len() as i64];
+    ScalarValue::LargeList(Arc::new(values_column(values, ends)))
+}
+
+/// A column of [`values_list_type`] from its values end to end and the offsets where each
+/// row's start and end (`ends[0] = 0`, one more than the rows), without a copy of either.
+pub fn values_column(values: Vec<f64>, ends: Vec<i64>) -> LargeListArray {
+    LargeListArray::new(
         Arc::new(Field::new_list_field(DataType::Float64, false)),
-        OffsetBuffer::from_lengths([n]),
-        Arc::new(items),
+        OffsetBuffer::new(ScalarBuffer::from(ends)),
+        Arc::new(Float64Array::new(ScalarBuffer::from(values), None)),
         None,
-    );
-    ScalarValue::LargeList(Arc::new(list))
+    )
 }
 
 /// A row's values in a list column of [`values_list_type`], shared with the column's

@@ -12,16 +12,13 @@
 
 use std::sync::Arc;
 
-use ::datafusion::arrow::array::{
-    Array, ArrayRef, AsArray, BinaryBuilder, BooleanArray, LargeListArray,
-};
-use ::datafusion::arrow::buffer::{NullBuffer, OffsetBuffer, ScalarBuffer};
-use ::datafusion::arrow::datatypes::{DataType, Field};
+use ::datafusion::arrow::array::{Array, ArrayRef, BinaryBuilder, BooleanArray};
+use ::datafusion::arrow::buffer::NullBuffer;
 use ::datafusion::error::DataFusionError;
 use ::datafusion::logical_expr::{EmitTo, GroupsAccumulator};
 
-use super::aggregate::{add, lane_value};
-use super::convert::{Column, columns_of, number_bits, out_array, read_row, runs_at};
+use super::aggregate::{Partials, add, lane_value};
+use super::convert::{Column, columns_of, number_bits, out_array, read_row, values_column};
 use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, fail};
 use crate::catalogue::state::{AggregateImp, Aggregator, Args, Lane};
@@ -197,15 +194,7 @@ impl GroupsAccumulator for Groups {
             }
             let mut out: Vec<ArrayRef> = vec![Arc::new(saved.finish())];
             for (all, ends) in columns {
-                out.push(Arc::new(LargeListArray::new(
-                    Arc::new(Field::new_list_field(DataType::Float64, false)),
-                    OffsetBuffer::new(ScalarBuffer::from(ends)),
-                    Arc::new(::datafusion::arrow::array::Float64Array::new(
-                        ScalarBuffer::from(all),
-                        None,
-                    )),
-                    None,
-                )));
+                out.push(Arc::new(values_column(all, ends)));
             }
             Ok(out)
         })
@@ -220,26 +209,13 @@ impl GroupsAccumulator for Groups {
         let name = self.def.name;
         guarded(name, || {
             self.grow(total_num_groups)?;
-            let Some((saved, lists)) = values.split_first() else {
+            let Some(batch) = Partials::of(name, values)? else {
                 return Ok(());
             };
-            let saved = saved.as_binary_opt::<i32>().ok_or_else(|| {
-                DataFusionError::Internal(format!("{name}: partial state is not BINARY"))
-            })?;
             for (i, &g) in group_indices.iter().enumerate() {
-                if !saved.is_valid(i) {
-                    continue;
-                }
-                let runs = runs_at(name, lists, i)?;
-                let held: usize = runs.iter().map(|r| r.values().len()).sum();
                 let state = self.states.get_mut(g).ok_or_else(|| bad_group(name, g))?;
-                state
-                    .merge_apart(saved.value(i), runs)
-                    .map_err(to_datafusion)?;
-                self.rows = self
-                    .rows
-                    .saturating_add(saved.value(i).len() / 16)
-                    .saturating_add(held / 2);
+                let added = batch.merge_row(state.as_mut(), i)?;
+                self.rows = self.rows.saturating_add(added);
             }
             Ok(())
         })

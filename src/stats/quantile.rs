@@ -813,18 +813,25 @@ mod tests {
         check_adjacent(&vec![4.25; n], &firsts);
     }
 
-    #[test]
-    fn sampled_selection_survives_a_missed_bracket() {
-        // Adversarial order: every sampled position holds a huge value, so the bounds
-        // bracket the wrong ranks and the sampled path must report a miss, after which
-        // the full selection still gives the exact answer.
-        let n = SAMPLED_SELECTION_FROM * 2;
+    /// `n` values in which every position the sample reads holds a huge value, so that
+    /// the sampled bounds bracket the wrong ranks.
+    fn sample_defeating(n: usize) -> Vec<f64> {
         let s = sample_size(n);
         let stride = n / s;
         let mut data = scrambled(n, 3, |x| (x % 1000) as f64);
         for i in 0..s {
             data[sample_position(i, stride)] = 1e9 + i as f64;
         }
+        data
+    }
+
+    #[test]
+    fn sampled_selection_survives_a_missed_bracket() {
+        // Adversarial order: every sampled position holds a huge value, so the bounds
+        // bracket the wrong ranks and the sampled path must report a miss, after which
+        // the full selection still gives the exact answer.
+        let n = SAMPLED_SELECTION_FROM * 2;
+        let data = sample_defeating(n);
         let mut scratch = data.clone();
         assert_eq!(select_sampled(&mut scratch, n / 2).unwrap(), None);
         check_adjacent(&data, &[n / 2, 0, n - 1]);
@@ -894,12 +901,7 @@ mod tests {
         // The adversarial order of `sampled_selection_survives_a_missed_bracket`, cut in
         // two: the sampled path misses and the copy still gives the exact answer.
         let n = SAMPLED_SELECTION_FROM * 2;
-        let s = sample_size(n);
-        let stride = n / s;
-        let mut data = scrambled(n, 3, |x| (x % 1000) as f64);
-        for i in 0..s {
-            data[sample_position(i, stride)] = 1e9 + i as f64;
-        }
+        let mut data = sample_defeating(n);
         let runs = runs_of(&data, &[n / 3]);
         assert_eq!(select_sampled_runs(&runs, n, n / 2).unwrap(), None);
         let mut sorted = data.clone();
