@@ -121,7 +121,7 @@ impl<'a> Fast<'a> {
     fn of(cols: &'a [Column], rows: usize) -> Fast<'a> {
         let reals = cols.first().and_then(Column::reals);
         let key = match cols {
-            [_, c] => number_bits(c.get(0)).filter(|&k| c.all_bits(k, 0..rows)),
+            [_, c] if rows > 0 => number_bits(c.get(0)).filter(|&k| c.all_bits(k, 0..rows)),
             _ => None,
         };
         Fast { reals, key }
