@@ -50,7 +50,7 @@ use crate::stats::ks::{
 };
 use crate::stats::lilliefors::{self, Scale, lilliefors_p};
 use crate::stats::sample::Sample;
-use crate::stats::sorting::{is_sorted_total, merge_sorted};
+use crate::stats::sorting::into_sorted;
 use crate::value::Dist;
 use crate::value::model::{Law, Model};
 
@@ -253,19 +253,20 @@ pub struct KsTestState {
 }
 
 impl KsTestState {
-    /// Sample `i`'s values, sorted: the own values sorted, merged with the adopted runs.
-    fn sorted(&mut self, i: usize) -> std::result::Result<Vec<f64>, ArgError> {
+    /// Sample `i`'s own values and its adopted runs.
+    fn sample(&mut self, i: usize) -> (&mut Vec<f64>, &mut Adopted) {
         let own = if i == 0 {
             &mut self.first
         } else {
             &mut self.second
         };
-        let mut own = std::mem::take(own);
-        own.sort_unstable_by(f64::total_cmp);
-        if self.adopted[i].is_empty() {
-            return Ok(own);
-        }
-        Ok(merge_sorted(&self.adopted[i].with(&own))?)
+        (own, &mut self.adopted[i])
+    }
+
+    /// Sample `i`'s values, sorted: the own values sorted, merged with the adopted runs.
+    fn sorted(&mut self, i: usize) -> std::result::Result<Vec<f64>, ArgError> {
+        let (own, adopted) = self.sample(i);
+        Ok(adopted.sorted_with(std::mem::take(own))?)
     }
 }
 
@@ -365,31 +366,19 @@ impl State for KsTestState {
     fn take_values(&mut self) -> Vec<Vec<f64>> {
         // Sorted here, in the part's own step (in parallel with the other parts), so
         // that the final step only merges.
-        let (first, second) = (
-            std::mem::take(&mut self.first),
-            std::mem::take(&mut self.second),
-        );
-        let mut lists = vec![first, second];
-        for l in &mut lists {
-            l.sort_unstable_by(f64::total_cmp);
-        }
-        lists
+        vec![
+            into_sorted(std::mem::take(&mut self.first)),
+            into_sorted(std::mem::take(&mut self.second)),
+        ]
     }
 
     fn adopt(&mut self, runs: Vec<Arc<dyn Run>>) -> Result<()> {
         let [a, b] = runs_of::<Self, 2>(runs)?;
         for (i, run) in [a, b].into_iter().enumerate() {
-            if is_sorted_total(run.values()) {
-                self.adopted[i].push(run);
-            } else {
-                // Not as `take_values` gives them: kept as own values, sorted at the end.
-                let own = if i == 0 {
-                    &mut self.first
-                } else {
-                    &mut self.second
-                };
-                try_extend(own, run.values()).map_err(|e| fail(Self::NAME, e))?;
-            }
+            let (own, adopted) = self.sample(i);
+            adopted
+                .push_sorted(run, own)
+                .map_err(|e| fail(Self::NAME, ArgError::from(e)))?;
         }
         Ok(())
     }

@@ -27,7 +27,7 @@ use crate::stats::readings::{
     fit_censored, fit_rounded, fit_rounded_counted, fit_rounded_weighted,
 };
 use crate::stats::resolution::{Resolution, resolve};
-use crate::stats::sorting::{is_sorted_total, merge_sorted};
+use crate::stats::sorting::into_sorted;
 use crate::stats::tally::Tally;
 use crate::value::model::{Law, Model};
 
@@ -385,42 +385,26 @@ impl Values {
 
     /// The kept values (own and adopted), sorted in the order of `f64::total_cmp`.
     fn sorted(&mut self) -> std::result::Result<Vec<f64>, ArgError> {
-        // In place: a sorted copy would need as much memory again.
-        let mut own = std::mem::take(&mut self.xs);
-        own.sort_unstable_by(f64::total_cmp);
-        if self.adopted.is_empty() {
-            return Ok(own);
-        }
-        let all = merge_sorted(&self.adopted.with(&own))?;
-        self.adopted = Adopted::default();
-        Ok(all)
+        Ok(self.adopted.sorted_with(std::mem::take(&mut self.xs))?)
     }
 
     /// For [`State::take_values`]: the part's own kept values, sorted (a counted part
     /// keeps its counts in the saved form).
     fn take_sorted(&mut self) -> Vec<Vec<f64>> {
-        let mut own = std::mem::take(&mut self.xs);
-        own.sort_unstable_by(f64::total_cmp);
-        vec![own]
+        vec![into_sorted(std::mem::take(&mut self.xs))]
     }
 
     /// [`State::adopt`] for state `S` (one list): a part's sorted values; counted as they
     /// are with a resolution, and kept as own values if they are not sorted.
     fn adopt<S: State>(&mut self, runs: Vec<Arc<dyn Run>>, counted: bool) -> Result<()> {
         let [run] = runs_of::<S, 1>(runs)?;
-        let mut go = || -> std::result::Result<(), ArgError> {
-            if counted {
-                for &x in run.values() {
-                    self.tally.add(x, 1)?;
-                }
-            } else if is_sorted_total(run.values()) {
-                self.adopted.push(Arc::clone(&run));
-            } else {
-                try_extend(&mut self.xs, run.values())?;
-            }
-            Ok(())
+        let done = if counted {
+            let tally = &mut self.tally;
+            run.values().iter().try_for_each(|&x| tally.add(x, 1))
+        } else {
+            self.adopted.push_sorted(run, &mut self.xs)
         };
-        go().map_err(|e| fail(S::NAME, e))
+        done.map_err(|e| fail(S::NAME, ArgError::from(e)))
     }
 
     /// The saved form: every value (a counted one as many times as it was counted), as

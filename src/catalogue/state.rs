@@ -27,6 +27,7 @@ use super::value::{Arg, Out};
 use crate::stats::ecdf::EcdfCounter;
 use crate::stats::grow::OutOfMemory;
 use crate::stats::sketch::QuantileSketch;
+use crate::stats::sorting::{into_sorted, is_sorted_total, merge_sorted};
 
 /// The arguments of one row.
 #[derive(Debug, Clone, Copy)]
@@ -184,6 +185,13 @@ impl Run for Vec<f64> {
 /// let mut own = vec![2.0];
 /// a.absorb_into(&mut own).unwrap();
 /// assert_eq!((own, a.is_empty()), (vec![2.0, 3.0, 1.0], true));
+///
+/// // Sorted runs stay runs; one that is not sorted joins the own values.
+/// let mut own = vec![5.0, 0.0];
+/// a.push_sorted(Arc::new(vec![1.0, 4.0]), &mut own).unwrap();
+/// a.push_sorted(Arc::new(vec![3.0, 2.0]), &mut own).unwrap();
+/// assert_eq!((a.len(), own.len()), (2, 4));
+/// assert_eq!(a.sorted_with(own).unwrap(), [0.0, 1.0, 2.0, 3.0, 4.0, 5.0]);
 /// ```
 #[derive(Default, Clone)]
 pub struct Adopted(Vec<Arc<dyn Run>>);
@@ -235,6 +243,40 @@ impl Adopted {
             self.0.pop();
         }
         Ok(())
+    }
+
+    /// Adds a run that should come sorted (in the order of `f64::total_cmp`, as a state's
+    /// `take_values` sorts it): kept as a run when it is, else its values are added to
+    /// `own` (to be sorted with them by [`Adopted::sorted_with`]).
+    ///
+    /// # Errors
+    /// [`OutOfMemory`] when `own` cannot grow.
+    pub fn push_sorted(
+        &mut self,
+        run: Arc<dyn Run>,
+        own: &mut Vec<f64>,
+    ) -> Result<(), OutOfMemory> {
+        if is_sorted_total(run.values()) {
+            self.push(run);
+            Ok(())
+        } else {
+            crate::stats::grow::extend(own, run.values())
+        }
+    }
+
+    /// `own` sorted in place, merged with the runs (sorted, as
+    /// [`Adopted::push_sorted`] keeps them) into one sorted list; leaves no run.
+    ///
+    /// # Errors
+    /// [`OutOfMemory`] when the merged list cannot be had.
+    pub fn sorted_with(&mut self, own: Vec<f64>) -> Result<Vec<f64>, OutOfMemory> {
+        let own = into_sorted(own);
+        if self.is_empty() {
+            return Ok(own);
+        }
+        let all = merge_sorted(&self.with(&own))?;
+        self.0.clear();
+        Ok(all)
     }
 }
 

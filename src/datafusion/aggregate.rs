@@ -28,14 +28,14 @@ use ::datafusion::logical_expr::{
 };
 
 use super::convert::{
-    Column, columns_of, data_type, number_bits, out_array, read_row, runs_at, values_list,
-    values_list_type,
+    Column, columns_of, data_type, number_bits, out_array, read_row, runs_at, stored_number,
+    values_list, values_list_type,
 };
 use super::groups::Groups;
 use super::scalar::signature;
 use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, FunctionError, fail};
-use crate::catalogue::state::{Aggregator, Args, Lane, Sink, try_extend, try_push};
+use crate::catalogue::state::{AggregateImp, Aggregator, Args, Lane, Sink, try_extend, try_push};
 use crate::catalogue::value::{Arg, Out};
 use crate::catalogue::{FunctionDef, Imp, Kind, MAX_ARGS};
 
@@ -73,20 +73,14 @@ impl AggregateUDFImpl for Aggregate {
     }
 
     fn groups_accumulator_supported(&self, args: AccumulatorArgs) -> bool {
-        !args.is_distinct && matches!(self.def.imp, Imp::Aggregate(_))
+        !args.is_distinct && self.imp().is_ok()
     }
 
     fn create_groups_accumulator(
         &self,
         _: AccumulatorArgs,
     ) -> Result<Box<dyn GroupsAccumulator>, DataFusionError> {
-        let Imp::Aggregate(imp) = self.def.imp else {
-            return Err(DataFusionError::Internal(format!(
-                "{} is not an aggregate",
-                self.def.name
-            )));
-        };
-        Ok(Box::new(Groups::new(self.def, imp)))
+        Ok(Box::new(Groups::new(self.def, self.imp()?)))
     }
 
     fn create_sliding_accumulator(
@@ -114,22 +108,28 @@ impl AggregateUDFImpl for Aggregate {
 }
 
 impl Aggregate {
+    /// The row's states.
+    ///
+    /// # Errors
+    /// An internal error for a row that is not an aggregate.
+    fn imp(&self) -> Result<AggregateImp, DataFusionError> {
+        match self.def.imp {
+            Imp::Aggregate(imp) => Ok(imp),
+            _ => Err(DataFusionError::Internal(format!(
+                "{} is not an aggregate",
+                self.def.name
+            ))),
+        }
+    }
+
     /// How many lists of values the row's state ships apart from its saved form.
     fn lists(&self) -> usize {
-        match self.def.imp {
-            Imp::Aggregate(imp) => imp.lists,
-            _ => 0,
-        }
+        self.imp().map_or(0, |imp| imp.lists)
     }
 
     /// A new state; `framed` for sliding window frames.
     fn acc(&self, framed: bool) -> Result<Acc, DataFusionError> {
-        let Imp::Aggregate(imp) = self.def.imp else {
-            return Err(DataFusionError::Internal(format!(
-                "{} is not an aggregate",
-                self.def.name
-            )));
-        };
+        let imp = self.imp()?;
         Ok(Acc {
             def: self.def,
             state: (imp.new)(),
@@ -208,21 +208,22 @@ impl Acc {
         let name = self.def.name;
         // The whole rest of the batch at once: a REAL x, and the group's constant on every
         // row (or none). The same rows as one by one below: NULL and NaN skipped.
-        if let Some((values, nulls)) = x.reals()
+        if let Some(reals) = x.reals()
             && c.is_none_or(|c| c.all_bits(key, from..rows))
         {
-            let values = &values[from..rows];
+            let values = &reals.values[from..rows];
             if let Sink::Collect(xs) = &mut sink
-                && nulls.is_none()
+                && reals.nulls.is_none()
                 && !values.iter().any(|v| v.is_nan())
             {
                 try_extend(xs, values).map_err(|e| to_datafusion(fail(name, e)))?;
                 return Ok(rows);
             }
-            for (i, &v) in values.iter().enumerate() {
-                let taken = !v.is_nan() && nulls.is_none_or(|n| n.is_valid(from + i));
-                if taken && !add(name, &mut sink, v)? {
-                    return Ok(from + i);
+            for row in from..rows {
+                if let Some(v) = reals.at(row)
+                    && !add(name, &mut sink, v)?
+                {
+                    return Ok(row);
                 }
             }
             return Ok(rows);
@@ -259,9 +260,7 @@ impl Acc {
 pub(super) fn lane_value(x: Arg<'_>) -> Option<Option<f64>> {
     match x {
         Arg::Null => Some(None),
-        Arg::Real(v) => Some(Some(v)),
-        Arg::Integer(i) => Some(Some(i as f64)),
-        _ => None,
+        other => stored_number(other).map(Some),
     }
 }
 

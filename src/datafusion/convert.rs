@@ -10,7 +10,7 @@ use ::datafusion::arrow::array::{
 };
 use ::datafusion::arrow::buffer::{NullBuffer, OffsetBuffer, ScalarBuffer};
 use ::datafusion::arrow::compute::{CastOptions, cast_with_options};
-use ::datafusion::arrow::datatypes::{DataType, Field, Float64Type, Int64Type};
+use ::datafusion::arrow::datatypes::{DataType, Field, FieldRef, Float64Type, Int64Type};
 use ::datafusion::common::ScalarValue;
 use ::datafusion::error::DataFusionError;
 
@@ -132,12 +132,15 @@ impl Column {
     }
 
     /// A REAL column's doubles and validity, for reading many rows at once; `None` for any
-    /// other column or a constant one. A NaN among them reads as NULL (as in [`Column::get`]).
-    pub fn reals(&self) -> Option<(&[f64], Option<&NullBuffer>)> {
+    /// other column or a constant one.
+    pub fn reals(&self) -> Option<Reals<'_>> {
         match (self.shape, self.constant) {
             (Shape::Real, false) => {
                 let a = self.array.as_primitive::<Float64Type>();
-                Some((a.values(), a.nulls()))
+                Some(Reals {
+                    values: a.values(),
+                    nulls: a.nulls(),
+                })
             }
             _ => None,
         }
@@ -169,15 +172,39 @@ impl Column {
     }
 }
 
-/// The bits (`f64::to_bits`) of a number argument, an INTEGER as its double; `None` for
-/// any other value.
+/// A number stored as INTEGER or REAL, as a double (an INTEGER converted); `None` for any
+/// other value, TEXT that reads as a number included (unlike `catalogue::args::number`).
 #[inline]
-pub fn number_bits(a: Arg<'_>) -> Option<u64> {
+pub fn stored_number(a: Arg<'_>) -> Option<f64> {
     match a {
-        Arg::Real(v) => Some(v.to_bits()),
-        Arg::Integer(i) => Some((i as f64).to_bits()),
+        Arg::Real(v) => Some(v),
+        Arg::Integer(i) => Some(i as f64),
         _ => None,
     }
+}
+
+/// A REAL column's doubles and validity ([`Column::reals`]).
+#[derive(Clone, Copy)]
+pub struct Reals<'a> {
+    /// Every row's double, NULL rows included (their bits are unspecified).
+    pub values: &'a [f64],
+    /// Which rows are NULL, if any are.
+    pub nulls: Option<&'a NullBuffer>,
+}
+
+impl Reals<'_> {
+    /// Row `row` as [`Column::get`] reads it: `None` for NULL and for NaN.
+    #[inline]
+    pub fn at(&self, row: usize) -> Option<f64> {
+        let v = self.values[row];
+        (!v.is_nan() && self.nulls.is_none_or(|n| n.is_valid(row))).then_some(v)
+    }
+}
+
+/// The bits (`f64::to_bits`) of a number argument ([`stored_number`]).
+#[inline]
+pub fn number_bits(a: Arg<'_>) -> Option<u64> {
+    stored_number(a).map(f64::to_bits)
 }
 
 /// The argument columns of a batch (none constant).
@@ -284,7 +311,12 @@ pub fn out_array(
 /// ([`crate::catalogue::state::State::take_values`]): a list of non-null doubles, with
 /// 64-bit offsets (a group's list, or a batch of them, may hold more than 2^31 values).
 pub fn values_list_type() -> DataType {
-    DataType::LargeList(Arc::new(Field::new_list_field(DataType::Float64, false)))
+    DataType::LargeList(item_field())
+}
+
+/// The items of [`values_list_type`].
+fn item_field() -> FieldRef {
+    Arc::new(Field::new_list_field(DataType::Float64, false))
 }
 
 /// A state's list of values as a one-row list scalar of [`values_list_type`], without a
@@ -298,7 +330,7 @@ pub fn values_list(values: Vec<f64>) -> ScalarValue {
 /// row's start and end (`ends[0] = 0`, one more than the rows), without a copy of either.
 pub fn values_column(values: Vec<f64>, ends: Vec<i64>) -> LargeListArray {
     LargeListArray::new(
-        Arc::new(Field::new_list_field(DataType::Float64, false)),
+        item_field(),
         OffsetBuffer::new(ScalarBuffer::from(ends)),
         Arc::new(Float64Array::new(ScalarBuffer::from(values), None)),
         None,

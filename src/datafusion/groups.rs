@@ -13,12 +13,11 @@
 use std::sync::Arc;
 
 use ::datafusion::arrow::array::{Array, ArrayRef, BinaryBuilder, BooleanArray};
-use ::datafusion::arrow::buffer::NullBuffer;
 use ::datafusion::error::DataFusionError;
 use ::datafusion::logical_expr::{EmitTo, GroupsAccumulator};
 
 use super::aggregate::{Partials, add, lane_value};
-use super::convert::{Column, columns_of, number_bits, out_array, read_row, values_column};
+use super::convert::{Column, Reals, columns_of, number_bits, out_array, read_row, values_column};
 use super::{guarded, to_datafusion};
 use crate::catalogue::args::{ArgError, fail};
 use crate::catalogue::state::{AggregateImp, Aggregator, Args, Lane};
@@ -90,11 +89,7 @@ impl Groups {
                     .is_none_or(|c| number_bits(c.get(row)) == Some(key)))
         {
             let v = match fast.reals {
-                // As `Column::get` reads it: NULL and NaN are NULL.
-                Some((values, nulls)) => {
-                    let v = values[row];
-                    Some((!v.is_nan() && nulls.is_none_or(|n| n.is_valid(row))).then_some(v))
-                }
+                Some(reals) => Some(reals.at(row)),
                 None => lane_value(x.get(row)),
             };
             match v {
@@ -113,7 +108,7 @@ impl Groups {
 /// bits of the constant argument when every row of the batch holds the same number (as a
 /// literal does), so that a row whose group's lane key is those bits needs no read of it.
 struct Fast<'a> {
-    reals: Option<(&'a [f64], Option<&'a NullBuffer>)>,
+    reals: Option<Reals<'a>>,
     key: Option<u64>,
 }
 

@@ -285,16 +285,26 @@ pub fn quantile_select(
     p: f64,
     ty: QuantileType,
 ) -> Result<Option<f64>, StatsError> {
+    by_adjacent(xs.len(), p, ty, |first| select_adjacent(xs, first))
+}
+
+/// The `p` quantile of type `ty` of `n` values from the order statistics `x(first)` and
+/// `x(first + 1)` (0-based; as [`select_adjacent`] gives them) that `select` finds.
+fn by_adjacent(
+    n: usize,
+    p: f64,
+    ty: QuantileType,
+    select: impl FnOnce(usize) -> Result<(f64, f64), StatsError>,
+) -> Result<Option<f64>, StatsError> {
     check_probability(p)?;
-    if xs.is_empty() {
+    if n == 0 {
         return Ok(None);
     }
-    let n = xs.len();
     let plan = plan(n as f64, p, ty);
     let first = match plan {
         Plan::At(k) | Plan::Lerp { lo: k, .. } => index_of(k, n),
     };
-    let (a, next) = select_adjacent(xs, first)?;
+    let (a, next) = select(first)?;
     Ok(evaluate(plan, |k| {
         if index_of(k, n) == first { a } else { next }
     }))
@@ -401,6 +411,15 @@ fn between(k: i64, lo: i64, span: u64) -> bool {
     k.wrapping_sub(lo) as u64 <= span
 }
 
+/// Whether both wanted ranks, `first` and the one after it (when it exists among `n`),
+/// fall in the middle part: after the `below` values under the lower bound, within the
+/// `middle` values between the bounds.
+#[inline]
+fn brackets(first: usize, n: usize, below: usize, middle: usize) -> bool {
+    let last = (first + 1).min(n - 1);
+    first >= below && last < below + middle
+}
+
 /// The sampled path of [`select_adjacent`]; `Ok(None)` when the bounds missed (the slice
 /// holds the same values, in another order).
 fn select_sampled(xs: &mut [f64], first: usize) -> Result<Option<(f64, f64)>, StatsError> {
@@ -424,10 +443,7 @@ fn select_sampled(xs: &mut [f64], first: usize) -> Result<Option<(f64, f64)>, St
     if nan {
         return Err(StatsError::NotANumber);
     }
-    // Both wanted ranks must fall inside the middle part (the second one only when it
-    // exists).
-    let last = (first + 1).min(n - 1);
-    if first < below || last >= below + middle {
+    if !brackets(first, n, below, middle) {
         return Ok(None);
     }
     Ok(Some(select_pair(&mut xs[..middle], first - below)))
@@ -457,29 +473,17 @@ pub fn quantile_select_runs(
     p: f64,
     ty: QuantileType,
 ) -> Result<Option<f64>, StatsError> {
-    check_probability(p)?;
     let n: usize = runs.iter().map(|r| r.len()).sum();
-    if n == 0 {
-        return Ok(None);
-    }
-    let plan = plan(n as f64, p, ty);
-    let first = match plan {
-        Plan::At(k) | Plan::Lerp { lo: k, .. } => index_of(k, n),
-    };
-    let pair = match select_sampled_runs(runs, n, first)? {
-        Some(pair) => pair,
-        None => {
-            let mut all = Vec::new();
-            for r in runs {
-                super::grow::extend(&mut all, r)?;
-            }
-            select_adjacent(&mut all, first)?
+    by_adjacent(n, p, ty, |first| {
+        if let Some(pair) = select_sampled_runs(runs, n, first)? {
+            return Ok(pair);
         }
-    };
-    let (a, next) = pair;
-    Ok(evaluate(plan, |k| {
-        if index_of(k, n) == first { a } else { next }
-    }))
+        let mut all = Vec::new();
+        for r in runs {
+            super::grow::extend(&mut all, r)?;
+        }
+        select_adjacent(&mut all, first)
+    })
 }
 
 /// [`select_sampled`] over runs (of `n` values in all) that it may not reorder: the values
@@ -521,8 +525,7 @@ fn select_sampled_runs(
     if nan {
         return Err(StatsError::NotANumber);
     }
-    let last = (first + 1).min(n - 1);
-    if first < below || last >= below + middle.len() {
+    if !brackets(first, n, below, middle.len()) {
         return Ok(None);
     }
     Ok(Some(select_pair(&mut middle, first - below)))

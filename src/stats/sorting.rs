@@ -116,6 +116,20 @@ fn merge_two(a: &[f64], b: &[f64]) -> Result<Vec<f64>, OutOfMemory> {
     Ok(out)
 }
 
+/// `xs` sorted in place in the order of [`f64::total_cmp`] (no second buffer, unlike
+/// [`sorted_total`]'s copy).
+///
+/// # Example
+/// ```
+/// let s = ogive::stats::sorting::into_sorted(vec![0.0, -0.0, -3.0]);
+/// assert_eq!(s, [-3.0, -0.0, 0.0]);
+/// assert!(s[1].is_sign_negative());
+/// ```
+pub fn into_sorted(mut xs: Vec<f64>) -> Vec<f64> {
+    xs.sort_unstable_by(f64::total_cmp);
+    xs
+}
+
 /// Whether `xs` is sorted in the order of [`f64::total_cmp`].
 ///
 /// # Example
